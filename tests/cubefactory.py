@@ -1,0 +1,112 @@
+"""Small line cubes built in code with a hand-made WCS, written to FITS for tests.
+
+Every test cube is made here so that tests state their inputs exactly:
+spectral axis type and direction, units, beam, Stokes axis, NaN blanking.
+"""
+
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+from astropy.io import fits
+
+C_KMS = 299792.458  # speed of light in km/s (exact, SI definition)
+
+
+def make_header(shape, *, spectral="FREQ", crval3=None, cdelt3=None, crpix3=1.0, cunit3="default",
+                bunit="Jy/beam", beam=(1.0, 1.0, 0.0), pixel=0.25, restfrq=230.538e9, stokes=False,
+                extra=None):
+    """Header for a cube of numpy ``shape`` (n_chan, ny, nx); pixel and beam sizes in arcsec.
+
+    ``crval3``/``cdelt3`` default to a 230.538 GHz frequency axis with 1 MHz
+    channels (or 0 +/- 1.3 km/s for velocity axes); ``cunit3=None`` omits CUNIT3.
+    """
+    nchan, ny, nx = shape
+    h = fits.Header()
+    h["SIMPLE"] = True
+    h["BITPIX"] = -32
+    h["NAXIS"] = 4 if stokes else 3
+    h["NAXIS1"], h["NAXIS2"], h["NAXIS3"] = nx, ny, nchan
+    if stokes:
+        h["NAXIS4"] = 1
+    h["CTYPE1"], h["CRVAL1"], h["CDELT1"], h["CRPIX1"], h["CUNIT1"] = "RA---SIN", 150.0, -pixel / 3600, (nx + 1) / 2, "deg"
+    h["CTYPE2"], h["CRVAL2"], h["CDELT2"], h["CRPIX2"], h["CUNIT2"] = "DEC--SIN", 2.0, pixel / 3600, (ny + 1) / 2, "deg"
+    kind = spectral.split("-")[0]
+    defaults = {
+        "FREQ": (restfrq, -1.0e6, "Hz"),
+        "VRAD": (0.0, 1300.0, "m/s"),
+        "VOPT": (0.0, 1300.0, "m/s"),
+        "VELO": (0.0, 1300.0, "m/s"),
+        "FELO": (0.0, 1300.0, "m/s"),
+        "WAVE": ((C_KMS * 1e3) / (restfrq or 230.538e9), 2e-9, "m"),
+    }
+    v0, dv, unit = defaults.get(kind, (1.0, 1.0, ""))
+    h["CTYPE3"] = spectral
+    h["CRVAL3"] = v0 if crval3 is None else crval3
+    h["CDELT3"] = dv if cdelt3 is None else cdelt3
+    h["CRPIX3"] = crpix3
+    if cunit3 == "default":
+        cunit3 = unit
+    if cunit3:
+        h["CUNIT3"] = cunit3
+    if stokes:
+        h["CTYPE4"], h["CRVAL4"], h["CDELT4"], h["CRPIX4"] = "STOKES", 1.0, 1.0, 1.0
+    if restfrq:
+        h["RESTFRQ"] = restfrq
+    h["SPECSYS"] = "LSRK"
+    h["RADESYS"] = "ICRS"
+    h["EQUINOX"] = 2000.0
+    if bunit is not None:
+        h["BUNIT"] = bunit
+    if beam is not None:
+        h["BMAJ"], h["BMIN"], h["BPA"] = beam[0] / 3600, beam[1] / 3600, beam[2]
+    for key, value in (extra or {}).items():
+        h[key] = value
+    return h
+
+
+def write_cube(path, data, *, beams=None, **header_kw):
+    """Write ``data`` (n_chan, ny, nx) as a FITS cube; return the path.
+
+    ``beams``: per-channel (bmaj_arcsec, bmin_arcsec, bpa_deg) rows, written
+    as a BEAMS table (the CASA convention spectral-cube reads).
+    """
+    data = np.asarray(data, dtype=">f4")
+    header = make_header(data.shape, **header_kw)
+    if header["NAXIS"] == 4:
+        data = data[np.newaxis]
+    hdus = [fits.PrimaryHDU(data=data, header=header)]
+    if beams is not None:
+        beams = np.asarray(beams, dtype=float)
+        cols = [
+            fits.Column(name="BMAJ", format="1E", unit="arcsec", array=beams[:, 0]),
+            fits.Column(name="BMIN", format="1E", unit="arcsec", array=beams[:, 1]),
+            fits.Column(name="BPA", format="1E", unit="deg", array=beams[:, 2]),
+            fits.Column(name="CHAN", format="1J", array=np.arange(len(beams))),
+            fits.Column(name="POL", format="1J", array=np.zeros(len(beams), int)),
+        ]
+        table = fits.BinTableHDU.from_columns(cols, name="BEAMS")
+        table.header["NCHAN"] = len(beams)
+        table.header["NPOL"] = 1
+        hdus.append(table)
+    path = Path(path)
+    fits.HDUList(hdus).writeto(path)
+    return path
+
+
+def gaussian_profile(v, amplitude, v0, sigma):
+    """A Gaussian line profile at velocities ``v`` (plain arrays)."""
+    return amplitude * np.exp(-0.5 * ((np.asarray(v) - v0) / sigma) ** 2)
+
+
+def velocity_axis_kms(nchan, crval3=230.538e9, cdelt3=-1.0e6, restfrq=230.538e9, crpix3=1.0):
+    """Radio velocities (km/s) of the channels of a FREQ axis made by `make_header`."""
+    freq = crval3 + (np.arange(nchan) + 1 - crpix3) * cdelt3
+    return C_KMS * (restfrq - freq) / restfrq
+
+
+def file_digest(path):
+    """SHA-256 of a file, for checking that inputs are never modified."""
+    import hashlib
+
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
