@@ -222,12 +222,25 @@ def frequency_axis(obj):
         ) from None
 
 
+def _header_rest_frequency(obj):
+    """The rest frequency in the object's WCS (RESTFRQ or RESTWAV), or None."""
+    wcs = getattr(getattr(obj, "wcs", None), "wcs", None)
+    if wcs is None:
+        return None
+    if getattr(wcs, "restfrq", 0):
+        return (wcs.restfrq * u.Hz).to(u.GHz)
+    if getattr(wcs, "restwav", 0):
+        return (wcs.restwav * u.m).to(u.GHz, equivalencies=u.spectral())
+    return None
+
+
 def axis_in(obj, unit, *, rest_frequency=None, z=0.0, convention="radio"):
     """The spectral axis of ``obj`` expressed in ``unit``.
 
     Velocity units give rest-frame offsets from ``rest_frequency / (1 + z)``
-    in ``convention``; with no ``rest_frequency`` a velocity axis is returned
-    in its own (file) velocities.
+    in ``convention``. With no ``rest_frequency`` (and ``z == 0``) a velocity
+    axis is returned in its own (file) velocities, and a frequency axis is
+    converted with the file's RESTFRQ when it has one.
 
     Parameters
     ----------
@@ -250,6 +263,9 @@ def axis_in(obj, unit, *, rest_frequency=None, z=0.0, convention="radio"):
         if rest_frequency is None:
             if native.unit.is_equivalent(_KMS) and z == 0:
                 return native.to(unit)
+            header_rest = _header_rest_frequency(obj)
+            if header_rest is not None and z == 0:
+                return velocity(frequency_axis(obj), header_rest, 0.0, convention).to(unit)
             raise SpectralAxisError(
                 "velocities need a line: pass rest_frequency (e.g. rest_frequency=230.538*u.GHz) "
                 "and z for the source's redshift"
