@@ -141,10 +141,14 @@ def open_cube(path, *, hdu=None, use_dask=False):
     if not head.startswith(b"SIMPLE  =") and not head.startswith(b"XTENSION="):
         raise CubeFileError(f"{path} is not a FITS file (it does not start with a FITS header)")
     try:
-        hdul = fits.open(path, mode="readonly", memmap=True)
-        index, data_hdu = _find_data_hdu(hdul, path, hdu)
-        fixed = _validated_header(data_hdu.header, path)
-        data = data_hdu.data
+        with warnings.catch_warnings():
+            # A short file is reported below as a CubeFileError naming the file;
+            # astropy's own warning about it would only repeat that.
+            warnings.filterwarnings("ignore", message="File may have been truncated")
+            hdul = fits.open(path, mode="readonly", memmap=True)
+            index, data_hdu = _find_data_hdu(hdul, path, hdu)
+            fixed = _validated_header(data_hdu.header, path)
+            data = data_hdu.data
     except (OSError, ValueError, TypeError, IndexError) as exc:
         if isinstance(exc, (CubeFileError, CubeShapeError, SpectralAxisError)):
             raise
