@@ -28,6 +28,8 @@ __all__ = [
     "CatalogError",
     "RedshiftError",
     "OutputExistsError",
+    "ClusterError",
+    "CancelledComputation",
     "CubeloupeWarning",
     "MissingUnitWarning",
     "PartialRegionWarning",
@@ -81,6 +83,14 @@ class RedshiftError(CubeloupeError, ValueError):
 
 class OutputExistsError(CubeloupeError, FileExistsError):
     """An export would overwrite an existing file and ``overwrite`` was not set."""
+
+
+class ClusterError(CubeloupeError, RuntimeError):
+    """Work cannot be sent to a dask.distributed cluster (no client, wrong object, lost workers)."""
+
+
+class CancelledComputation(CubeloupeError, RuntimeError):
+    """A long computation was stopped by its ``cancel`` event before it finished."""
 
 
 class CubeloupeWarning(UserWarning):

@@ -1,0 +1,205 @@
+"""Block executor: tiling, file views, masks, threads, cancel, and a real dask.distributed cluster."""
+
+import threading
+
+import astropy.units as u
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose, assert_array_equal
+
+from cubefactory import gaussian_profile, velocity_axis_kms
+from cubeloupe.analysis import CancelledComputation, ClusterError, open_cube
+from cubeloupe.analysis.blocks import (
+    channel_runs,
+    file_view,
+    plane_blocks,
+    run_blocks,
+    spectra_blocks,
+)
+from cubeloupe.analysis.moments import moment_maps
+from cubeloupe.analysis.noise import channel_statistics
+
+KMS = u.km / u.s
+CO21 = 230.538 * u.GHz  # 12CO J=2-1 rest frequency (CDMS catalogue, from memory)
+NCHAN = 120
+CENTRE = NCHAN / 2 + 0.5
+VEL = velocity_axis_kms(NCHAN, crpix3=CENTRE)
+BLOCK_SHAPES = [(1, 1), (1, 4), (2, 3), (3, 2), (4, 5), (5, 3), (7, 9), (9, 7)]
+
+
+def noisy_cube(rng, ny=7, nx=9, blank=0.03):
+    data = gaussian_profile(VEL, 1.0, 3.0, 8.0)[:, None, None] * rng.uniform(0.5, 1.5, (1, ny, nx))
+    data = data + rng.normal(0, 0.1, (NCHAN, ny, nx))
+    data[rng.random(data.shape) < blank] = np.nan
+    data[:, 0, 0] = np.nan
+    return data
+
+
+@pytest.mark.parametrize("shape", BLOCK_SHAPES)
+def test_spectra_blocks_cover_every_pixel_once(shape):
+    counts = np.zeros((7, 9), int)
+    for block in spectra_blocks((NCHAN, 7, 9), block_shape=shape):
+        counts[block.rows, block.columns] += 1
+        assert block.shape[0] == NCHAN
+    assert np.all(counts == 1)
+
+
+def test_default_blocks_are_a_few_megabytes():
+    for block in spectra_blocks((1000, 512, 512), itemsize=8)[:3] + plane_blocks((1000, 512, 512), itemsize=4)[:3]:
+        size = np.prod(block.shape) * (8 if block.n_channels == 1000 else 4)
+        assert 1 * 2**20 <= size <= 8 * 2**20
+    wide = spectra_blocks((4000, 10, 20000), itemsize=8)  # one row is 640 MB: rows are split
+    assert max(np.prod(b.shape) * 8 for b in wide) <= 8 * 2**20
+
+
+def test_channel_runs():
+    assert channel_runs(None, 5) == ((0, 5),)
+    assert channel_runs(np.array([False, True, True, False, True]), 5) == ((1, 3), (4, 5))
+    assert channel_runs([5, 6, 0, 1, 2], 8) == ((5, 7), (0, 3))
+
+
+@pytest.mark.parametrize("shape", BLOCK_SHAPES)
+def test_block_kernels_equal_spectral_cube(cube_path, rng, shape):
+    # Issue 7: block kernels equal spectral-cube's results on small cubes with NaNs, for every block size.
+    cube = open_cube(cube_path(noisy_cube(rng), crpix3=CENTRE))
+    slab = cube.with_spectral_unit(KMS, velocity_convention="radio", rest_value=CO21).spectral_slab(-40 * KMS,
+                                                                                                    40 * KMS)
+    half_channel = 0.65 * KMS
+    span = u.Quantity([slab.spectral_axis.min() - half_channel, slab.spectral_axis.max() + half_channel])
+    maps = moment_maps(cube, span, rest_frequency=CO21, block_shape=shape)
+    m0 = slab.moment0().to_value(u.Jy / u.beam * KMS)
+    m0[0, 0] = np.nan  # spectral-cube's nansum gives 0 for an all-NaN spectrum; ours says NaN
+    assert_allclose(maps.m0.value, m0, rtol=1e-6, equal_nan=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        assert_allclose(maps.m1.value, slab.moment1().to_value(KMS), rtol=1e-6, atol=1e-6, equal_nan=True)
+        assert_allclose(maps.m2.value, slab.linewidth_sigma().to_value(KMS), rtol=1e-6, equal_nan=True)
+
+    peak = np.zeros(NCHAN)
+    seen = set()
+
+    def consume(block, result):
+        seen.add(block.index)
+        (start, stop), = block.runs
+        peak[start:stop] = result
+
+    blocks = plane_blocks(cube.shape, itemsize=4, block_bytes=shape[0] * 7 * 9 * 4)
+    run_blocks(cube, lambda data: np.nanmax(data.reshape(len(data), -1), axis=1), blocks, consume, threads=2)
+    assert seen == set(range(len(blocks)))
+    assert_allclose(peak, cube.max(axis=(1, 2)).value)
+
+
+def test_file_view_finds_the_data_in_the_file(cube_path, rng):
+    data = noisy_cube(rng)
+    cube = open_cube(cube_path(data, stokes=True, crpix3=CENTRE))
+    view = file_view(cube)
+    assert view is not None and view.shape == data.shape
+    assert_array_equal(view.array(), cube.unmasked_data[:].value)
+    slab = cube.spectral_slab(cube.spectral_axis[10], cube.spectral_axis[30])
+    assert_array_equal(file_view(slab).array(), slab.unmasked_data[:].value)
+    # arithmetic gives an in-memory cube that still carries the source in meta: not the file
+    assert file_view(cube * 2) is None
+    plain_path = cube_path(data)
+    assert file_view(open_cube(plain_path, use_dask=True)) == file_view(open_cube(plain_path))
+
+
+def test_masked_voxels_reach_the_kernel_as_nan(cube_path, rng):
+    data = rng.normal(0, 1, (NCHAN, 4, 5))
+    cube = open_cube(cube_path(data))
+    masked = cube.with_mask(cube > 0 * u.Jy / u.beam)
+    out = np.zeros(data.shape)
+
+    def consume(block, result):
+        out[:, block.rows, block.columns] = result
+
+    run_blocks(masked, lambda d: d, spectra_blocks(cube.shape, block_shape=(3, 2)), consume)
+    stored = data.astype(np.float32)
+    assert_array_equal(out, np.where(stored > 0, stored, np.nan))
+
+
+def test_threads_give_the_same_result_as_one_thread(cube_path, rng):
+    cube = open_cube(cube_path(noisy_cube(rng, 16, 16)))
+    results = []
+    for threads in (1, 2, 3):
+        out = np.zeros((16, 16))
+
+        def consume(block, result, out=out):
+            out[block.rows, block.columns] = result
+
+        run_blocks(cube, lambda d: np.nansum(d, axis=0), spectra_blocks(cube.shape, block_shape=(3, 5)), consume,
+                   threads=threads)
+        results.append(out)
+    assert_array_equal(results[0], results[1])
+    assert_array_equal(results[0], results[2])
+
+
+def test_cancel_midway_stops_and_raises(cube_path, rng):
+    cube = open_cube(cube_path(noisy_cube(rng, 16, 16)))
+    stop = threading.Event()
+    consumed = []
+
+    def consume(block, result):
+        consumed.append(block.index)
+        if len(consumed) == 3:
+            stop.set()
+
+    blocks = spectra_blocks(cube.shape, block_shape=(1, 4))
+    with pytest.raises(CancelledComputation, match=f"of {len(blocks)} blocks"):
+        run_blocks(cube, lambda d: 0, blocks, consume, cancel=stop, threads=2)
+    assert 3 <= len(consumed) < len(blocks)
+
+
+def test_bad_client_values(cube_path, rng):
+    cube = open_cube(cube_path(noisy_cube(rng)))
+    with pytest.raises(ClusterError, match="no dask.distributed Client"):
+        moment_maps(cube, (-40, 40) * KMS, rest_frequency=CO21, client="default")
+    with pytest.raises(ClusterError, match="not understood"):
+        moment_maps(cube, (-40, 40) * KMS, rest_frequency=CO21, client="tcp://nowhere")
+    with pytest.raises(ClusterError, match="distributed.Client"):
+        moment_maps(cube, (-40, 40) * KMS, rest_frequency=CO21, client=42)
+
+
+@pytest.fixture(scope="module")
+def cluster_client():
+    distributed = pytest.importorskip("distributed")
+    # Two worker processes, as a laptop or a small cluster node would run them; started and closed here.
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) \
+            as cluster, distributed.Client(cluster) as client:
+        yield client
+
+
+@pytest.mark.slow
+def test_local_cluster_reproduces_the_in_process_maps(cube_path, rng, cluster_client):
+    # Issue 7: a LocalCluster with 2 workers gives exactly the in-process maps.
+    path = cube_path(noisy_cube(rng, 20, 17), crpix3=CENTRE)
+    cube = open_cube(path)
+    kw = dict(line_free=[(-75, -45), (45, 75)] * KMS, rest_frequency=CO21, order=1, clip=2, block_shape=(3, 7))
+    here = moment_maps(cube, (-40, 40) * KMS, **kw)
+    seen = []
+    there = moment_maps(cube, (-40, 40) * KMS, client=cluster_client, progress=seen.append, **kw)
+    for name in ("m0", "m1", "m2", "m0_error", "rms"):
+        assert_array_equal(getattr(there, name).value, getattr(here, name).value)
+    assert seen[-1] == 1.0
+    # the workers mapped the file themselves: each opened it through its own cache
+    opened = cluster_client.run(lambda: __import__("cubeloupe.analysis.blocks", fromlist=["_"])
+                                ._mapped_file.cache_info().misses)
+    assert sum(opened.values()) >= 1
+    # a user mask travels with the blocks; a dask-backed cube goes through the same call
+    masked = cube.with_mask(cube > 0.05 * u.Jy / u.beam)
+    assert_array_equal(moment_maps(masked, (-40, 40) * KMS, client=cluster_client, **kw).m0.value,
+                       moment_maps(masked, (-40, 40) * KMS, **kw).m0.value)
+    lazy = open_cube(path, use_dask=True)
+    assert_array_equal(moment_maps(lazy, (-40, 40) * KMS, client=cluster_client, **kw).m1.value, here.m1.value)
+    stats_here = channel_statistics(cube)
+    stats_there = channel_statistics(open_cube(path), client=cluster_client)
+    assert_array_equal(stats_there.rms, stats_here.rms)
+    assert_array_equal(stats_there.peak_pixel, stats_here.peak_pixel)
+
+
+@pytest.mark.slow
+def test_cluster_runs_in_memory_cubes_here(cube_path, rng, cluster_client):
+    # Data that are not a view of the file (arithmetic) are computed in this process, with the same answer.
+    cube = open_cube(cube_path(noisy_cube(rng), crpix3=CENTRE))
+    doubled = cube * 2
+    there = moment_maps(doubled, (-40, 40) * KMS, rest_frequency=CO21, client=cluster_client)
+    here = moment_maps(doubled, (-40, 40) * KMS, rest_frequency=CO21)
+    assert_array_equal(there.m0.value, here.m0.value)
