@@ -1,0 +1,408 @@
+"""The widget suite driven as a user or browser would, checked against cubeloupe.analysis on the same inputs.
+
+No browser: traits are set directly, or messages are fed to the interaction
+widgets in the form the bqplot front end sends them.
+"""
+
+import astropy.units as u
+import numpy as np
+import pytest
+from astropy.io import fits
+from astropy.tests.helper import assert_quantity_allclose
+from numpy.testing import assert_allclose
+from regions import CirclePixelRegion, PixCoord, RectanglePixelRegion
+
+from cubefactory import gaussian_profile, velocity_axis_kms
+from cubeloupe.analysis import fit_baseline, measure_line, open_cube, region_spectrum
+from cubeloupe.analysis.catalog import lines_in_band
+from cubeloupe.analysis.display import display_image, display_limits, stretched
+from cubeloupe.analysis.errors import OutputExistsError
+from cubeloupe.analysis.moments import moment_maps
+from cubeloupe.widgets import Loupe, SkyView
+
+N_CHAN, NY, NX = 60, 24, 28
+LINE_V, LINE_SIGMA, LINE_PEAK = 39.0, 8.0, 1.0  # km/s, km/s, Jy/beam: the line peaks in channel 30
+
+
+@pytest.fixture
+def line_cube(cube_path, rng):
+    """A 230.538 GHz cube (1 MHz channels) with a Gaussian line on a sloped baseline in a central blob."""
+    v = velocity_axis_kms(N_CHAN)
+    yy, xx = np.mgrid[:NY, :NX]
+    blob = np.exp(-0.5 * (((xx - 14) / 4.0) ** 2 + ((yy - 12) / 4.0) ** 2))
+    line = gaussian_profile(v, LINE_PEAK, LINE_V, LINE_SIGMA)[:, None, None] * blob
+    slope = (0.02 + 0.0005 * np.arange(N_CHAN))[:, None, None]
+    data = line + slope + rng.normal(0, 0.01, (N_CHAN, NY, NX))
+    return cube_path(data)
+
+
+@pytest.fixture
+def loupe(line_cube):
+    return Loupe(line_cube)
+
+
+def _freqs(loupe, window=0):
+    return loupe._frequencies[window]
+
+
+def _mark_ranges(loupe):
+    f = _freqs(loupe)
+    view = loupe.spectrum_view
+    view.mode = "line-free"
+    for a, b in ((0, 10), (50, 59)):
+        # as the browser does: brushing starts, selection is dragged, mouse released
+        view.brush.brushing = True
+        view.brush.selected = [f[a], f[b]]
+        view.brush.brushing = False
+    view.mode = "window"
+    view.brush.brushing = True
+    view.brush.selected = [f[15], f[45]]
+    assert loupe.line_window == [], "nothing happens while the mouse is still down"
+    view.brush.brushing = False
+    return [[f[10], f[0]], [f[59], f[50]]], [f[45], f[15]]
+
+
+# ----------------------------------------------------------------------------- sky view
+
+def test_channel_change_sends_the_analysis_display_image(loupe, line_cube):
+    loupe.channel = 17
+    cube = open_cube(line_cube)
+    image, _ = display_image(cube.unmasked_data[17].value, loupe.sky_view.max_display_size)
+    lo, hi = display_limits(image, 0.5, 99.5)
+    assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi, "linear"), rtol=1e-6)
+    assert loupe.sky_view.shown_limits == pytest.approx([lo, hi])
+    # the slider is linked both ways and clamps to the band
+    loupe.channel_bar.slider.value = 5
+    assert loupe.channel == 5 and loupe.sky_view.channel == 5
+    loupe.channel = 10_000
+    assert loupe.channel == N_CHAN - 1
+    assert "230.479000 GHz" in loupe.channel_bar.readout  # 230.538 GHz - 59 x 1 MHz (the cube's header)
+
+
+def test_stretch_and_fixed_limits(loupe):
+    sky = loupe.sky_view
+    sky.vmin, sky.vmax = 0.0, 0.5
+    sky.stretch = "sqrt"
+    image, _ = display_image(sky.current_plane()[0], sky.max_display_size)
+    assert_allclose(sky.image.image, stretched(image, 0.0, 0.5, "sqrt"), rtol=1e-6)
+    assert sky.shown_limits == [0.0, 0.5]
+
+
+def test_large_plane_is_block_averaged_for_display(cube_path, rng):
+    path = cube_path(rng.normal(size=(3, 300, 200)))
+    sky = SkyView([open_cube(path)])
+    sky.max_display_size = 100
+    assert sky.display_factor == 3
+    assert sky.image.image.shape == (100, 67)
+
+
+def test_pointer_shows_position_and_value(loupe):
+    loupe.channel = 30
+    loupe.sky_view.pointer._handle_custom_msg({"event": "mousemove", "domain": {"x": 14.2, "y": 11.8}}, [])
+    value = open_cube(loupe.cubes[0].meta["cubeloupe_source"]["path"]).unmasked_data[30, 12, 14].value
+    assert f"{value:.4g}" in loupe.sky_view.pointer_text
+    # astropy is the reference for the sky position of the pointer
+    where = loupe.cube.wcs.celestial.pixel_to_world(14.2, 11.8)
+    assert where.ra.to_string(unit=u.hourangle, sep="hms", precision=3, pad=True) in loupe.sky_view.pointer_text
+
+
+def test_beam_is_drawn_to_scale(loupe):
+    # cubefactory: 1" x 1" beam, 0.25" pixels -> 4 pixels across
+    assert np.ptp(loupe.sky_view.beam_mark.x) == pytest.approx(4.0, rel=1e-3)
+    loupe.sky_view.show_beam = False
+    assert len(loupe.sky_view.beam_mark.x) == 0
+
+
+def test_unknown_source_is_refused_and_state_kept(loupe):
+    with pytest.raises(Exception, match="cannot be shown"):
+        loupe.sky_source = "moment 7"
+    assert loupe.sky_source == "channel"
+
+
+# ----------------------------------------------------------------------------- regions
+
+def test_region_from_code_gives_the_region_spectrum(loupe, line_cube):
+    shape = CirclePixelRegion(PixCoord(14, 12), radius=3)
+    name = loupe.add_region(shape, name="core")
+    expected = region_spectrum(open_cube(line_cube), shape)
+    mark = loupe.spectrum_view.curve_marks[("core", 0)]
+    assert_allclose(mark.y, expected.value, rtol=1e-6)
+    assert_allclose(mark.x, expected.spectral_axis.to_value(u.GHz), rtol=1e-12)
+    assert name == "core" and loupe.regions[0]["kind"] == "circle"
+    assert loupe.spectrum_view.y_axis.label == "Jy"
+
+
+def test_drawn_box_becomes_a_region_only_on_release(loupe, line_cube):
+    sky = loupe.sky_view
+    sky.tool = "box"
+    assert sky.figure.interaction is sky.box_selector
+    sky.box_selector.brushing = True
+    sky.box_selector.selected_x = [10.0, 17.0]
+    sky.box_selector.selected_y = [9.0, 15.0]
+    assert loupe.regions == []
+    sky.box_selector.brushing = False
+    assert [r["name"] for r in loupe.regions] == ["R1"]
+    box = RectanglePixelRegion(PixCoord(13.5, 12.0), width=7, height=6)
+    expected = region_spectrum(open_cube(line_cube), box)
+    assert_allclose(loupe.spectrum_view.curve_marks[("R1", 0)].y, expected.value, rtol=1e-5)
+    assert len(sky.outlines) == 1
+
+
+def test_pixel_click_and_outline_regions(loupe, line_cube):
+    sky = loupe.sky_view
+    sky.tool = "pixel"
+    sky.pointer._handle_custom_msg({"event": "click", "domain": {"x": 5.2, "y": 6.9}}, [])
+    mask = np.zeros((NY, NX), bool)
+    mask[7, 5] = True
+    expected = region_spectrum(open_cube(line_cube), mask)
+    assert_allclose(loupe.spectrum_view.curve_marks[("R1", 0)].y, expected.value, rtol=1e-6)
+    sky.tool = "outline"
+    for x, y in ((10, 10), (18, 10), (14, 16)):
+        sky.pointer._handle_custom_msg({"event": "click", "domain": {"x": x, "y": y}}, [])
+    sky.pointer._handle_custom_msg({"event": "dblclick", "domain": {"x": 14, "y": 16}}, [])
+    assert [r["kind"] for r in loupe.regions] == ["pixel", "outline"]
+    assert ("R2", 0) in loupe.spectrum_view.curve_marks
+
+
+def test_regions_are_editable_and_removable(loupe):
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="a")
+    loupe.add_region(CirclePixelRegion(PixCoord(5, 5), radius=2), name="b")
+    loupe.region_list.recolor("a", "#123456")
+    assert loupe.spectrum_view.curve_marks[("a", 0)].colors == ["#123456"]
+    loupe.region_list.rename("b", "edge")
+    assert set(loupe.spectra) == {"a", "edge"}
+    loupe.remove_region("a")
+    assert [k[0] for k in loupe.spectrum_view.curve_marks] == ["edge"]
+    assert len(loupe.sky_view.outlines) == 1
+
+
+def test_region_outside_the_cube_is_reported_and_not_kept(loupe):
+    loupe.add_region(CirclePixelRegion(PixCoord(500, 500), radius=3), name="far")
+    assert loupe.status.level == "error"
+    assert "far" in loupe.status.message
+    assert loupe.regions == [] and loupe.spectra == {}
+
+
+# ----------------------------------------------------------------------------- spectrum view
+
+def test_marked_ranges_give_the_analysis_baseline_and_measurement(loupe, line_cube):
+    shape = CirclePixelRegion(PixCoord(14, 12), radius=3)
+    loupe.add_region(shape, name="core")
+    free, window = _mark_ranges(loupe)
+    assert loupe.line_free == [sorted(p) for p in free]
+    assert loupe.line_window == sorted(window)
+    spectrum = region_spectrum(open_cube(line_cube), shape)
+    expected_fit = fit_baseline(spectrum, u.Quantity(loupe.line_free, u.GHz), order=1)
+    fit = loupe.spectrum_view.fits[("core", 0)]
+    assert_allclose(fit.model.value, expected_fit.model.value, rtol=1e-10)
+    assert_allclose(loupe.spectrum_view.model_marks[("core", 0)].y, expected_fit.model.value, rtol=1e-10)
+    loupe.show_subtracted = True
+    assert_allclose(loupe.spectrum_view.curve_marks[("core", 0)].y, expected_fit.subtracted.value, rtol=1e-10)
+
+    m = measure_line(spectrum, u.Quantity(loupe.line_window, u.GHz), line_free=u.Quantity(loupe.line_free, u.GHz),
+                     order=1, rest_frequency=230.538 * u.GHz, z=0.0)
+    (row,) = loupe.measurements
+    assert row["flux"] == pytest.approx(m.flux.value) and row["flux_error"] == pytest.approx(m.flux_error.value)
+    assert row["centroid"] == pytest.approx(m.centroid.to_value(u.km / u.s))
+    assert row["snr"] == pytest.approx(m.snr)
+    # the injected line is at +30 km/s (radio, RESTFRQ 230.538 GHz): the suite agrees with the input
+    assert row["centroid"] == pytest.approx(LINE_V, abs=2.0)
+    assert loupe.measurement_table.rows == loupe.measurements
+
+
+def test_click_on_spectrum_moves_the_channel(loupe):
+    f = _freqs(loupe)
+    loupe.spectrum_view.clicker._handle_custom_msg({"event": "click", "domain": {"x": f[42] + 0.0001}}, [])
+    assert loupe.channel == 42
+    assert loupe.spectrum_view.cursor_mark.x[0] == pytest.approx(f[42])
+
+
+def test_velocity_axis_uses_the_chosen_convention(loupe):
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="core")
+    loupe.axis_kind = "velocity"
+    x = loupe.spectrum_view.curve_marks[("core", 0)].x
+    f = _freqs(loupe)
+    # radio velocity v = c (f0 - f) / f0 (Greisen et al. 2006, A&A 446, 747)
+    assert_allclose(x, 299792.458 * (230.538 - f) / 230.538, rtol=1e-9)
+    loupe.convention = "optical"
+    x = loupe.spectrum_view.curve_marks[("core", 0)].x
+    assert_allclose(x, 299792.458 * (230.538 - f) / f, rtol=1e-9)  # optical: c (f0 - f) / f
+
+
+def test_velocity_axis_without_a_line_measures_from_the_band_centre():
+    from cubeloupe.widgets import SpectrumView
+
+    view = SpectrumView()
+    view.band = (230.530, 230.538)
+    view.z = 0.5
+    view.axis_kind = "velocity"
+    assert view.axis_kind == "velocity"
+    assert view.status.level == "warning" and "band centre" in view.status.message
+    # the band centre 230.534 GHz observed is 345.801 GHz in the rest frame at z = 0.5
+    assert view.rest_frequency == pytest.approx(230.534 * 1.5)
+    assert view.x_of_frequency(230.534)[0] == pytest.approx(0.0, abs=1e-6)
+
+
+# ----------------------------------------------------------------------------- line overlay
+
+def test_markers_sit_at_rest_over_one_plus_z(cube_path, rng):
+    # 1 MHz channels from 230.538 GHz down: CO J=4-3 (461.0408 GHz, CDMS, from memory) is here at z ~ 1.0
+    loupe = Loupe(cube_path(rng.normal(size=(400, 6, 6))), z=1.0)
+    overlay = loupe.line_overlay
+    for z in (1.0, 1.0001, 0.9995):
+        loupe.z = z
+        lines = lines_in_band(230.538 / 1.005 * u.GHz, 230.139 * 1.005 * u.GHz, z, loupe.catalog)
+        assert list(overlay.lines["name"]) == list(lines["name"])
+        expected = u.Quantity(lines["rest_frequency"], u.GHz).value / (1 + z)
+        assert_allclose(overlay.marker_x, expected, rtol=1e-12)
+        assert_allclose(overlay.heads.x, expected, rtol=1e-12)
+    # the typed redshift field drives z
+    overlay.z_input.value = 1.0002
+    assert loupe.z == 1.0002
+    # a systemic shift of +100 km/s (radio): f = f_ref (1 - v/c) (Greisen et al. 2006)
+    loupe.velocity_offset = 100.0
+    assert_allclose(overlay.marker_x, expected * 0 + u.Quantity(overlay.lines["rest_frequency"], u.GHz).value
+                    / 2.0002 * (1 - 100 / 299792.458), rtol=1e-12)
+    # hover shows rest frequency, E_up, spin isomer and provenance
+    text = overlay.hover(0)
+    row = overlay.lines[0]
+    assert f"{u.Quantity(row['rest_frequency'], u.GHz).value:.6f}" in text
+    assert "E_up" in text and str(row["spin_isomer"]) in text and str(row["provenance"])[:10] in text
+
+
+def test_bad_redshift_is_refused_with_a_message(loupe):
+    loupe.line_overlay.z_input.value = 19.0
+    loupe.line_overlay.z_input.max = 100
+    loupe.line_overlay.z_input.value = 50.0
+    assert loupe.z == 19.0
+    assert loupe.status.level == "error" and "redshift" in loupe.status.message.lower()
+
+
+def test_marked_peaks_offer_redshift_candidates(cube_path, rng):
+    from cubeloupe.analysis.redshift_solver import redshift_candidates
+
+    loupe = Loupe(cube_path(rng.normal(size=(4, 6, 6)), crval3=100e9, cdelt3=100e9 / 3),
+                  z=0.0)
+    # CO J=4-3 and J=5-4 (461.0408 and 576.2679 GHz, CDMS, from memory) at z = 2.5
+    peaks = [461.040768 / 3.5, 576.267931 / 3.5]
+    loupe.spectrum_view.mode = "peaks"
+    for f in peaks:
+        loupe.spectrum_view.click(f)
+    assert loupe.peaks == pytest.approx(peaks)
+    expected = redshift_candidates(np.array(peaks) * u.GHz, loupe.catalog)
+    assert [c.z for c in loupe.line_overlay.candidates] == pytest.approx([c.z for c in expected])
+    loupe.line_overlay.use_candidate_index(0)
+    assert loupe.z == pytest.approx(expected[0].z)
+
+
+# ----------------------------------------------------------------------------- moments
+
+def test_moment_action_equals_moment_maps(loupe, line_cube):
+    _mark_ranges(loupe)
+    loupe.clip = 3.0
+    loupe.make_moments(wait=True)
+    assert loupe.moment_panel.state == "done" and loupe.moment_panel.progress == pytest.approx(1.0)
+    expected = moment_maps(open_cube(line_cube), u.Quantity(loupe.line_window, u.GHz),
+                           line_free=u.Quantity(loupe.line_free, u.GHz), order=1,
+                           rest_frequency=230.538 * u.GHz, clip=3.0)
+    for key in ("m0", "m1", "m2", "m0_error"):
+        assert_allclose(getattr(loupe.moments, key).value, getattr(expected, key).value, rtol=1e-6, equal_nan=True)
+    loupe.sky_source = "moment 1"
+    image, _ = display_image(expected.m1.value, loupe.sky_view.max_display_size)
+    lo, hi = display_limits(image)
+    assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi), rtol=1e-5, equal_nan=True)
+    loupe.sky_view.contour_source = "moment 0"
+    assert len(loupe.sky_view.contour_mark.x) > 0
+
+
+def test_moments_without_a_window_say_so(loupe):
+    assert loupe.make_moments(wait=True) is None
+    assert loupe.status.level == "error" and "line window" in loupe.status.message
+    assert not loupe.moment_panel.running
+
+
+def test_moments_can_be_stopped(loupe):
+    _mark_ranges(loupe)
+    panel = loupe.moment_panel
+    panel._cancel = None
+    import threading
+
+    gate = threading.Event()
+    original = panel._report_progress
+
+    def slow_progress(fraction):
+        original(fraction)
+        gate.wait(2)
+
+    panel._report_progress = slow_progress
+    panel.start()
+    panel.stop()
+    gate.set()
+    assert panel.wait(30)
+    assert panel.state in ("stopped", "done")  # a tiny cube may finish in its first block
+    assert not panel.running
+
+
+# ----------------------------------------------------------------------------- exports
+
+def test_exports_write_and_refuse_to_overwrite(loupe, tmp_path):
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="core")
+    _mark_ranges(loupe)
+    loupe.make_moments(wait=True)
+    maps = loupe.export_moments(tmp_path / "m.fits")
+    with fits.open(maps) as hdul:
+        assert hdul[0].header["BUNIT"].replace(" ", "") in ("Jy/beamkm/s", "beam-1Jykms-1", "Jy/beam.km/s") \
+            or "Jy" in hdul[0].header["BUNIT"]
+        assert hdul[0].header["BMAJ"] == pytest.approx(1 / 3600)  # cubefactory: 1" beam
+        assert hdul[0].header["CTYPE1"].startswith("RA")
+    with pytest.raises(OutputExistsError):
+        loupe.export_moments(tmp_path / "m.fits")
+    loupe.export_moments(tmp_path / "m.fits", overwrite=True)
+    spectra = loupe.export_spectra(tmp_path / "s.ecsv")
+    from astropy.table import Table
+
+    table = Table.read(spectra)
+    assert_allclose(table["value"], loupe.spectra["core"][0].value)
+    table = Table.read(loupe.export_measurements(tmp_path / "lines.ecsv"))
+    assert table["flux"][0] == pytest.approx(loupe.measurements[0]["flux"])
+    png = loupe.save_picture("sky", tmp_path / "sky.png")
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    loupe.save_picture("spectrum", tmp_path / "spec.svg")
+    with pytest.raises(OutputExistsError):
+        loupe.save_picture("sky", tmp_path / "sky.png")
+    # the export button reports instead of raising
+    loupe.export_name.value = str(tmp_path / "m")
+    before = (tmp_path / "m_moments.fits").exists()
+    loupe.export_box.children[1].children[0].click()
+    loupe.export_box.children[1].children[0].click()
+    assert not before and loupe.status.level == "error" and "exists" in loupe.status.message
+
+
+# ----------------------------------------------------------------------------- several windows
+
+def test_two_windows_share_regions_and_one_axis(cube_path, rng):
+    low = cube_path(rng.normal(size=(20, 24, 28)), crval3=230.0e9, cdelt3=-2e6)
+    high = cube_path(rng.normal(size=(30, 12, 14)), crval3=232.0e9, cdelt3=1e6, pixel=0.5)
+    loupe = Loupe([low, high])
+    shape = CirclePixelRegion(PixCoord(14.1, 12.1), radius=4)
+    loupe.add_region(shape, name="core")
+    # the region is kept on the sky: the second window (other grid) gets the same sky shape
+    sky = shape.to_sky(loupe.cubes[0].wcs.celestial)
+    for window, (path, region) in enumerate(((low, shape), (high, sky))):
+        expected = region_spectrum(open_cube(path), region)
+        assert_allclose(loupe.spectrum_view.curve_marks[("core", window)].y, expected.value, rtol=1e-6)
+    # clicking in the second window's range switches the sky view to it
+    loupe.spectrum_view.click(232.010)
+    assert loupe.window == 1 and loupe.channel == 10
+    assert loupe.sky_view.image.image.shape == (12, 14)
+    # a click in the gap between windows leaves the view where it is and says why
+    loupe.spectrum_view.click(231.0)
+    assert loupe.window == 1 and "gap" in loupe.status.message
+
+
+def test_unreadable_cube_shows_a_message(tmp_path):
+    bad = tmp_path / "not-a-cube.fits"
+    bad.write_text("hello")
+    loupe = Loupe(bad)
+    assert loupe.status.level == "error" and "not-a-cube.fits" in loupe.status.message
+    assert loupe.cubes == []

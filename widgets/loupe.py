@@ -1,0 +1,452 @@
+"""Loupe: the whole suite in one notebook cell — sky, spectra, lines, moments, measurements, exports.
+
+``Loupe("cube.fits", z=2.1)`` or ``Loupe([window1, window2], z=...)`` shows
+every part, linked. All of the suite's state is in traits on this object, so
+a notebook (or a test) can read and set it without a browser; every number
+shown comes from `cubeloupe.analysis`.
+
+Examples
+--------
+>>> from cubeloupe.widgets import Loupe                                  # doctest: +SKIP
+>>> loupe = Loupe(demo_path("disk"), z=0.0)                              # doctest: +SKIP
+>>> loupe.add_region(CircleSkyRegion(center, 1 * u.arcsec), name="core")  # doctest: +SKIP
+>>> loupe.line_window = [230.50, 230.56]   # GHz, observed                # doctest: +SKIP
+>>> loupe.measurements[0]["flux"]                                         # doctest: +SKIP
+"""
+
+import os
+
+import astropy.units as u
+import ipywidgets as w
+import numpy as np
+from traitlets import Bool, Enum, Float, Instance, Int, List, TraitError, Unicode, link, observe, validate
+
+from cubeloupe.analysis.catalog import load_catalog
+from cubeloupe.analysis.cubes import open_cube
+from cubeloupe.analysis.display import AXIS_KINDS, channel_at, display_axis
+from cubeloupe.analysis.errors import CubeloupeError, RegionError, SpectralAxisError
+from cubeloupe.analysis.export import write_maps, write_spectra
+from cubeloupe.analysis.lines import measure_line
+from cubeloupe.analysis.luminosity import line_luminosity
+from cubeloupe.analysis.spectra import region_spectrum
+from cubeloupe.analysis.spectral import CONVENTIONS
+
+from .channel_bar import ChannelBar
+from .line_overlay import LineOverlay
+from .measurement_table import MeasurementTable, row_from
+from .moment_panel import MomentPanel
+from .region_list import RegionList
+from .sky_view import SkyView
+from .snapshot import render_sky, render_spectrum
+from .spectrum_view import SpectrumView
+from .status import StatusLine
+
+__all__ = ["Loupe"]
+
+
+def _source_name(cube, index):
+    path = cube.meta.get("cubeloupe_source", {}).get("path")
+    return os.path.basename(path) if path else f"window {index}"
+
+
+class Loupe(w.VBox):
+    """Linked sky view, spectrum view, line overlay, moment maps and measurements for line cubes.
+
+    Parameters
+    ----------
+    cubes : str, Path, SpectralCube, or a list of them
+        One cube, or the spectral windows of one delivery (each may have its own channel
+        width, beam and pixel grid).
+    z : float
+        Source redshift.
+    catalog : str, Path, Table or list, optional
+        Extra line lists merged into the bundled catalog (see `load_catalog`), or a Table
+        from `load_catalog` used as is.
+    rest_frequency : Quantity [frequency], optional
+        Line velocities refer to; by default the file's RESTFRQ at z = 0, or the first
+        catalog line in the band.
+    convention : {'radio', 'optical', 'relativistic'}
+
+    Attributes
+    ----------
+    window, channel, z, velocity_offset, rest_frequency, convention, axis_kind, regions,
+    line_free, line_window, peaks, baseline_order, show_subtracted, clip, moments, measurements,
+    magnification, cosmology, sky_source
+        The suite's state (see each trait's help); all readable and settable from code.
+    cubes : list of SpectralCube
+    spectra : dict
+        Region name -> list of OneDSpectrum (None where a window has no pixels of the region).
+    """
+
+    window = Int(0, help="Spectral window (index into cubes) shown on the sky")
+    channel = Int(0, help="Channel of the current window shown on the sky")
+    z = Float(0.0, help="Source redshift")
+    velocity_offset = Float(0.0, help="Systemic velocity shift (km/s) applied to the catalog line markers")
+    rest_frequency = Float(0.0, help="Rest frequency (GHz) of the line velocities refer to (0: the file's RESTFRQ)")
+    reference_line = Unicode("", help="Catalog name of the line velocities refer to ('' for none)")
+    convention = Enum(list(CONVENTIONS), "radio", help="Velocity convention")
+    axis_kind = Enum(list(AXIS_KINDS), "observed frequency", help="x axis of the spectrum view")
+    regions = List(help="Regions as dicts (name, color, kind, sky shape); see RegionList")
+    line_free = List(help="Line-free ranges, [[low, high], ...] observed frequency in GHz")
+    line_window = List(help="Line window, [low, high] observed frequency in GHz (empty: none)")
+    peaks = List(help="Marked peak positions, observed frequency in GHz")
+    baseline_order = Int(1, help="Order of the polynomial baseline (0 to 5)")
+    show_subtracted = Bool(False, help="Show spectra with the baseline subtracted")
+    clip = Float(None, allow_none=True, help="Clip level for moments 1 and 2, in units of the pixel rms")
+    sky_source = Unicode("channel", help="What the sky view shows: 'channel' or a moment map name")
+    moments = Instance(object, allow_none=True, help="The last MomentMaps result (read-only)")
+    measurements = List(help="Line measurements per region and window (read-only; see MeasurementTable)")
+    magnification = Float(1.0, help="Lensing magnification divided out of luminosities")
+    cosmology = Unicode("Planck18", help="astropy cosmology used for luminosities")
+
+    def __init__(self, cubes, z=0.0, catalog=None, rest_frequency=None, convention="radio", **kwargs):
+        self.status = StatusLine()
+        self.cubes = []
+        self.spectra = {}
+        self._region_keys = {}
+        self._measure_enabled = False
+        items = cubes if isinstance(cubes, (list, tuple)) else [cubes]
+        for item in items:
+            with self.status.guard(f"opening {item if isinstance(item, (str, os.PathLike)) else 'a cube'}"):
+                self.cubes.append(open_cube(item) if isinstance(item, (str, os.PathLike)) else item)
+        title = w.HTML("<div style='font-size:120%;font-weight:600;color:#243b53'>cubeloupe "
+                       "<span style='font-weight:400;color:#7b8794'>· line cube inspection</span></div>")
+        if not self.cubes:
+            super().__init__(children=[title, self.status], **kwargs)
+            self.add_class("cubeloupe-loupe")
+            if not self.status.message:
+                self.status.error("No cube to show: pass the path of a FITS line cube, e.g. Loupe('cube.fits').")
+            return
+        problem = self.status.message if self.status.level == "error" else ""
+        self.catalog = self._load_catalog(catalog)
+        self._build()
+        super().__init__(children=self._layout(title), **kwargs)
+        self.add_class("cubeloupe-loupe")
+        self._link_parts()
+        with self.status.guard("setting the redshift and line"):
+            self.convention = convention
+            self.z = z
+            self._choose_rest_frequency(rest_frequency)
+        self._measure_enabled = True
+        if problem:
+            self.status.error(problem)
+
+    # ------------------------------------------------------------- building
+    def _load_catalog(self, catalog):
+        from astropy.table import Table
+
+        if isinstance(catalog, Table):
+            return catalog
+        result = None
+        with self.status.guard("loading the line catalog"):
+            result = load_catalog(extra=catalog)
+        return result if result is not None else load_catalog()
+
+    def _build(self):
+        self.sky_view = SkyView(self.cubes, status=self.status)
+        self.channel_bar = ChannelBar(self.cubes[0])
+        self.region_list = RegionList(self.cubes[0].wcs)
+        self.spectrum_view = SpectrumView(status=self.status)
+        self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
+        band = (min(f.min() for f in self._frequencies), max(f.max() for f in self._frequencies))
+        self.spectrum_view.band = band
+        self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=self.status)
+        self.moment_panel = MomentPanel(self._moment_inputs, status=self.status)
+        self.measurement_table = MeasurementTable()
+        self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
+                                                 for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
+                                        description="Window",
+                                        tooltip="Which spectral window (cube) the sky view shows",
+                                        layout=w.Layout(width="460px",
+                                                        display="" if len(self.cubes) > 1 else "none"))
+        self.window_choice.add_class("cubeloupe-window-choice")
+        self.export_box = self._build_exports()
+
+    def _build_exports(self):
+        self.export_name = w.Text(value="cubeloupe", description="File stem",
+                                  tooltip="Start of the names of the files written; the kind of "
+                                                      "file and its extension are added",
+                                  layout=w.Layout(width="320px"))
+        self.export_overwrite = w.Checkbox(value=False, description="Replace existing files", indent=False,
+                                           tooltip="Allow writing over files of the same name")
+        buttons = []
+        for label, icon, tip, action in (
+            ("Moment maps (FITS)", "file", "Write the moment maps as FITS images with sky coordinates, beam "
+                                           "and units", lambda stem, ow: self.export_moments(f"{stem}_moments.fits", ow)),
+            ("Spectra (ECSV)", "table", "Write every region's spectrum as a text table",
+             lambda stem, ow: self.export_spectra(f"{stem}_spectra.ecsv", ow)),
+            ("Measurements (ECSV)", "list", "Write the measurement table as a text table",
+             lambda stem, ow: self.export_measurements(f"{stem}_lines.ecsv", ow)),
+            ("Pictures (PNG)", "image", "Draw the sky and spectrum views to PNG files (made in the kernel, "
+                                        "no browser needed)",
+             lambda stem, ow: [self.save_picture("sky", f"{stem}_sky.png", ow),
+                               self.save_picture("spectrum", f"{stem}_spectrum.png", ow)]),
+        ):
+            button = w.Button(description=label, icon=icon, tooltip=tip, layout=w.Layout(width="190px"))
+            button.add_class("cubeloupe-export-" + label.split()[0].lower())
+            button.on_click(lambda _, action=action, label=label: self._export_clicked(action, label))
+            buttons.append(button)
+        return w.VBox([w.HBox([self.export_name, self.export_overwrite]), w.HBox(buttons)])
+
+    def _export_clicked(self, action, label):
+        with self.status.guard(f"writing {label}"):
+            written = action(self.export_name.value.strip() or "cubeloupe", self.export_overwrite.value)
+            written = written if isinstance(written, list) else [written]
+            self.status.info("Written: " + ", ".join(str(p) for p in written))
+
+    def _layout(self, title):
+        tabs = w.Tab(children=[self.moment_panel, self.measurement_table, self.export_box])
+        for i, name in enumerate(("Moment maps", "Measurements", "Export")):
+            tabs.set_title(i, name)
+        left = w.VBox([self.window_choice, self.sky_view, self.channel_bar, self.region_list],
+                      layout=w.Layout(width="600px"))
+        right = w.VBox([self.spectrum_view, self.line_overlay], layout=w.Layout(flex="1 1 auto"))
+        return [title, self.status, w.HBox([left, right]), tabs]
+
+    def _link_parts(self):
+        sv, sp, lo, rl, mp, mt, cb = (self.sky_view, self.spectrum_view, self.line_overlay, self.region_list,
+                                      self.moment_panel, self.measurement_table, self.channel_bar)
+        link((self, "window"), (sv, "window"))
+        link((self, "window"), (self.window_choice, "value"))
+        link((self, "channel"), (sv, "channel"))
+        link((self, "channel"), (cb, "channel"))
+        link((self, "sky_source"), (sv, "source"))
+        for name in ("z", "velocity_offset", "reference_line"):
+            link((self, name), (lo, name))
+        for name in ("z", "rest_frequency", "convention", "axis_kind", "line_free", "line_window", "peaks",
+                     "baseline_order", "show_subtracted"):
+            link((self, name), (sp, name))
+        for name in ("z", "rest_frequency", "convention"):
+            link((self, name), (cb, name))
+        link((self, "regions"), (rl, "regions"))
+        link((self, "clip"), (mp, "clip"))
+        link((self, "magnification"), (mt, "magnification"))
+        link((self, "cosmology"), (mt, "cosmology"))
+        sv.on_shape(self._on_shape)
+        sp.on_pick(self.go_to_frequency)
+        mp.observe(self._on_moments, names=["maps"])
+
+    def _choose_rest_frequency(self, rest_frequency):
+        if rest_frequency is not None:
+            self.rest_frequency = float(u.Quantity(rest_frequency).to_value(u.GHz, equivalencies=u.spectral()))
+            return
+        restfrq = getattr(self.cubes[0].wcs.wcs, "restfrq", 0) or 0
+        if self.z == 0 and restfrq:
+            self.rest_frequency = restfrq / 1e9
+            return
+        lines = self.line_overlay.lines
+        if lines is not None and len(lines):
+            # The lowest-energy line in the band is the usual first guess of what is seen.
+            first = int(np.argmin(np.nan_to_num(np.asarray(lines["E_up"], dtype=float), nan=np.inf)))
+            self.reference_line = str(lines["name"][first])
+
+    # ----------------------------------------------------------- validation
+    @validate("window")
+    def _valid_window(self, proposal):
+        return self.sky_view._valid_window(proposal) if self.cubes else 0
+
+    @validate("channel")
+    def _valid_channel(self, proposal):
+        if not self.cubes:
+            return 0
+        return int(min(max(proposal["value"], 0), self.cube.shape[0] - 1))
+
+    @validate("sky_source")
+    def _valid_sky_source(self, proposal):
+        if proposal["value"] != "channel" and proposal["value"] not in self.sky_view.maps:
+            raise TraitError(f"{proposal['value']!r} cannot be shown; choose from "
+                             f"{['channel', *self.sky_view.maps]}")
+        return proposal["value"]
+
+    # ------------------------------------------------------------ reacting
+    @observe("window")
+    def _on_window(self, change):
+        self.channel_bar.set_cube(self.cube)
+        self.region_list.wcs = self.cube.wcs
+        self.sky_view.outlines = self.region_list.outlines_for(self.cube)
+        if self.moment_panel.maps and self.moment_panel.window_index == self.window:
+            self.sky_view.maps = self.moment_panel.maps
+        self._update_cursor()
+
+    @observe("channel")
+    def _update_cursor(self, change=None):
+        self.spectrum_view.cursor_frequency = float(self._frequencies[self.window][self.channel])
+
+    @observe("regions")
+    def _on_regions(self, change):
+        with self.status.guard("updating the region spectra"):
+            self._sync_spectra()
+
+    def _sync_spectra(self):
+        current = {r["name"]: r for r in self.regions}
+        for name in [n for n in self._region_keys if n not in current]:
+            self._region_keys.pop(name)
+            self.spectra.pop(name, None)
+            self.spectrum_view.drop_spectra(name)
+        failed = []
+        for name, item in current.items():
+            key = {k: v for k, v in item.items() if k != "color"}
+            if self._region_keys.get(name) == key:
+                if self.spectrum_view.spectra.get(name, {}).get("color") != item["color"]:
+                    self.spectrum_view.recolor(name, item["color"])
+                continue
+            spectra, notes = [], []
+            for index, cube in enumerate(self.cubes):
+                try:
+                    spectra.append(region_spectrum(cube, self.region_list.region_for(name, cube)))
+                except RegionError as exc:
+                    spectra.append(None)
+                    notes.append(f"window {index}: {exc}")
+            if all(s is None for s in spectra):
+                failed.append((name, "; ".join(notes)))
+                continue
+            self._region_keys[name] = key
+            self.spectra[name] = spectra
+            self.spectrum_view.set_spectra(name, item["color"], spectra)
+            if notes and len(self.cubes) > 1:
+                self.status.warn(f"Region {name} has no spectrum in " + "; ".join(notes))
+        self.sky_view.outlines = self.region_list.outlines_for(self.cube) if not failed else []
+        if failed:
+            # Keep the state consistent: a region with no spectrum anywhere is not kept.
+            bad = {name for name, _ in failed}
+            self.regions = [r for r in self.regions if r["name"] not in bad]
+            self.status.error("Could not make a spectrum for " + "; ".join(f"region {n}: {why}" for n, why in failed))
+            return
+        self._measure()
+
+    def _on_shape(self, kind, params):
+        self.region_list.wcs = self.cube.wcs
+        shape = self.region_list.from_gesture(kind, params, self.cube.wcs)
+        if self.region_list.reshape and self.region_list.selected:
+            self.region_list.replace(self.region_list.selected, shape)
+        else:
+            self.region_list.add(shape)
+
+    @observe("line_window", "line_free", "baseline_order", "z", "rest_frequency", "convention", "magnification",
+             "cosmology")
+    def _on_measure_inputs(self, change):
+        self._measure()
+
+    def _on_moments(self, change):
+        self.moments = self.moment_panel.result
+        if self.moment_panel.window_index == self.window:
+            self.sky_view.maps = dict(self.moment_panel.maps)
+
+    # ------------------------------------------------------------- actions
+    @property
+    def cube(self):
+        """The cube of the current window."""
+        return self.cubes[self.window]
+
+    def add_region(self, shape, name=None, color=None):
+        """Add a `regions` shape (sky, or pixel in the current window's grid); returns its name.
+
+        Problems are shown in the status line (and None returned).
+        """
+        with self.status.guard("adding a region"):
+            return self.region_list.add(shape, name=name, color=color)
+        return None
+
+    def remove_region(self, name):
+        with self.status.guard(f"removing region {name}"):
+            self.region_list.remove(name)
+
+    def go_to_frequency(self, frequency):
+        """Show the channel nearest to observed ``frequency`` (GHz), switching window if needed."""
+        for index in [self.window] + [i for i in range(len(self.cubes)) if i != self.window]:
+            channel = channel_at(self._frequencies[index] * u.GHz, frequency * u.GHz)
+            if channel is not None:
+                self.window = index
+                self.channel = channel
+                return channel
+        self.status.warn(f"{frequency:.6f} GHz lies in none of the spectral windows (in a gap between them).")
+        return None
+
+    def _ranges_in(self, index, ranges):
+        f = self._frequencies[index]
+        return [r for r in ranges if r[1] >= f.min() and r[0] <= f.max()]
+
+    def _rest(self):
+        return self.rest_frequency * u.GHz if self.rest_frequency > 0 else None
+
+    def _line_label(self):
+        if self.reference_line:
+            return self.reference_line
+        return f"{self.rest_frequency:.4f} GHz" if self.rest_frequency > 0 else "line"
+
+    def _measure(self):
+        if not self._measure_enabled:
+            return
+        rows = []
+        with self.status.guard("measuring the line"):
+            if not self.line_window or not self.spectra:
+                return
+            if self.z != 0 and self._rest() is None:
+                raise SpectralAxisError("velocities need a line: pick it under 'Velocity of' (or set "
+                                        "rest_frequency) before measuring")
+            window = u.Quantity(self.line_window, u.GHz)
+            for name, spectra in self.spectra.items():
+                for index, spectrum in enumerate(spectra):
+                    if spectrum is None or not self._ranges_in(index, [self.line_window]):
+                        continue
+                    free = self._ranges_in(index, self.line_free)
+                    m = measure_line(spectrum, window, line_free=u.Quantity(free, u.GHz) if free else None,
+                                     order=self.baseline_order, rest_frequency=self._rest(), z=self.z,
+                                     convention=self.convention)
+                    lum = err = None
+                    if self.z > 0 and self._rest() is not None and m.flux.unit.is_equivalent(u.Jy * u.km / u.s):
+                        lum = line_luminosity(m.flux, self.z, self._rest(), cosmology=self.cosmology,
+                                              magnification=self.magnification)
+                        err = line_luminosity(m.flux_error, self.z, self._rest(), cosmology=self.cosmology,
+                                              magnification=self.magnification)
+                    rows.append(row_from(name, index, self._line_label(), m, lum, err))
+        self.measurements = rows
+        self.measurement_table.rows = rows
+
+    def _moment_inputs(self):
+        if not self.line_window:
+            raise SpectralAxisError("no line window yet: choose 'Line window' above the spectrum and drag across "
+                                    "the line first")
+        free = self._ranges_in(self.window, self.line_free)
+        return {"cube": self.cube, "window": u.Quantity(self.line_window, u.GHz),
+                "line_free": u.Quantity(free, u.GHz) if free else None, "order": self.baseline_order,
+                "rest_frequency": self._rest(), "z": self.z, "convention": self.convention,
+                "window_index": self.window}
+
+    def make_moments(self, wait=False):
+        """Start the moment maps of the current window (in a background thread); optionally wait."""
+        thread = self.moment_panel.start()
+        if wait and thread is not None:
+            self.moment_panel.wait()
+        return thread
+
+    # ------------------------------------------------------------- exports
+    def export_moments(self, path, overwrite=False):
+        """Write the last moment maps to one FITS file (WCS, beam and BUNIT kept)."""
+        if not self.moment_panel.maps:
+            raise CubeloupeError("there are no moment maps yet; make them first ('Make moment maps')")
+        return write_maps(self.moment_panel.maps, path, overwrite=overwrite,
+                          history=f"cubeloupe moment maps, window {self.line_window} GHz, z={self.z}")
+
+    def export_spectra(self, path, overwrite=False):
+        """Write every region's spectra (all windows) to one ECSV file."""
+        return write_spectra(self.spectra, path, overwrite=overwrite)
+
+    def export_measurements(self, path, overwrite=False):
+        """Write the measurement table to ECSV."""
+        if not self.measurements:
+            raise CubeloupeError("there are no measurements yet; add a region and mark the line window")
+        return self.measurement_table.export_ecsv(path, overwrite=overwrite)
+
+    def save_picture(self, view, path, overwrite=False):
+        """Draw the 'sky' or 'spectrum' view to PNG/SVG/PDF with matplotlib (works without a browser).
+
+        For a pixel-exact copy of what the browser shows use ``loupe.sky_view.figure.save_png()``
+        (or ``save_svg``): bqplot makes those in the browser, which downloads the file; they do
+        nothing when no browser is attached.
+        """
+        if view == "sky":
+            return render_sky(self.sky_view, path, overwrite=overwrite)
+        if view == "spectrum":
+            return render_spectrum(self.spectrum_view, path, overwrite=overwrite)
+        raise CubeloupeError(f"unknown view {view!r}; choose 'sky' or 'spectrum'")

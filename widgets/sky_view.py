@@ -1,0 +1,488 @@
+"""SkyView: one channel (or a moment map) of a cube on the sky, with colour bar, beam and regions.
+
+The image shown is a display copy: the plane is read from the memory map
+(nothing else is read) and block-averaged to ``max_display_size`` by
+`cubeloupe.analysis.display.display_image`; limits and stretch come from the
+same module. Drawing tools turn mouse gestures into region shapes, which are
+handed to whoever listens (`on_shape`), usually a `RegionList`.
+"""
+
+import ipywidgets as w
+import numpy as np
+from bqplot import Axis, ColorScale, Figure, LinearScale, Lines, Scatter
+from bqplot_image_gl import ImageGL
+from bqplot_image_gl.interacts import BrushEllipseSelector, BrushRectangleSelector, MouseInteraction
+from traitlets import Bool, Dict, Enum, Float, Instance, Int, List, TraitError, Unicode, observe, validate
+
+from cubeloupe.analysis.beams import cube_beam
+from cubeloupe.analysis.display import (
+    STRETCHES,
+    beam_outline,
+    contour_paths,
+    display_image,
+    display_limits,
+    sky_position,
+    stretched,
+)
+from cubeloupe.analysis.errors import BeamError
+
+from ._look import RAMPS
+from .status import StatusLine
+
+__all__ = ["SkyView", "TOOLS"]
+
+# Drawing tools: value -> (button label, icon, tooltip)
+TOOLS = {
+    "look": ("Look", "eye", "Move the pointer over the image to read sky position and value"),
+    "box": ("Box", "square-o", "Drag a box on the image to make a rectangular region"),
+    "oval": ("Oval", "circle-o", "Drag on the image to make an elliptical region"),
+    "outline": ("Outline", "pencil", "Click corner after corner to outline a free-form region; "
+                                     "double-click (or press Close outline) to finish it"),
+    "pixel": ("Pixel", "crosshairs", "Click one pixel to make a one-pixel region"),
+}
+
+
+class SkyView(w.VBox):
+    """The sky image of one spectral window: a channel or a moment map.
+
+    Parameters
+    ----------
+    cubes : list of SpectralCube
+        One cube per spectral window; `window` picks the one shown.
+    status : StatusLine, optional
+        Where problems are reported (a new one by default).
+
+    Attributes
+    ----------
+    window, channel, source, stretch, palette, lower_percentile, upper_percentile,
+    vmin, vmax, max_display_size, tool, show_beam, contour_source, contour_levels,
+    pointer_text, shown_limits, outlines, maps
+        See each trait's help.
+    """
+
+    window = Int(0, help="Index of the spectral window (cube) shown")
+    channel = Int(0, help="Channel of the current window shown when source is 'channel'")
+    source = Unicode("channel", help="What the image shows: 'channel' or the name of a map in `maps`")
+    maps = Dict(help="Extra 2-D maps that can be shown or contoured, name -> spectral-cube Projection "
+                     "(e.g. moment maps of the current window)")
+    stretch = Enum(list(STRETCHES), "linear", help="How values map to colours between the limits")
+    palette = Enum(list(RAMPS), "ink to sand", help="Colour ramp of the image")
+    lower_percentile = Float(0.5, help="Percentile of the shown pixels used as the lower limit when vmin is None")
+    upper_percentile = Float(99.5, help="Percentile of the shown pixels used as the upper limit when vmax is None")
+    vmin = Float(None, allow_none=True, help="Fixed lower colour limit in data units (None: percentile)")
+    vmax = Float(None, allow_none=True, help="Fixed upper colour limit in data units (None: percentile)")
+    shown_limits = List(help="The colour limits in use, [low, high] in data units (read-only)")
+    max_display_size = Int(512, help="Largest side of the image sent to the browser, in display pixels; "
+                                     "bigger planes are block-averaged")
+    display_factor = Int(1, help="Block size of the last block-averaging (1: full resolution; read-only)")
+    tool = Enum(list(TOOLS), "look", help="What a mouse gesture on the image does")
+    show_beam = Bool(True, help="Draw the beam (FWHM ellipse) to scale in the lower left corner")
+    contour_source = Unicode("", help="Name of a map in `maps` drawn as contours ('' for none)")
+    contour_levels = List(Float(), help="Contour levels in the contour map's units (empty: five levels "
+                                        "between its percentile limits)")
+    pointer_text = Unicode("", help="Sky position and value under the pointer, as shown")
+    outlines = List(Dict(), help="Region outlines to draw, dicts with name, color, x, y (pixel coordinates)")
+    polygon_vertices = List(help="Vertices [x, y] of the outline being drawn with the 'outline' tool")
+
+    def __init__(self, cubes, status=None, **kwargs):
+        self.cubes = list(cubes)
+        self.status = status or StatusLine()
+        self._shape_callbacks = []
+        self._beam_cache = {}
+        self._outline_key = None
+        self._outline = None
+        self._plane = None
+        self._build()
+        super().__init__(children=[self._toolbar, w.HBox([self.figure, self.colorbar]), self._pointer],
+                         **kwargs)
+        self.add_class("cubeloupe-sky-view")
+        self._refresh_geometry()
+        self._redraw()
+
+    # ------------------------------------------------------------- building
+    def _build(self):
+        self.x_scale = LinearScale(allow_padding=False)
+        self.y_scale = LinearScale(allow_padding=False)
+        self.color_scale = ColorScale(min=0.0, max=1.0, colors=RAMPS[self.palette])
+        scales = {"x": self.x_scale, "y": self.y_scale}
+        self.image = ImageGL(image=np.zeros((2, 2), np.float32), scales={**scales, "image": self.color_scale})
+        self.contour_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=1, opacities=[0.8])
+        self.beam_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], fill="inside",
+                               fill_colors=["#ffffff"], fill_opacities=[0.35], stroke_width=1.5)
+        self.outline_marks = []
+        self.draft_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], line_style="dashed")
+        self.draft_points = Scatter(x=[], y=[], scales=scales, colors=["#ffffff"], default_size=24)
+        axes = [Axis(scale=self.x_scale, label="x (pixel)", grid_lines="none"),
+                Axis(scale=self.y_scale, side="left", label="y (pixel)", grid_lines="none")]
+        self.figure = Figure(marks=[self.image, self.contour_mark, self.beam_mark, self.draft_mark,
+                                    self.draft_points],
+                             axes=axes, padding_x=0, padding_y=0,
+                             fig_margin={"top": 10, "bottom": 40, "left": 50, "right": 10},
+                             layout=w.Layout(width="460px", height="460px"))
+        self.figure.add_class("cubeloupe-sky-figure")
+        # Colour bar: the ramp drawn against data values, so its ticks read in data units.
+        self._bar_scale = LinearScale(allow_padding=False)
+        self._bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
+                                  scales={"x": LinearScale(min=0, max=1), "y": self._bar_scale,
+                                          "image": self.color_scale}, x=(0, 1))
+        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="",
+                              grid_lines="none")
+        self.colorbar = Figure(marks=[self._bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
+                               fig_margin={"top": 10, "bottom": 40, "left": 4, "right": 70},
+                               layout=w.Layout(width="110px", height="460px"))
+        self.colorbar.add_class("cubeloupe-colorbar")
+
+        self.pointer = MouseInteraction(x_scale=self.x_scale, y_scale=self.y_scale,
+                                        events=["click", "dblclick", "mousemove", "mouseleave"])
+        self.pointer.on_msg(self._on_pointer_msg)
+        self.box_selector = BrushRectangleSelector(x_scale=self.x_scale, y_scale=self.y_scale,
+                                                   color="#ffffff")
+        self.oval_selector = BrushEllipseSelector(x_scale=self.x_scale, y_scale=self.y_scale,
+                                                  color="#ffffff")
+        for selector, kind in ((self.box_selector, "box"), (self.oval_selector, "oval")):
+            selector.observe(lambda change, kind=kind: self._on_brush(kind, change), names=["brushing"])
+        self.figure.interaction = self.pointer
+
+        self.tool_buttons = w.ToggleButtons(
+            options=[(label, key) for key, (label, _, _) in TOOLS.items()],
+            tooltips=[tip for _, _, tip in TOOLS.values()],
+            icons=[icon for _, icon, _ in TOOLS.values()],
+            style=w.ToggleButtonsStyle(button_width="78px"))
+        self.tool_buttons.add_class("cubeloupe-region-tools")
+        w.link((self.tool_buttons, "value"), (self, "tool"))
+        self.close_outline_button = w.Button(description="Close outline", icon="check",
+                                             tooltip="Finish the free-form outline you are clicking",
+                                             layout=w.Layout(width="120px", display="none"))
+        self.close_outline_button.on_click(lambda _: self.finish_outline())
+        self.stretch_choice = w.Dropdown(options=list(STRETCHES), description="Stretch",
+                                         tooltip="How brightness maps to colour: 'linear' is even; "
+                                                             "'sqrt', 'log' and 'asinh' bring out faint emission",
+                                         layout=w.Layout(width="170px"))
+        self.stretch_choice.add_class("cubeloupe-stretch")
+        w.link((self.stretch_choice, "value"), (self, "stretch"))
+        self.palette_choice = w.Dropdown(options=list(RAMPS), description="Colours",
+                                         tooltip="Colour ramp used for the image",
+                                         layout=w.Layout(width="190px"))
+        w.link((self.palette_choice, "value"), (self, "palette"))
+        self.limits_slider = w.FloatRangeSlider(value=(0.5, 99.5), min=0, max=100, step=0.1,
+                                                description="Clip %", readout_format=".1f",
+                                                tooltip="Colour limits as percentiles of the shown "
+                                                                    "pixels: values outside are drawn at the ends "
+                                                                    "of the colour ramp",
+                                                layout=w.Layout(width="300px"))
+        self.limits_slider.add_class("cubeloupe-limits")
+        self.limits_slider.observe(self._on_limits_slider, names="value")
+        self.beam_toggle = w.Checkbox(value=True, description="Beam", indent=False,
+                                      tooltip="Show the telescope's beam (resolution) to scale "
+                                                          "in the lower left corner",
+                                      layout=w.Layout(width="80px"))
+        w.link((self.beam_toggle, "value"), (self, "show_beam"))
+        self.source_choice = w.Dropdown(options=[("channel", "channel")], description="Show",
+                                        tooltip="Show the current channel, or a moment map once "
+                                                            "one has been made",
+                                        layout=w.Layout(width="220px"))
+        self.source_choice.add_class("cubeloupe-source")
+        w.link((self.source_choice, "value"), (self, "source"))
+        self.contour_choice = w.Dropdown(options=[("none", "")], description="Contours",
+                                         tooltip="Draw contour lines of a moment map over the image",
+                                         layout=w.Layout(width="220px"))
+        w.link((self.contour_choice, "value"), (self, "contour_source"))
+        self._toolbar = w.VBox([
+            w.HBox([self.tool_buttons, self.close_outline_button]),
+            w.HBox([self.source_choice, self.contour_choice, self.beam_toggle]),
+            w.HBox([self.stretch_choice, self.palette_choice, self.limits_slider]),
+        ])
+        self._pointer = w.HTML(value="&nbsp;")
+        self._pointer.add_class("cubeloupe-pointer")
+
+    # ------------------------------------------------------------ validation
+    @property
+    def cube(self):
+        """The cube of the current window."""
+        return self.cubes[self.window]
+
+    @validate("window")
+    def _valid_window(self, proposal):
+        value = proposal["value"]
+        if not 0 <= value < len(self.cubes):
+            raise TraitError(f"window {value} does not exist; there are {len(self.cubes)} window(s), "
+                             f"numbered 0 to {len(self.cubes) - 1}")
+        return value
+
+    @validate("channel")
+    def _valid_channel(self, proposal):
+        n = self.cubes[self.window].shape[0]
+        return int(min(max(proposal["value"], 0), n - 1))
+
+    @validate("source", "contour_source")
+    def _valid_source(self, proposal):
+        value = proposal["value"]
+        allowed = set(self.maps) | ({"channel"} if proposal["trait"].name == "source" else {""})
+        if value not in allowed:
+            raise TraitError(f"{value!r} cannot be shown; choose from {sorted(allowed)}")
+        return value
+
+    @validate("lower_percentile", "upper_percentile")
+    def _valid_percentile(self, proposal):
+        value = float(proposal["value"])
+        if not 0 <= value <= 100:
+            raise TraitError(f"{proposal['trait'].name} must be between 0 and 100; got {value}")
+        return value
+
+    @validate("max_display_size")
+    def _valid_size(self, proposal):
+        if proposal["value"] < 16:
+            raise TraitError(f"max_display_size must be at least 16 pixels; got {proposal['value']}")
+        return proposal["value"]
+
+    # -------------------------------------------------------------- reacting
+    @observe("window")
+    def _on_window(self, change):
+        with self.hold_trait_notifications():
+            self.channel = min(self.channel, self.cube.shape[0] - 1)
+            self.maps = {}
+        self._refresh_geometry()
+        self._redraw()
+
+    @observe("maps")
+    def _on_maps(self, change):
+        names = list(self.maps)
+        if self.source not in names and self.source != "channel":
+            self.source = "channel"
+        if self.contour_source not in names:
+            self.contour_source = ""
+        self.source_choice.options = [("channel", "channel")] + [(n, n) for n in names]
+        self.contour_choice.options = [("none", "")] + [(n, n) for n in names]
+        self._redraw()
+
+    @observe("channel")
+    def _on_channel(self, change):
+        if self.source == "channel":
+            self._redraw()
+        elif self.show_beam:
+            self._draw_beam()
+
+    @observe("source", "stretch", "lower_percentile", "upper_percentile", "vmin", "vmax", "max_display_size")
+    def _on_look(self, change):
+        self._redraw()
+
+    @observe("palette")
+    def _on_palette(self, change):
+        self.color_scale.colors = RAMPS[self.palette]
+
+    @observe("show_beam")
+    def _on_show_beam(self, change):
+        self._draw_beam()
+
+    @observe("contour_source", "contour_levels")
+    def _on_contours(self, change):
+        with self.status.guard("drawing contours"):
+            self._draw_contours()
+
+    @observe("outlines")
+    def _on_outlines(self, change):
+        self._draw_outlines()
+
+    @observe("tool")
+    def _on_tool(self, change):
+        self.figure.interaction = {"box": self.box_selector, "oval": self.oval_selector}.get(self.tool,
+                                                                                             self.pointer)
+        self.close_outline_button.layout.display = "" if self.tool == "outline" else "none"
+        if change.old == "outline":
+            self.polygon_vertices = []
+
+    @observe("polygon_vertices")
+    def _on_vertices(self, change):
+        xy = np.asarray(self.polygon_vertices, dtype=float).reshape(-1, 2)
+        with self.figure.hold_sync():
+            self.draft_mark.x, self.draft_mark.y = xy[:, 0], xy[:, 1]
+            self.draft_points.x, self.draft_points.y = xy[:, 0], xy[:, 1]
+
+    def _on_limits_slider(self, change):
+        lo, hi = change.new
+        if lo < hi:
+            with self.hold_trait_notifications():
+                self.lower_percentile, self.upper_percentile = lo, hi
+
+    # --------------------------------------------------------------- drawing
+    def _refresh_geometry(self):
+        ny, nx = self.cube.shape[1:]
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = -0.5, nx - 0.5
+            self.y_scale.min, self.y_scale.max = -0.5, ny - 0.5
+            self.image.x, self.image.y = (-0.5, nx - 0.5), (-0.5, ny - 0.5)
+            self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = nx / ny
+        self._beam_cache.clear()
+        self._outline_key = None
+
+    def current_plane(self):
+        """The full-resolution 2-D values shown now (a channel read from the memory map, or a map).
+
+        Returns
+        -------
+        values : ndarray (ny, nx)
+        unit : astropy unit
+        """
+        if self.source == "channel":
+            # One plane from the memory map; spectral-cube's unmasked_data slices lazily.
+            plane = self.cube.unmasked_data[self.channel, :, :]
+            return np.asarray(plane.value), plane.unit
+        projection = self.maps[self.source]
+        return np.asarray(projection.value), projection.unit
+
+    def _redraw(self):
+        with self.status.guard("drawing the sky image"):
+            values, unit = self.current_plane()
+            self._plane = values
+            image, factor = display_image(values, self.max_display_size)
+            lo, hi = display_limits(image, self.lower_percentile, self.upper_percentile,
+                                    vmin=self.vmin, vmax=self.vmax)
+            colour = stretched(image, lo, hi, self.stretch)
+            ramp = stretched(np.linspace(lo, hi, 256, dtype=np.float32)[:, None], lo, hi, self.stretch)
+            with self.figure.hold_sync(), self.colorbar.hold_sync():
+                self.image.image = colour
+                self._bar_image.image = ramp
+                self._bar_image.y = (lo, hi)
+                self._bar_scale.min, self._bar_scale.max = lo, hi
+                self._bar_axis.label = str(unit) if str(unit) else "value"
+            with self.hold_trait_notifications():
+                self.display_factor = factor
+                self.shown_limits = [lo, hi]
+            self._draw_beam()
+            if self.contour_source:
+                self._draw_contours()
+
+    def _beam(self):
+        if self.window not in self._beam_cache:
+            try:
+                self._beam_cache[self.window] = cube_beam(self.cube)
+            except BeamError:
+                self._beam_cache[self.window] = None
+        beam = self._beam_cache[self.window]
+        if beam is not None and np.ndim(beam.major) > 0:  # radio_beam.Beams: one per channel
+            beam = beam[self.channel]
+        return beam
+
+    def _draw_beam(self):
+        beam = self._beam() if self.show_beam else None
+        if beam is None:
+            self.beam_mark.x, self.beam_mark.y = [], []
+            return
+        ny, nx = self.cube.shape[1:]
+        size = max(beam.major.to_value("deg") / abs(self.cube.wcs.celestial.pixel_scale_matrix[1, 1]), 1.0)
+        center = (0.06 * nx + size / 2, 0.06 * ny + size / 2)
+        key = (self.window, beam.major.value, beam.minor.value, beam.pa.value)
+        if self._outline_key != key:
+            self._outline = beam_outline(beam, self.cube.wcs, center)
+            self._outline_key = key
+        else:
+            if len(self.beam_mark.x):
+                return
+        x, y = self._outline
+        with self.figure.hold_sync():
+            self.beam_mark.x, self.beam_mark.y = x, y
+
+    def _draw_contours(self):
+        if not self.contour_source:
+            self.contour_mark.x, self.contour_mark.y = [], []
+            return
+        projection = self.maps[self.contour_source]
+        image, factor = display_image(np.asarray(projection.value), self.max_display_size)
+        levels = list(self.contour_levels)
+        if not levels:
+            lo, hi = display_limits(image, 5, 99.5)
+            levels = list(np.linspace(lo, hi, 7)[1:-1])
+        pieces = contour_paths(image, levels, x_scale=factor, y_scale=factor)
+        # A block's centre sits (factor - 1) / 2 full-resolution pixels from its first pixel.
+        offset = (factor - 1) / 2
+        xs = [np.concatenate([x + offset, [np.nan]]) for x, _ in pieces]
+        ys = [np.concatenate([y + offset, [np.nan]]) for _, y in pieces]
+        with self.figure.hold_sync():
+            self.contour_mark.x = np.concatenate(xs) if xs else []
+            self.contour_mark.y = np.concatenate(ys) if ys else []
+
+    def _draw_outlines(self):
+        scales = {"x": self.x_scale, "y": self.y_scale}
+        marks = []
+        for item in self.outlines:
+            marks.append(Lines(x=np.asarray(item["x"], float), y=np.asarray(item["y"], float), scales=scales,
+                               colors=[item["color"]], stroke_width=2.5, labels=[item["name"]],
+                               display_legend=False, fill="inside", fill_colors=[item["color"]],
+                               fill_opacities=[0.12]))
+        self.outline_marks = marks
+        self.figure.marks = [self.image, self.contour_mark, *marks, self.beam_mark, self.draft_mark,
+                             self.draft_points]
+
+    # ------------------------------------------------------------- gestures
+    def on_shape(self, callback, remove=False):
+        """Register ``callback(kind, params)`` called when a gesture completes a shape.
+
+        ``kind`` is 'box' or 'oval' (params: x, y (two corners each, pixels), angle (deg)),
+        'outline' (params: vertices [[x, y], ...]) or 'pixel' (params: x, y).
+        """
+        if remove:
+            self._shape_callbacks.remove(callback)
+        else:
+            self._shape_callbacks.append(callback)
+
+    def _emit(self, kind, params):
+        for callback in list(self._shape_callbacks):
+            callback(kind, params)
+
+    def _on_brush(self, kind, change):
+        # Heavy work (region spectra) waits until the mouse is released.
+        if change.new:
+            return
+        selector = self.box_selector if kind == "box" else self.oval_selector
+        if selector.selected_x is None or selector.selected_y is None:
+            return
+        params = {"x": [float(v) for v in selector.selected_x], "y": [float(v) for v in selector.selected_y],
+                  "angle": float(getattr(selector, "rotate", 0.0) or 0.0)}
+        with self.status.guard("making a region from the drawn shape"):
+            self._emit(kind, params)
+
+    def _on_pointer_msg(self, _, content, buffers=None):
+        event = content.get("event")
+        domain = content.get("domain") or {}
+        if event == "mouseleave":
+            self.pointer_text = ""
+            self._pointer.value = "&nbsp;"
+            return
+        if "x" not in domain or "y" not in domain:
+            return
+        x, y = float(domain["x"]), float(domain["y"])
+        if event == "mousemove":
+            self.read_pointer(x, y)
+        elif event == "click" and self.tool == "pixel":
+            with self.status.guard("making a one-pixel region"):
+                self._emit("pixel", {"x": int(round(x)), "y": int(round(y))})
+        elif event == "click" and self.tool == "outline":
+            self.polygon_vertices = self.polygon_vertices + [[x, y]]
+        elif event == "dblclick" and self.tool == "outline":
+            self.finish_outline()
+
+    def finish_outline(self):
+        """Close the free-form outline being clicked and hand it over as a region."""
+        vertices = [v for i, v in enumerate(self.polygon_vertices) if i == 0 or v != self.polygon_vertices[i - 1]]
+        with self.status.guard("closing the outline"):
+            if len(vertices) < 3:
+                self.status.warn("An outline needs at least three corners: click more points on the image.")
+                return
+            self.polygon_vertices = []
+            self._emit("outline", {"vertices": vertices})
+
+    def read_pointer(self, x, y):
+        """Show the sky position and value at pixel (x, y); returns the text."""
+        ny, nx = self.cube.shape[1:]
+        i, j = int(round(x)), int(round(y))
+        if not (0 <= i < nx and 0 <= j < ny) or self._plane is None:
+            self.pointer_text = ""
+            self._pointer.value = "&nbsp;"
+            return ""
+        _, where = sky_position(self.cube.wcs, x, y)
+        unit = self.maps[self.source].unit if self.source != "channel" else self.cube.unit
+        value = self._plane[j, i]
+        text = f"{where}  (x={i}, y={j})  value {value:.4g} {unit}"
+        self.pointer_text = text
+        self._pointer.value = f"<code>{text}</code>"
+        return text

@@ -1,0 +1,428 @@
+"""SpectrumView: region spectra of every spectral window on one axis, with marked ranges and baselines.
+
+Line-free ranges, the line window and peaks are stored as observed
+frequencies (GHz), so they stay on the same channels when the x axis or the
+redshift changes. Baselines come from `cubeloupe.analysis.fit_baseline`;
+axes from `cubeloupe.analysis.display`.
+"""
+
+import astropy.units as u
+import ipywidgets as w
+import numpy as np
+from bqplot import Axis, Figure, LinearScale, Lines, Scatter
+from bqplot.interacts import BrushIntervalSelector
+from bqplot_image_gl.interacts import MouseInteraction
+from traitlets import Bool, Enum, Float, Int, List, TraitError, observe, validate
+
+from cubeloupe.analysis.baseline import fit_baseline
+from cubeloupe.analysis.display import AXIS_KINDS, display_axis, to_observed_frequency
+from cubeloupe.analysis.errors import CubeloupeError, FitError, SpectralRangeError
+from cubeloupe.analysis.polybaseline import MAX_ORDER, check_order
+from cubeloupe.analysis.spectral import CONVENTIONS
+
+from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR
+from .status import StatusLine
+
+__all__ = ["SpectrumView", "CLICK_MODES"]
+
+# What a click or drag on the spectrum does: value -> (label, tooltip)
+CLICK_MODES = {
+    "go": ("Go to channel", "Click the spectrum to show that channel on the sky"),
+    "line-free": ("Line-free", "Drag across channels without line emission; the baseline is fitted there"),
+    "window": ("Line window", "Drag across the line to set the window used for measurements and moment maps"),
+    "peaks": ("Peaks", "Click the tops of lines you see; with two or more the redshift is solved"),
+}
+
+
+def _pairs(value):
+    return [[float(min(a, b)), float(max(a, b))] for a, b in value]
+
+
+class SpectrumView(w.VBox):
+    """Spectra of the regions on one spectral axis, with line-free ranges, line window and baseline.
+
+    Parameters
+    ----------
+    status : StatusLine, optional
+
+    Attributes
+    ----------
+    axis_kind, convention, z, rest_frequency, line_free, line_window, peaks, baseline_order,
+    show_subtracted, mode, cursor_frequency
+        See each trait's help.
+    spectra : dict
+        ``name -> {"color": str, "spectra": [OneDSpectrum or None per window]}`` (set with `set_spectra`).
+    fits : dict
+        ``(name, window) -> BaselineFit`` for every spectrum the line-free ranges cover.
+    """
+
+    axis_kind = Enum(list(AXIS_KINDS), "observed frequency", help="What the x axis shows")
+    convention = Enum(list(CONVENTIONS), "radio", help="Velocity convention of a velocity axis")
+    z = Float(0.0, help="Source redshift (rest-frequency axis and velocity axis)")
+    rest_frequency = Float(0.0, help="Rest frequency (GHz) velocities refer to; 0 uses the file's RESTFRQ")
+    line_free = List(List(Float(), minlen=2, maxlen=2),
+                     help="Line-free ranges as [low, high] observed frequencies in GHz")
+    line_window = List(Float(), help="The line window as [low, high] observed frequency in GHz (empty: none)")
+    peaks = List(Float(), help="Marked peak positions, observed frequency in GHz")
+    baseline_order = Int(1, help=f"Order of the polynomial baseline (0 to {MAX_ORDER})")
+    show_subtracted = Bool(False, help="Show spectra with the baseline subtracted")
+    mode = Enum(list(CLICK_MODES), "go", help="What clicking or dragging on the spectrum does")
+    cursor_frequency = Float(None, allow_none=True, help="Observed frequency (GHz) of the channel on the sky")
+    brushing = Bool(False, help="True while a range is being dragged (heavy work waits until release)")
+
+    def __init__(self, status=None, **kwargs):
+        self.status = status or StatusLine()
+        self.band = None  # (low, high) observed GHz of all windows; set by the owner
+        self.spectra = {}
+        self.fits = {}
+        self.curve_marks = {}
+        self.model_marks = {}
+        self._pick_callbacks = []
+        self._overlay_marks = []
+        self._build()
+        super().__init__(children=[self._toolbar, self.figure], **kwargs)
+        self.add_class("cubeloupe-spectrum-view")
+        self._draw_ranges()
+
+    # ------------------------------------------------------------- building
+    def _build(self):
+        self.x_scale = LinearScale()
+        self.y_scale = LinearScale()
+        self.band_scale = LinearScale(min=0.0, max=1.0, allow_padding=False)
+        self.x_axis = Axis(scale=self.x_scale, label="observed frequency (GHz)", grid_lines="none")
+        self.y_axis = Axis(scale=self.y_scale, side="left", label="", grid_lines="dashed")
+        band = {"x": self.x_scale, "y": self.band_scale}
+        self.free_mark = Lines(x=[], y=[], scales=band, fill="inside", colors=[LINE_FREE_FILL],
+                               fill_colors=[LINE_FREE_FILL], fill_opacities=[0.3], stroke_width=0)
+        self.window_mark = Lines(x=[], y=[], scales=band, fill="inside", colors=[LINE_WINDOW_FILL],
+                                 fill_colors=[LINE_WINDOW_FILL], fill_opacities=[0.3], stroke_width=0)
+        self.cursor_mark = Lines(x=[], y=[0, 1], scales=band, colors=[CHANNEL_COLOR], stroke_width=1.5,
+                                 line_style="dashed")
+        self.peak_mark = Scatter(x=[], y=[], scales=band, colors=[PEAK_COLOR], marker="triangle-down",
+                                 default_size=64)
+        self.zero_mark = Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale},
+                               colors=[BASELINE_COLOR], stroke_width=0.8)
+        self.figure = Figure(marks=[], axes=[self.x_axis, self.y_axis],
+                             fig_margin={"top": 30, "bottom": 45, "left": 65, "right": 15},
+                             layout=w.Layout(width="100%", height="360px"))
+        self.figure.add_class("cubeloupe-spectrum-figure")
+        self.clicker = MouseInteraction(x_scale=self.x_scale, y_scale=self.y_scale, events=["click"])
+        self.clicker.on_msg(self._on_click_msg)
+        self.brush = BrushIntervalSelector(scale=self.x_scale, marks=[], color=LINE_WINDOW_FILL)
+        self.brush.observe(self._on_brushing, names=["brushing"])
+        self.figure.interaction = self.clicker
+        self._set_marks()
+
+        self.axis_choice = w.Dropdown(options=list(AXIS_KINDS), description="x axis",
+                                      tooltip="Show the spectrum against the frequency observed, the "
+                                                          "frequency in the source's rest frame, or velocity "
+                                                          "relative to the chosen line",
+                                      layout=w.Layout(width="230px"))
+        self.axis_choice.add_class("cubeloupe-axis-choice")
+        w.link((self.axis_choice, "value"), (self, "axis_kind"))
+        self.convention_choice = w.Dropdown(options=list(CONVENTIONS), description="Velocity",
+                                            tooltip="Doppler convention used for velocities: radio, "
+                                                                "optical or relativistic",
+                                            layout=w.Layout(width="200px"))
+        w.link((self.convention_choice, "value"), (self, "convention"))
+        self.mode_buttons = w.ToggleButtons(options=[(label, key) for key, (label, _) in CLICK_MODES.items()],
+                                            tooltips=[tip for _, tip in CLICK_MODES.values()],
+                                            style=w.ToggleButtonsStyle(button_width="100px"))
+        self.mode_buttons.add_class("cubeloupe-spectrum-mode")
+        w.link((self.mode_buttons, "value"), (self, "mode"))
+        self.order_choice = w.BoundedIntText(value=1, min=0, max=MAX_ORDER, description="Baseline order",
+                                             tooltip="Degree of the polynomial fitted to the line-free "
+                                                                 "channels: 0 is a flat offset, 1 a sloped line",
+                                             style={"description_width": "initial"}, layout=w.Layout(width="160px"))
+        self.order_choice.add_class("cubeloupe-baseline-order")
+        w.link((self.order_choice, "value"), (self, "baseline_order"))
+        self.subtract_toggle = w.Checkbox(value=False, description="Subtract baseline", indent=False,
+                                          tooltip="Show the spectra with the fitted baseline removed",
+                                          layout=w.Layout(width="150px"))
+        self.subtract_toggle.add_class("cubeloupe-subtract")
+        w.link((self.subtract_toggle, "value"), (self, "show_subtracted"))
+        self.clear_button = w.Button(description="Clear marks", icon="eraser",
+                                     tooltip="Forget the line-free ranges, line window and peaks marked so far")
+        self.clear_button.on_click(lambda _: self.clear_marks())
+        self._toolbar = w.VBox([
+            w.HBox([self.axis_choice, self.convention_choice, self.order_choice, self.subtract_toggle]),
+            w.HBox([self.mode_buttons, self.clear_button]),
+        ])
+
+    def _set_marks(self):
+        curves = []
+        for key in self.curve_marks:
+            if key in self.model_marks:
+                curves.append(self.model_marks[key])
+            curves.append(self.curve_marks[key])
+        self.figure.marks = [self.free_mark, self.window_mark, self.zero_mark, *curves, *self._overlay_marks,
+                             self.peak_mark, self.cursor_mark]
+
+    def add_overlay_marks(self, marks):
+        """Put marks (e.g. catalog line markers) on the figure above the spectra."""
+        self._overlay_marks = list(marks)
+        self._set_marks()
+
+    # ------------------------------------------------------------ validation
+    @validate("baseline_order")
+    def _valid_order(self, proposal):
+        try:
+            return check_order(proposal["value"])
+        except FitError as exc:
+            raise TraitError(str(exc)) from None
+
+    @validate("line_free")
+    def _valid_line_free(self, proposal):
+        return _pairs(proposal["value"])
+
+    @validate("line_window")
+    def _valid_window(self, proposal):
+        value = list(proposal["value"])
+        if value and len(value) != 2:
+            raise TraitError(f"line_window must be [low, high] in GHz or empty; got {value}")
+        return [float(min(value)), float(max(value))] if value else []
+
+    # ------------------------------------------------------------ the frame
+    def _rest(self):
+        return self.rest_frequency * u.GHz if self.rest_frequency > 0 else None
+
+    def x_of(self, spectrum):
+        """The x coordinates of ``spectrum`` on the current axis."""
+        return display_axis(spectrum, self.axis_kind, rest_frequency=self._rest(), z=self.z,
+                            convention=self.convention)
+
+    def x_of_frequency(self, frequencies):
+        """Observed frequencies (GHz) as x coordinates of the current axis."""
+        return display_axis(np.atleast_1d(frequencies) * u.GHz, self.axis_kind, rest_frequency=self._rest(),
+                            z=self.z, convention=self.convention).value
+
+    def frequency_of_x(self, values):
+        """x coordinates of the current axis as observed frequencies (GHz)."""
+        return to_observed_frequency(values, self.axis_kind, rest_frequency=self._rest(), z=self.z,
+                                     convention=self.convention).to_value(u.GHz)
+
+    @observe("axis_kind", "convention", "z", "rest_frequency")
+    def _on_frame(self, change):
+        if self.axis_kind == "velocity" and self._rest() is None:
+            self._adopt_band_centre()
+            return  # setting rest_frequency comes back here
+        unit = AXIS_KINDS[self.axis_kind]
+        self.x_axis.label = f"{self.axis_kind} ({unit.to_string()})" + (
+            f", {self.convention}" if self.axis_kind == "velocity" else "")
+        # An observed-frequency axis does not depend on z, the line or the convention.
+        if change.name == "axis_kind" or (self.axis_kind == "velocity") or \
+                (self.axis_kind == "rest frequency" and change.name == "z"):
+            self._redraw_all()
+
+    def _adopt_band_centre(self):
+        """A velocity axis with no line: measure velocities from the band centre, and say so."""
+        with self.status.guard("switching to a velocity axis"):
+            if self.band is None:
+                raise SpectralRangeError("a velocity axis needs a line: set the rest frequency first")
+            centre = display_axis([sum(self.band) / 2] * u.GHz, "rest frequency", z=self.z)[0]
+            self.status.warn(f"No line chosen, so velocities are measured from the band centre "
+                             f"({sum(self.band) / 2:.6f} GHz observed, rest frequency {centre.value:.6f} GHz at "
+                             f"z = {self.z:g}); pick a line under 'Velocity of' to measure from it.")
+            self.rest_frequency = float(centre.to_value(u.GHz))
+
+    # ---------------------------------------------------------------- data
+    def set_spectra(self, name, color, spectra):
+        """Show region ``name``'s spectra (one per window, None where a window has none)."""
+        self.spectra[name] = {"color": color, "spectra": list(spectra)}
+        self._refit(names=[name])
+        self._redraw(names=[name])
+
+    def drop_spectra(self, name):
+        """Remove region ``name``'s curves."""
+        self.spectra.pop(name, None)
+        for key in [k for k in self.curve_marks if k[0] == name]:
+            self.curve_marks.pop(key)
+            self.model_marks.pop(key, None)
+            self.fits.pop(key, None)
+        self._set_marks()
+
+    def recolor(self, name, color):
+        if name in self.spectra:
+            self.spectra[name]["color"] = color
+            for key, mark in self.curve_marks.items():
+                if key[0] == name:
+                    mark.colors = [color]
+
+    def _window_ranges(self, spectrum, ranges):
+        """Those of ``ranges`` (GHz) that overlap the band of ``spectrum``."""
+        f = display_axis(spectrum, "observed frequency").to_value(u.GHz)
+        lo, hi = np.nanmin(f), np.nanmax(f)
+        return [r for r in ranges if r[1] >= lo and r[0] <= hi]
+
+    def _refit(self, names=None):
+        names = list(self.spectra) if names is None else names
+        problems = []
+        for name in names:
+            for window, spectrum in enumerate(self.spectra[name]["spectra"]):
+                self.fits.pop((name, window), None)
+                if spectrum is None or not self.line_free:
+                    continue
+                ranges = self._window_ranges(spectrum, self.line_free)
+                if not ranges:
+                    continue
+                try:
+                    self.fits[(name, window)] = fit_baseline(spectrum, u.Quantity(ranges, u.GHz),
+                                                             order=self.baseline_order)
+                except CubeloupeError as exc:
+                    problems.append(f"{name}, window {window}: {exc}")
+        if problems:
+            self.status.error("Could not fit the baseline for " + "; ".join(problems))
+
+    @observe("line_free", "baseline_order")
+    def _on_baseline_inputs(self, change):
+        self._refit()
+        self._redraw_all()
+        self._draw_ranges()
+
+    @observe("show_subtracted")
+    def _on_subtracted(self, change):
+        if self.show_subtracted and not self.fits:
+            self.status.warn("No baseline yet: mark line-free ranges (mode 'Line-free') to fit one.")
+        self._redraw_all()
+
+    def _redraw_all(self):
+        with self.status.guard("drawing the spectra"):
+            self._redraw()
+            self._draw_ranges()
+
+    def _redraw(self, names=None):
+        names = list(self.spectra) if names is None else names
+        scales = {"x": self.x_scale, "y": self.y_scale}
+        with self.figure.hold_sync():
+            for name in names:
+                entry = self.spectra[name]
+                for window, spectrum in enumerate(entry["spectra"]):
+                    key = (name, window)
+                    if spectrum is None:
+                        self.curve_marks.pop(key, None)
+                        self.model_marks.pop(key, None)
+                        continue
+                    x = self.x_of(spectrum).value
+                    fit = self.fits.get(key)
+                    y = spectrum.value
+                    if self.show_subtracted and fit is not None:
+                        y = fit.subtracted.value
+                    mark = self.curve_marks.get(key)
+                    if mark is None:
+                        mark = Lines(scales=scales, colors=[entry["color"]], stroke_width=1.6,
+                                     labels=[name])
+                        self.curve_marks[key] = mark
+                    mark.x, mark.y, mark.colors = x, np.asarray(y, dtype=float), [entry["color"]]
+                    if fit is not None and not self.show_subtracted:
+                        model = self.model_marks.get(key)
+                        if model is None:
+                            model = Lines(scales=scales, colors=[BASELINE_COLOR], stroke_width=1.2,
+                                          line_style="dash_dotted")
+                            self.model_marks[key] = model
+                        model.x, model.y = x, np.asarray(fit.model.value, dtype=float)
+                    else:
+                        self.model_marks.pop(key, None)
+                    self.y_axis.label = str(spectrum.unit)
+            self._set_marks()
+            self._draw_zero()
+            self._draw_cursor()
+
+    def _draw_zero(self):
+        xs = [m.x for m in self.curve_marks.values() if len(m.x)]
+        if self.show_subtracted and xs:
+            lo, hi = min(np.nanmin(x) for x in xs), max(np.nanmax(x) for x in xs)
+            self.zero_mark.x, self.zero_mark.y = [lo, hi], [0.0, 0.0]
+        else:
+            self.zero_mark.x, self.zero_mark.y = [], []
+
+    def _band_polygons(self, ranges):
+        if not ranges:
+            return [], []
+        xs = [self.x_of_frequency(np.array([lo, lo, hi, hi])) for lo, hi in ranges]
+        ys = [[0.0, 1.0, 1.0, 0.0]] * len(ranges)
+        return np.array(xs), np.array(ys)
+
+    def _draw_ranges(self):
+        with self.figure.hold_sync():
+            self.free_mark.x, self.free_mark.y = self._band_polygons(self.line_free)
+            self.window_mark.x, self.window_mark.y = self._band_polygons([self.line_window] if self.line_window
+                                                                         else [])
+            if self.peaks:
+                self.peak_mark.x = self.x_of_frequency(np.array(self.peaks))
+                self.peak_mark.y = np.full(len(self.peaks), 0.96)
+            else:
+                self.peak_mark.x, self.peak_mark.y = [], []
+            self._draw_cursor()
+
+    @observe("line_window", "peaks")
+    def _on_marks(self, change):
+        with self.status.guard("drawing the marked ranges"):
+            self._draw_ranges()
+
+    @observe("cursor_frequency")
+    def _draw_cursor(self, change=None):
+        if self.cursor_frequency is None:
+            self.cursor_mark.x = []
+            return
+        try:
+            x = float(self.x_of_frequency(self.cursor_frequency)[0])
+        except CubeloupeError:
+            return
+        self.cursor_mark.x, self.cursor_mark.y = [x, x], [0.0, 1.0]
+
+    def clear_marks(self):
+        """Forget line-free ranges, the line window and peaks."""
+        with self.hold_trait_notifications():
+            self.line_free = []
+            self.line_window = []
+            self.peaks = []
+
+    # ---------------------------------------------------------- interaction
+    @observe("mode")
+    def _on_mode(self, change):
+        self.figure.interaction = self.brush if self.mode in ("line-free", "window") else self.clicker
+        self.brush.color = LINE_FREE_FILL if self.mode == "line-free" else LINE_WINDOW_FILL
+
+    def on_pick(self, callback, remove=False):
+        """Register ``callback(frequency_GHz)`` for clicks in 'go' mode."""
+        if remove:
+            self._pick_callbacks.remove(callback)
+        else:
+            self._pick_callbacks.append(callback)
+
+    def _on_click_msg(self, _, content, buffers=None):
+        if content.get("event") != "click" or "x" not in (content.get("domain") or {}):
+            return
+        self.click(float(content["domain"]["x"]))
+
+    def click(self, x):
+        """Act on a click at ``x`` (current axis units), as the mouse would."""
+        with self.status.guard("reading the clicked position"):
+            frequency = float(self.frequency_of_x([x])[0])
+            if self.mode == "peaks":
+                if frequency not in self.peaks:
+                    self.peaks = self.peaks + [frequency]
+            else:
+                for callback in list(self._pick_callbacks):
+                    callback(frequency)
+
+    def _on_brushing(self, change):
+        self.brushing = bool(change.new)
+        if change.new:
+            return  # wait for the release
+        selected = self.brush.selected
+        if selected is None or len(selected) != 2:
+            return
+        self.mark_range(*[float(v) for v in selected])
+        self.brush.selected = None
+
+    def mark_range(self, x0, x1):
+        """Mark [x0, x1] (current axis units) as line-free or as the line window, per `mode`."""
+        with self.status.guard("marking a spectral range"):
+            if x0 == x1:
+                raise SpectralRangeError("the dragged range is empty; drag across some channels")
+            f = sorted(self.frequency_of_x([x0, x1]))
+            if self.mode == "window":
+                self.line_window = f
+            else:
+                self.line_free = self.line_free + [f]
