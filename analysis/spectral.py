@@ -17,7 +17,7 @@ Examples
 >>> import astropy.units as u
 >>> CO21 = 230.538 * u.GHz
 >>> v = velocity(230.538 * u.GHz / 1.5, rest_frequency=CO21, z=0.5)
->>> round(abs(v.to_value(u.km / u.s)), 6)
+>>> print(round(abs(v.to_value(u.km / u.s)), 6))
 0.0
 """
 
@@ -152,7 +152,7 @@ def velocity(frequency, rest_frequency, z=0.0, convention="radio"):
     Examples
     --------
     >>> v = velocity(115.2712018 * u.GHz * (1 - 100 / 299792.458), 115.2712018 * u.GHz)
-    >>> round(v.to_value(u.km / u.s), 6)
+    >>> print(round(v.to_value(u.km / u.s), 6))
     100.0
     """
     ref = observed_frequency(rest_frequency, z)
@@ -168,7 +168,7 @@ def frequency_from_velocity(velocity_offset, rest_frequency, z=0.0, convention="
     Examples
     --------
     >>> f = frequency_from_velocity(0 * u.km / u.s, 115.2712018 * u.GHz, z=1)
-    >>> round(f.to_value(u.GHz), 7)
+    >>> print(round(f.to_value(u.GHz), 7))
     57.6356009
     """
     ref = observed_frequency(rest_frequency, z)
