@@ -28,6 +28,7 @@ __all__ = [
     "CatalogError",
     "RedshiftError",
     "OutputExistsError",
+    "ReportFolderError",
     "ClusterError",
     "CancelledComputation",
     "CubeloupeWarning",
@@ -83,6 +84,10 @@ class RedshiftError(CubeloupeError, ValueError):
 
 class OutputExistsError(CubeloupeError, FileExistsError):
     """An export would overwrite an existing file and ``overwrite`` was not set."""
+
+
+class ReportFolderError(CubeloupeError, PermissionError):
+    """An output folder cannot be created or written to."""
 
 
 class ClusterError(CubeloupeError, RuntimeError):

@@ -6,7 +6,6 @@ spectral axis type and direction, units, beam, Stokes axis, NaN blanking.
 
 from pathlib import Path
 
-import astropy.units as u
 import numpy as np
 from astropy.io import fits
 
@@ -110,3 +109,31 @@ def file_digest(path):
     import hashlib
 
     return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def frequency_axis_hz(nchan, crval3=230.538e9, cdelt3=-1.0e6, crpix3=1.0):
+    """Channel frequencies (Hz) of a FREQ axis made by `make_header`."""
+    return crval3 + (np.arange(nchan) + 1 - crpix3) * cdelt3
+
+
+def line_cube_data(shape, *, rng, noise_rms=1.0, lines=(), crval3=230.538e9, cdelt3=-1.0e6, crpix3=1.0,
+                   source_sigma_pixels=2.0, centre=None, continuum=0.0):
+    """White Gaussian noise plus compact sources with Gaussian line profiles (FREQ axis).
+
+    ``lines``: ``(frequency_hz, peak, sigma_hz)`` rows; each line sits on a
+    circular Gaussian source of ``source_sigma_pixels`` at ``centre`` (y, x;
+    default the middle) whose peak pixel reaches ``peak`` at the line centre.
+    ``continuum``: a constant added to every channel of that same source.
+    Returns a float64 array (n_chan, ny, nx).
+    """
+    nchan, ny, nx = shape
+    freq = frequency_axis_hz(nchan, crval3, cdelt3, crpix3)
+    cy, cx = ((ny - 1) / 2, (nx - 1) / 2) if centre is None else centre
+    y, x = np.mgrid[0:ny, 0:nx]
+    blob = np.exp(-0.5 * ((y - cy) ** 2 + (x - cx) ** 2) / source_sigma_pixels**2)
+    data = rng.normal(0.0, noise_rms, size=shape)
+    spectrum = np.full(nchan, float(continuum))
+    for f0, peak, sigma in lines:
+        spectrum += peak * np.exp(-0.5 * ((freq - f0) / sigma) ** 2)
+    data += spectrum[:, None, None] * blob[None]
+    return data

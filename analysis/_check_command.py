@@ -1,0 +1,256 @@
+"""``cubeloupe check``: the delivery check of one cube or a whole delivery, from the shell.
+
+Usage::
+
+    cubeloupe check CUBE_OR_FOLDER... [--z Z] [--out DIR] [--threshold SNR]
+                    [--overwrite] [--quiet]
+
+Every FITS file named, and every FITS file directly inside a named folder, is
+checked with `~cubeloupe.analysis.delivery_check.check_cube`; other files in a
+folder are skipped and listed. The report (``DIR/report.html`` and
+``DIR/summary.json``, see `~cubeloupe.analysis.check_report`) is written at
+the end and a short table is printed. A cube that cannot be read is reported
+with its reason and never stops the others.
+
+Exit status: 0 when every cube was read and checked and the report written;
+1 when one or more cubes could not be read or checked (the report is still
+written and says why); 2 when the report could not be written (the folder is
+not writable, or a report is already there and ``--overwrite`` was not
+given), when nothing was given to check, or on a usage error; 130 when
+stopped with Ctrl-C (nothing is written then).
+"""
+
+import argparse
+import os
+import sys
+import warnings
+from pathlib import Path
+
+__all__ = ["register", "run", "collect_inputs", "EXIT_OK", "EXIT_CUBE_FAILED", "EXIT_NO_REPORT",
+           "EXIT_INTERRUPTED"]
+
+EXIT_OK = 0
+EXIT_CUBE_FAILED = 1
+EXIT_NO_REPORT = 2
+EXIT_INTERRUPTED = 130  # the shell's convention for a run stopped with Ctrl-C (128 + SIGINT)
+
+DEFAULT_OUT = "cubeloupe-check"
+_FITS_MAGIC = b"SIMPLE  ="
+
+
+def register(subparsers):
+    """Add the ``check`` subcommand to an argparse ``subparsers`` object."""
+    parser = subparsers.add_parser(
+        "check",
+        help="quick-look report on delivered cubes: header, noise, continuum, lines",
+        description=(
+            "Check spectral-line FITS cubes right after a delivery: header summary, noise per "
+            "channel, leftover continuum, lines expected at z and lines detected. Writes "
+            "DIR/report.html and DIR/summary.json and prints a short table."
+        ),
+        epilog=(
+            "Exit status: 0 every cube checked; 1 some cube could not be read (see the table "
+            "and summary.json); 2 no report written (output folder problem) or nothing to check."
+        ),
+    )
+    parser.add_argument("inputs", nargs="+", metavar="CUBE_OR_FOLDER",
+                        help="FITS cubes, or folders whose FITS files are all checked")
+    parser.add_argument("--z", type=float, default=None, metavar="Z",
+                        help="redshift of the source: lists the lines expected in the band and "
+                             "identifies detections at that z")
+    parser.add_argument("--out", default=DEFAULT_OUT, metavar="DIR",
+                        help=f"folder for report.html and summary.json (default: ./{DEFAULT_OUT})")
+    parser.add_argument("--threshold", type=float, default=5.0, metavar="SNR",
+                        help="detection threshold in channel rms for the peak-intensity spectrum (default: 5)")
+    parser.add_argument("--overwrite", action="store_true",
+                        help="replace a report already in DIR (by default it is kept and nothing is written)")
+    parser.add_argument("--quiet", action="store_true",
+                        help="no progress bars and no table; print only problems")
+    parser.set_defaults(func=run)
+    return parser
+
+
+def collect_inputs(paths):
+    """Expand folders into the FITS files they hold.
+
+    A folder contributes every file directly inside it that starts like a
+    FITS file (``SIMPLE  =``), whatever its name; anything else in it is
+    skipped, with the reason. Paths named one by one are always tried, so a
+    missing or broken file there is an error, not a skip.
+
+    Returns
+    -------
+    cubes : list of pathlib.Path
+    skipped : list of (pathlib.Path, str)
+    """
+    cubes, skipped = [], []
+    for raw in paths:
+        path = Path(os.fspath(raw)).expanduser()
+        if not path.is_dir():
+            cubes.append(path)
+            continue
+        try:
+            children = sorted(path.iterdir())
+        except OSError as exc:
+            skipped.append((path, f"folder cannot be listed ({exc.strerror or exc})"))
+            continue
+        found = 0
+        for child in children:
+            if child.is_dir():
+                skipped.append((child, "a folder inside a folder (not searched; name it to check it)"))
+                continue
+            try:
+                with open(child, "rb") as handle:
+                    head = handle.read(len(_FITS_MAGIC))
+            except OSError as exc:
+                skipped.append((child, f"cannot be read ({exc.strerror or exc})"))
+                continue
+            if head != _FITS_MAGIC:
+                skipped.append((child, "not a FITS file"))
+                continue
+            cubes.append(child)
+            found += 1
+        if not found:
+            skipped.append((path, "folder holds no FITS file"))
+    return cubes, skipped
+
+
+def _say(text, *, stream=None):
+    print(text, file=stream or sys.stderr, flush=True)
+
+
+def _check_one(path, args, position):
+    """Check one cube; return (entry, html_section)."""
+    from tqdm import tqdm
+
+    from . import check_report
+    from .cubes import open_cube
+    from .delivery_check import check_cube
+    from .errors import CubeloupeError
+
+    bar = tqdm(total=100, desc=path.name[:40], unit="%", leave=False, disable=True if args.quiet else None,
+               position=position, bar_format="{desc}: {percentage:3.0f}%|{bar}| {elapsed}")
+
+    def progress(fraction):
+        bar.n = round(100 * min(max(fraction, 0.0), 1.0))
+        bar.refresh()
+
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            cube = open_cube(path)
+            result = check_cube(cube, z=args.z, threshold=args.threshold, progress=progress)
+        notes = list(dict.fromkeys(str(w.message) for w in caught if _worth_reporting(w)))
+        if notes:
+            result = _with_extra_warnings(result, notes)
+        entry = check_report.cube_entry(result)
+        section = check_report.cube_section(entry, result)
+    except CubeloupeError as exc:
+        entry = check_report.failure_entry(path, exc)
+        section = check_report.cube_section(entry, None)
+    except MemoryError:
+        entry = check_report.failure_entry(path, MemoryError(
+            f"ran out of memory checking {path}; close other programs or check this cube on a larger machine"))
+        section = check_report.cube_section(entry, None)
+    except Exception as exc:  # a bug must not stop the other cubes of the delivery
+        error = RuntimeError(f"unexpected error while checking {path}: {type(exc).__name__}: {exc}. "
+                             "This is a bug in cubeloupe; please report it with the file's header")
+        entry = check_report.failure_entry(path, error)
+        section = check_report.cube_section(entry, None)
+    finally:
+        bar.close()
+    return entry, section
+
+
+def _worth_reporting(caught):
+    from .errors import CubeloupeWarning
+
+    return issubclass(caught.category, CubeloupeWarning)
+
+
+def _with_extra_warnings(result, notes):
+    from dataclasses import replace
+
+    return replace(result, warnings=tuple(dict.fromkeys([*result.warnings, *notes])))
+
+
+def run(args):
+    """Run ``cubeloupe check`` with parsed arguments; return the exit status."""
+    from tqdm import tqdm
+
+    from . import check_report
+    from .errors import CubeloupeError, RedshiftError
+    from .spectral import check_redshift
+
+    if args.z is not None:
+        try:
+            check_redshift(args.z, argname="--z")
+        except RedshiftError as exc:
+            _say(f"cubeloupe check: {exc}")
+            return EXIT_NO_REPORT
+    if not args.threshold > 0:
+        _say(f"cubeloupe check: --threshold must be a positive number of sigma; got {args.threshold}")
+        return EXIT_NO_REPORT
+
+    output_problem = None
+    try:
+        folder = check_report.prepare_output(args.out, overwrite=args.overwrite)
+    except CubeloupeError as exc:
+        output_problem = str(exc)
+        # Said at once so that a long run can be stopped; the cubes are still
+        # checked so that the table below shows what was found.
+        _say(f"cubeloupe check: no report will be written: {output_problem}")
+
+    cubes, skipped = collect_inputs(args.inputs)
+    for path, reason in skipped:
+        _say(f"cubeloupe check: skipping {path}: {reason}")
+    if not cubes:
+        _say("cubeloupe check: nothing to check: no FITS file among the inputs")
+        return EXIT_NO_REPORT
+
+    entries, sections = [], []
+    outer = tqdm(cubes, desc="cubes", unit="cube", disable=True if (args.quiet or len(cubes) < 2) else None)
+    try:
+        for path in outer:
+            entry, section = _check_one(path, args, position=1 if len(cubes) > 1 else 0)
+            entries.append(entry)
+            sections.append(section)
+            if not entry["ok"]:
+                tqdm.write(f"cubeloupe check: {path}: {entry['error']}", file=sys.stderr)
+    except KeyboardInterrupt:
+        outer.close()
+        _say(f"cubeloupe check: interrupted after {len(entries)} of {len(cubes)} cube(s); no report written")
+        return EXIT_INTERRUPTED
+    outer.close()
+
+    summary = check_report.summary_dict(entries, z=args.z, threshold=args.threshold, skipped=skipped)
+    if not args.quiet:
+        print(check_report.terminal_table(summary), flush=True)
+    if output_problem is None:
+        try:
+            summary_path, report_path = check_report.write_report(folder, summary, sections,
+                                                                  overwrite=args.overwrite)
+        except CubeloupeError as exc:
+            output_problem = str(exc)
+        else:
+            if not args.quiet:
+                print(f"report: {report_path}\nsummary: {summary_path}", flush=True)
+    failed = [e for e in entries if not e["ok"]]
+    for entry in failed:
+        _say(f"cubeloupe check: not checked: {entry['path']}: {entry['error']}")
+    if output_problem is not None:
+        _say(f"cubeloupe check: no report written: {output_problem}")
+        return EXIT_NO_REPORT
+    return EXIT_CUBE_FAILED if failed else EXIT_OK
+
+
+def main(argv=None):
+    """Run ``check`` on its own (``python -m cubeloupe.analysis._check_command``)."""
+    parser = argparse.ArgumentParser(prog="cubeloupe")
+    register(parser.add_subparsers(dest="command", required=True))
+    args = parser.parse_args(["check", *(sys.argv[1:] if argv is None else argv)])
+    return args.func(args)
+
+
+if __name__ == "__main__":
+    sys.exit(main())
