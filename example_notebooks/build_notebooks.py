@@ -180,11 +180,19 @@ uncertainty.
 `Loupe` shows the cube, its spectra, the line catalog and the moment maps side by side; every
 number it shows comes from the functions used above. Draw a region on the sky to get its
 spectrum, mark line-free ranges and a line window on the spectrum, then make moment maps.
+
+The demo's record of what was put into the cube (`demo_truth`) gives the frame: z = 0, CO(2-1)
+as the line, and the disk's systemic velocity, which moves the catalog's line markers onto the
+emission. Velocities are then the same as in section 4. For your own cube, pass your source's
+values (or leave them out and set them in the suite).
 """),
     code("""
+from cubeloupe.analysis import demo_truth
 from cubeloupe.widgets import Loupe
 
-loupe = Loupe(path, rest_frequency=co21)
+truth = demo_truth("disk")
+loupe = Loupe(path, z=truth["z"], rest_frequency=truth["lines"][0]["rest_frequency"],
+              velocity_offset=truth["disk"]["systemic_velocity"])
 loupe
 """),
     md("""

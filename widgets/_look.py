@@ -27,3 +27,58 @@ CHANNEL_COLOR = "#d62828"
 def px(value):
     """A CSS length in pixels."""
     return f"{int(value)}px"
+
+
+# Section titles: a thin rule with a small heading, in the suite's slate colour.
+_TITLE_STYLE = ("font-size:12px;font-weight:600;letter-spacing:0.04em;text-transform:uppercase;color:#486581;"
+                "border-bottom:1px solid #d9e2ec;padding:2px 0 1px 0;margin:0 0 2px 0")
+
+
+def section_title(text, hint=""):
+    """A small section heading (HTML string) with an optional grey hint after it."""
+    import html
+
+    extra = (f" <span style='font-weight:400;text-transform:none;letter-spacing:0;color:#829ab1'>"
+             f"{html.escape(hint)}</span>") if hint else ""
+    return f"<div style='{_TITLE_STYLE}'>{html.escape(text)}{extra}</div>"
+
+
+def section(title, children, hint="", width=None, css_class=None):
+    """A titled group of controls (an ipywidgets VBox)."""
+    import ipywidgets as w
+
+    box = w.VBox([w.HTML(section_title(title, hint)), *children],
+                 layout=w.Layout(width=width or "auto", margin="0 0 4px 0"))
+    if css_class:
+        box.add_class(css_class)
+    return box
+
+
+def row(children, **layout):
+    """Controls side by side, vertically centred, without wrapping."""
+    import ipywidgets as w
+
+    layout.setdefault("align_items", "center")
+    return w.HBox(list(children), layout=w.Layout(**layout))
+
+
+def parse_optional_number(text, what):
+    """The number typed in an optional-number box, or None when it is blank.
+
+    Raises ValueError with a readable message for anything else (or a value <= 0).
+    """
+    text = str(text).strip()
+    if not text:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise ValueError(f"{what} must be a number or left blank; got {text!r}") from None
+    if not value > 0:
+        raise ValueError(f"{what} must be above 0 or left blank; got {text!r}")
+    return value
+
+
+def format_optional_number(value):
+    """The text an optional-number box shows for ``value`` (blank for None)."""
+    return "" if value is None else f"{value:g}"

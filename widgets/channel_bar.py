@@ -1,13 +1,15 @@
 """ChannelBar: pick a channel with a slider, step buttons or playback; see its frequency and velocity."""
 
+import html
+
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
 from traitlets import Enum, Float, Int, Unicode, observe, validate
 
-from cubeloupe.analysis.display import display_axis
+from cubeloupe.analysis.display import cube_rest_frequency, display_axis
 from cubeloupe.analysis.errors import CubeloupeError
-from cubeloupe.analysis.spectral import CONVENTIONS
+from cubeloupe.analysis.spectral import CONVENTIONS, velocity
 
 __all__ = ["ChannelBar"]
 
@@ -24,7 +26,7 @@ class ChannelBar(w.HBox):
     ----------
     channel : int
     n_channels : int
-    z, rest_frequency, convention
+    z, rest_frequency, convention, reference_label
         The velocity frame of the readout (see each trait's help).
     readout : str
         The text shown beside the slider.
@@ -33,32 +35,37 @@ class ChannelBar(w.HBox):
     channel = Int(0, help="The selected channel (0-based)")
     n_channels = Int(1, help="Number of channels of the cube (read-only)")
     z = Float(0.0, help="Source redshift used for the velocity readout")
-    rest_frequency = Float(0.0, help="Rest frequency in GHz of the line velocities refer to (0: the file's)")
+    rest_frequency = Float(0.0, help="Rest frequency in GHz of the line velocities refer to (0: the cube's RESTFRQ)")
     convention = Enum(list(CONVENTIONS), "radio", help="Velocity convention of the readout")
+    reference_label = Unicode("", help="What velocity zero is, as shown in the readout (e.g. 'CO J=2-1'); "
+                                       "empty: the rest frequency in GHz")
     readout = Unicode("", help="Frequency and velocity of the selected channel, as shown")
     play_interval = Int(300, help="Milliseconds between channels during playback")
 
     def __init__(self, cube, **kwargs):
         self._cube = cube
-        self._velocity_key = None
-        self._velocities = None
         self.slider = w.IntSlider(min=0, max=cube.shape[0] - 1, description="Channel", continuous_update=True,
                                   tooltip="Drag to move through the cube's channels (frequencies)",
-                                  layout=w.Layout(width="420px"))
+                                  style={"description_width": "initial"},
+                                  layout=w.Layout(width="auto", flex="1 1 auto", min_width="320px"))
         self.slider.add_class("cubeloupe-channel-slider")
-        self.play = w.Play(min=0, max=cube.shape[0] - 1, interval=self.play_interval,
+        self.play = w.Play(min=0, max=cube.shape[0] - 1, interval=self.play_interval, show_repeat=False,
                            tooltip="Play the channels one after the other like a film",
-                           layout=w.Layout(width="140px"))
+                           layout=w.Layout(width="auto", flex="0 0 auto"))
         self.play.add_class("cubeloupe-channel-play")
-        self.back = w.Button(icon="step-backward", tooltip="Go one channel down", layout=w.Layout(width="36px"))
-        self.forward = w.Button(icon="step-forward", tooltip="Go one channel up", layout=w.Layout(width="36px"))
+        self.back = w.Button(icon="step-backward", tooltip="Go one channel down",
+                             layout=w.Layout(width="34px", flex="0 0 auto"))
+        self.forward = w.Button(icon="step-forward", tooltip="Go one channel up",
+                                layout=w.Layout(width="34px", flex="0 0 auto"))
         self.back.add_class("cubeloupe-channel-back")
         self.forward.add_class("cubeloupe-channel-forward")
         self.back.on_click(lambda _: self.step(-1))
         self.forward.on_click(lambda _: self.step(+1))
-        self.label = w.HTML()
+        self.label = w.HTML(layout=w.Layout(flex="0 0 auto", margin="0 0 0 10px"))
         self.label.add_class("cubeloupe-channel-label")
         super().__init__(children=[self.back, self.slider, self.forward, self.play, self.label], **kwargs)
+        self.layout.align_items = "center"
+        self.layout.width = "100%"
         self.add_class("cubeloupe-channel-bar")
         w.link((self.slider, "value"), (self, "channel"))
         w.link((self.play, "value"), (self, "channel"))
@@ -74,6 +81,7 @@ class ChannelBar(w.HBox):
             self.slider.max = self.play.max = n - 1
             self.channel = min(self.channel, n - 1)
         self._frequencies = display_axis(cube, "observed frequency")
+        self._file_rest = cube_rest_frequency(cube)
         self._show()
 
     @validate("channel")
@@ -84,28 +92,42 @@ class ChannelBar(w.HBox):
         """Move ``by`` channels (clamped to the band)."""
         self.channel = self.channel + int(by)
 
+    def _rest(self):
+        if self.rest_frequency > 0:
+            return self.rest_frequency * u.GHz
+        return self._file_rest  # the cube's RESTFRQ, as spectral.axis_in uses it (None if it has none)
+
     def channel_velocity(self):
-        """Velocity of the selected channel, or None when no line is set to measure it from."""
-        rest = self.rest_frequency * u.GHz if self.rest_frequency > 0 else None
+        """Velocity of the selected channel, or None when no rest frequency is known to measure it from."""
+        rest = self._rest()
         if rest is None:
             return None
-        key = (self.rest_frequency, self.z, self.convention, id(self._frequencies))
-        if self._velocity_key != key:
-            try:
-                # From the cached frequencies (not the cube's WCS): cheap enough for every z change.
-                self._velocities = display_axis(self._frequencies, "velocity", rest_frequency=rest, z=self.z,
-                                                convention=self.convention)
-            except CubeloupeError:
-                self._velocities = None
-            self._velocity_key = key
-        return None if self._velocities is None else self._velocities[self.channel]
+        try:
+            # Only the shown channel: cheap enough for every z or slider change.
+            return velocity(self._frequencies[self.channel], rest, self.z, self.convention)
+        except CubeloupeError:
+            return None
 
-    @observe("channel", "z", "rest_frequency", "convention")
+    def velocity_reference(self):
+        """What velocity zero is, in words (as the readout shows it)."""
+        rest = self._rest()
+        if rest is None:
+            return ""
+        if self.reference_label:
+            name = self.reference_label
+        elif self.rest_frequency <= 0:
+            name = f"RESTFRQ {rest.to_value(u.GHz):.6g} GHz"
+        else:
+            name = f"rest {rest.to_value(u.GHz):.6g} GHz"
+        return name + (f" at z = {self.z:g}" if self.z else "")
+
+    @observe("channel", "z", "rest_frequency", "convention", "reference_label")
     def _show(self, change=None):
         k = self.channel
         text = f"{self._frequencies[k].to_value(u.GHz):.6f} GHz"
         v = self.channel_velocity()
         if v is not None and np.isfinite(v.value):
-            text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention})"
+            text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention}, {self.velocity_reference()})"
         self.readout = text
-        self.label.value = f"<code>{text}</code>"
+        self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace);white-space:nowrap'>"
+                            f"{html.escape(text)}</span>")

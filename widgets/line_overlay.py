@@ -8,7 +8,9 @@ distances shown beside the redshift from `luminosity.redshift_summary`.
 """
 
 import html
+import logging
 import threading
+import time
 
 import astropy.units as u
 import ipywidgets as w
@@ -16,18 +18,18 @@ import numpy as np
 from bqplot import Lines, Scatter
 from traitlets import Enum, Float, Instance, List, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis.catalog import lines_in_band, load_catalog
+from cubeloupe.analysis.catalog import lines_in_band, load_catalog, select_lines
 from cubeloupe.analysis.display import marker_positions
 from cubeloupe.analysis.errors import CubeloupeError
 from cubeloupe.analysis.luminosity import redshift_summary
 from cubeloupe.analysis.redshift_solver import redshift_candidates
-from cubeloupe.analysis.spectral import Z_MAX, check_redshift
+from cubeloupe.analysis.spectral import Z_MAX, check_redshift, observed_frequency
 
-from ._look import MARKER_COLOR
-from .spectrum_view import SpectrumView
-from .status import StatusLine
+from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
 
 __all__ = ["LineOverlay"]
+
+log = logging.getLogger("cubeloupe.widgets")
 
 ISOMER_CHOICES = ("any", "ortho", "para", "none")
 
@@ -50,7 +52,9 @@ class LineOverlay(w.VBox):
     z, velocity_offset, species, spin_isomer, max_E_up, reference_line, candidates, lines
         See each trait's help.
     marker_x : ndarray
-        x positions of the markers on the spectrum view's current axis (read-only).
+        x positions of the markers of all rows of `lines` on the spectrum view's current axis (read-only).
+    shown_markers : ndarray of int
+        Rows of `lines` whose markers are drawn: those inside the spectrum view's x range (read-only).
     """
 
     z = Float(0.0, help="Source redshift; line markers sit at rest frequency / (1 + z)")
@@ -70,11 +74,16 @@ class LineOverlay(w.VBox):
         self.band = (float(min(band)), float(max(band)))
         self.catalog = load_catalog() if catalog is None else catalog
         self.marker_x = np.array([])
+        self.shown_markers = np.array([], dtype=int)
+        self._filtered_rest = None
+        self._lines_key = None
+        self._quiet_reference = False
+        self._summary_worker = _SummaryWorker(self._show_summary)
         self._build()
         super().__init__(children=self._children, **kwargs)
         self.add_class("cubeloupe-line-overlay")
         self.view.add_overlay_marks([self.stems, self.heads])
-        self.view.observe(self._on_view_frame, names=["axis_kind", "convention", "rest_frequency"])
+        self.view.observe(self._on_view_frame, names=["axis_kind", "convention", "rest_frequency", "x_range"])
         self.view.observe(self._on_peaks, names=["peaks"])
         self._refresh_lines()
 
@@ -91,58 +100,109 @@ class LineOverlay(w.VBox):
         self.heads.observe(self._on_head_selected, names=["selected"])
 
         self.z_input = w.BoundedFloatText(value=0.0, min=-0.99, max=Z_MAX, step=0.0001, description="Redshift z",
-                                          tooltip="Redshift of the source: catalog lines are drawn where "
-                                                              "they would be seen at this z (press Enter to apply)",
-                                          layout=w.Layout(width="200px"))
+                                          tooltip="Redshift of the source: catalog lines are drawn where they "
+                                                  "would be seen at this z (type a value and press Enter)",
+                                          style={"description_width": "initial"}, layout=w.Layout(width="190px"))
         self.z_input.add_class("cubeloupe-z-input")
         self.z_input.observe(self._on_z_input, names="value")
-        self.velocity_slider = w.FloatSlider(value=0.0, min=-self.velocity_range, max=self.velocity_range, step=5,
-                                             description="Shift (km/s)", readout_format="+.0f",
-                                             tooltip="Slide all line markers by a velocity, to line "
-                                                                 "them up with what you see",
-                                             style={"description_width": "initial"}, layout=w.Layout(width="380px"))
+        # A fine step, so that a velocity set from code (e.g. 1462.3 km/s) is not snapped by the browser.
+        self.velocity_slider = w.FloatSlider(value=0.0, min=-self.velocity_range, max=self.velocity_range, step=0.1,
+                                             description="Velocity shift (km/s)", readout_format="+.1f",
+                                             tooltip="Move all line markers by a systemic velocity (rest frame), "
+                                                     "to line them up with what you see",
+                                             style={"description_width": "initial"}, layout=w.Layout(width="440px"))
         self.velocity_slider.add_class("cubeloupe-velocity-slider")
         w.link((self.velocity_slider, "value"), (self, "velocity_offset"))
         species = sorted(set(self.catalog["species"]))
         self.species_choice = w.SelectMultiple(options=species, rows=4, description="Species",
-                                               tooltip="Show only the molecules/atoms picked here "
-                                                                   "(Ctrl/Cmd-click several; none picked shows all)",
-                                               layout=w.Layout(width="230px"))
+                                               tooltip="Show only the species picked here (Ctrl/Cmd-click to pick "
+                                                       "several). Nothing picked shows every species",
+                                               style={"description_width": "initial"},
+                                               layout=w.Layout(width="190px"))
+        self.species_choice.add_class("cubeloupe-species")
         self.species_choice.observe(lambda ch: setattr(self, "species", list(ch.new)), names="value")
-        self.isomer_choice = w.Dropdown(options=list(ISOMER_CHOICES), description="Spin",
-                                        tooltip="Show only ortho or para lines of molecules that have "
-                                                            "both forms (e.g. water)",
-                                        layout=w.Layout(width="160px"))
+        self.all_species_button = w.Button(description="All species", icon="undo", layout=w.Layout(width="110px"),
+                                           tooltip="Forget the species picked: show lines of every species")
+        self.all_species_button.on_click(lambda _: setattr(self, "species", []))
+        self._species_note = w.HTML()
+        self.isomer_choice = w.Dropdown(options=list(ISOMER_CHOICES), description="Spin isomer",
+                                        tooltip="Show only ortho or para lines of molecules that come in both "
+                                                "forms (e.g. water); 'any' shows all",
+                                        style={"description_width": "initial"}, layout=w.Layout(width="176px"))
         w.link((self.isomer_choice, "value"), (self, "spin_isomer"))
-        self.eup_input = w.FloatText(value=0.0, description="Max E_up (K)",
-                                     tooltip="Hide lines from levels more energetic than this (upper-"
-                                                         "level energy in kelvin); 0 shows all",
-                                     style={"description_width": "initial"}, layout=w.Layout(width="170px"))
-        self.eup_input.observe(lambda ch: setattr(self, "max_E_up", ch.new if ch.new and ch.new > 0 else None),
-                               names="value")
-        self.reference_choice = w.Dropdown(options=[("(none)", "")], description="Velocity of",
-                                           tooltip="The line whose redshifted frequency is zero velocity "
-                                                               "on the velocity axis and for measurements",
-                                           layout=w.Layout(width="280px"))
+        self.eup_input = w.Text(value="", placeholder="no limit", description="Max E_up/k (K)",
+                                continuous_update=False,
+                                tooltip="Hide lines whose upper level lies above this energy (in kelvin). "
+                                        "Leave blank to show lines of any energy",
+                                style={"description_width": "initial"}, layout=w.Layout(width="176px"))
+        self.eup_input.add_class("cubeloupe-max-eup")
+        self.eup_input.observe(self._on_eup_input, names="value")
+        self.reference_choice = w.Dropdown(options=[(self._default_reference_label(), "")],
+                                           description="Velocity zero",
+                                           tooltip="The line whose redshifted frequency is zero velocity on the "
+                                                   "velocity axis, in the channel readout and in measurements; "
+                                                   "the first entry is the cube's own rest frequency",
+                                           style={"description_width": "initial"},
+                                           layout=w.Layout(width="250px"))
         self.reference_choice.add_class("cubeloupe-reference-line")
         w.link((self.reference_choice, "value"), (self, "reference_line"))
-        self.candidate_choice = w.Dropdown(options=[], description="z guesses",
+        self.candidate_choice = w.Dropdown(options=[], description="Fits",
                                            tooltip="Redshifts that explain the peaks you marked, best first",
-                                           layout=w.Layout(width="460px"))
+                                           style={"description_width": "initial"},
+                                           layout=w.Layout(width="100%"))
         self.candidate_choice.add_class("cubeloupe-z-candidates")
-        self.use_candidate = w.Button(description="Use this z", icon="check",
-                                      tooltip="Set the redshift to the chosen guess")
+        self.use_candidate = w.Button(description="Use this z", icon="check", layout=w.Layout(width="104px"),
+                                      tooltip="Set the redshift to the chosen fit")
         self.use_candidate.add_class("cubeloupe-use-candidate")
         self.use_candidate.on_click(lambda _: self.use_candidate_index(self.candidate_choice.index or 0))
-        self.summary = w.HTML()
+        self.summary = w.HTML(value="&nbsp;", layout=w.Layout(min_height="20px"))
         self.summary.add_class("cubeloupe-z-summary")
-        self._hover = w.HTML()
-        self._children = [
-            w.HBox([self.z_input, self.velocity_slider, self.reference_choice]),
-            w.HBox([self.species_choice, w.VBox([self.isomer_choice, self.eup_input])]),
-            w.HBox([self.candidate_choice, self.use_candidate]),
-            self.summary, self._hover,
+        self._hover = w.HTML(value="<span style='color:#829ab1;font-size:90%'>Point at a line marker on the "
+                                   "spectrum for its details; click it to make it velocity zero.</span>",
+                             layout=w.Layout(min_height="20px"))
+        self._hover.add_class("cubeloupe-line-details")
+        peaks_hint = w.HTML("<span style='color:#829ab1;font-size:90%'>Choose <i>Peaks</i> above the spectrum "
+                            "and click two or more line tops; the redshifts that fit them appear here.</span>")
+        self._render_species_note()
+        self.groups = [
+            section("Redshift and velocity", [
+                row([self.z_input, self.reference_choice]),
+                self.velocity_slider,
+                self.summary,
+            ], width="450px", css_class="cubeloupe-redshift-group"),
+            section("Catalog lines shown", [
+                row([self.species_choice, w.VBox([self.isomer_choice, self.eup_input, self.all_species_button])],
+                    align_items="flex-start"),
+                self._species_note,
+            ], width="384px", css_class="cubeloupe-filter-group"),
+            section("Redshift from peaks", [peaks_hint, self.candidate_choice, self.use_candidate],
+                    css_class="cubeloupe-peaks-group"),
         ]
+        for group in self.groups[:2]:
+            group.layout.margin = "0 16px 4px 0"
+        self.groups[2].layout.flex = "1 1 200px"
+        self._children = [w.HBox(self.groups, layout=w.Layout(flex_flow="row wrap", align_items="flex-start")),
+                          self._hover]
+
+    def _default_reference_label(self):
+        rest = getattr(self.view, "file_rest_frequency", None)
+        if rest:
+            return f"cube RESTFRQ ({rest:.6g} GHz)"
+        return "band centre (no RESTFRQ)"
+
+    def _render_species_note(self):
+        if self.species:
+            text = f"Showing {len(self.species)} species: " + ", ".join(html.escape(s) for s in self.species)
+        else:
+            text = "Nothing picked: every species is shown."
+        self._species_note.value = f"<span style='color:#829ab1;font-size:90%'>{text}</span>"
+
+    def _on_eup_input(self, change):
+        try:
+            self.max_E_up = parse_optional_number(change.new, "Max E_up/k")
+        except ValueError as exc:
+            self.status.error(f"Could not use that energy limit: {exc}")
+            self.eup_input.value = format_optional_number(self.max_E_up)
 
     # ------------------------------------------------------------ validation
     @validate("z")
@@ -164,14 +224,33 @@ class LineOverlay(w.VBox):
         if self.z_input.value != self.z:
             self.z_input.value = self.z
         self._refresh_lines()
-        # Distances and ages need cosmological integrals (~10 ms): worked out off the main thread so the
-        # markers move at once; a newer z makes an older result stale.
-        self._summary_generation = getattr(self, "_summary_generation", 0) + 1
-        threading.Thread(target=self._show_summary, args=(self._summary_generation, self.z), daemon=True).start()
+        # Distances and ages need cosmological integrals: a background worker works them out once z
+        # has stopped changing, so the markers move at once and a slider drag is not slowed down.
+        self._summary_worker.request(self.z)
 
     @observe("species", "spin_isomer", "max_E_up")
     def _on_filters(self, change):
+        if change.name == "species":
+            if tuple(self.species_choice.value) != tuple(self.species):
+                self.species_choice.value = tuple(s for s in self.species if s in self.species_choice.options)
+            self._render_species_note()
+        if change.name == "max_E_up" and self.eup_input.value != format_optional_number(self.max_E_up):
+            self.eup_input.value = format_optional_number(self.max_E_up)
+        self._filtered_rest = None
         self._refresh_lines()
+
+    @observe("velocity_range")
+    def _on_velocity_range(self, change):
+        with self.velocity_slider.hold_trait_notifications():
+            self.velocity_slider.max = self.velocity_range
+            self.velocity_slider.min = -self.velocity_range
+        self._refresh_lines()  # the band searched for lines is padded by this range
+
+    @validate("velocity_range")
+    def _valid_velocity_range(self, proposal):
+        if not proposal["value"] > 0:
+            raise TraitError(f"velocity_range must be > 0 km/s; got {proposal['value']}")
+        return float(proposal["value"])
 
     @observe("velocity_offset")
     def _on_offset(self, change):
@@ -183,47 +262,84 @@ class LineOverlay(w.VBox):
     @observe("reference_line")
     def _on_reference(self, change):
         if not self.reference_line:
+            # Back to the cube's own rest frequency (or, without one, the band centre).
+            if change.old and not self._quiet_reference:
+                self.view.rest_frequency = float(self.view.file_rest_frequency or 0.0)
             return
         rows = self.catalog[np.asarray(self.catalog["name"]) == self.reference_line]
         if len(rows):
             self.view.rest_frequency = float(u.Quantity(rows["rest_frequency"], u.GHz)[0].to_value(u.GHz))
 
+    def refresh_reference_options(self):
+        """Rebuild the 'Velocity zero' choices (e.g. after the cube's rest frequency became known)."""
+        names = list(self.lines["name"]) if self.lines is not None else []
+        options = [(self._default_reference_label(), "")] + [(n, n) for n in names]
+        if self.reference_line and self.reference_line not in names:
+            options.append((self.reference_line, self.reference_line))
+        if tuple(options) != tuple(self.reference_choice.options):
+            self.reference_choice.options = options
+
     # --------------------------------------------------------------- markers
+    def _lines_needed(self, lo, hi):
+        """Which filtered catalog rows lines_in_band would return now (indices), or None to ask it.
+
+        The filters are applied once (`select_lines`); on a z change only the rest-frame band test
+        is repeated, with the same arithmetic as `lines_in_band`, and the table is asked for again
+        only when the set of lines changes.
+        """
+        if self._filtered_rest is None:
+            filtered = select_lines(self.catalog, species=self.species or None,
+                                    spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
+                                    max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
+            self._filtered_rest = np.asarray(u.Quantity(filtered["rest_frequency"], u.GHz).value)
+            self._lines_key = None
+        rest = self._filtered_rest
+        inside = (rest >= lo * (1 + self.z)) & (rest <= hi * (1 + self.z))
+        return tuple(np.flatnonzero(inside))
+
     def _refresh_lines(self):
         with self.status.guard("finding catalog lines in the band"):
             lo, hi = self.band
             # Widen by the slider's range so lines shifted into the band by the offset are kept.
             pad = 1 + self.velocity_range / 299792.458
-            self.lines = lines_in_band(lo / pad * u.GHz, hi * pad * u.GHz, self.z, self.catalog,
-                                       species=self.species or None,
-                                       spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
-                                       max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
-            names = list(self.lines["name"]) if self.lines is not None else []
-            options = [("(none)", "")] + [(n, n) for n in names]
-            if self.reference_line and self.reference_line not in names:
-                options.append((self.reference_line, self.reference_line))
-            if tuple(options) != tuple(self.reference_choice.options):
-                self.reference_choice.options = options
+            lo, hi = lo / pad, hi * pad
+            key = self._lines_needed(lo, hi)
+            if key != self._lines_key or self.lines is None:
+                self.lines = lines_in_band(lo * u.GHz, hi * u.GHz, self.z, self.catalog,
+                                           species=self.species or None,
+                                           spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
+                                           max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
+                self._lines_key = key
+                self.refresh_reference_options()
+            elif len(self.lines):
+                # Same lines, new z: only their observed frequencies change (rest / (1 + z)).
+                self.lines["observed_frequency"] = observed_frequency(
+                    u.Quantity(self.lines["rest_frequency"], u.GHz), self.z)
+                self.lines.meta["z"] = self.z
             self._place_markers()
 
     def _place_markers(self):
         with self.status.guard("placing the line markers"):
             if self.lines is None or len(self.lines) == 0:
                 x = np.array([])
-                names = []
             else:
                 rest = self.view._rest()
                 x = marker_positions(u.Quantity(self.lines["rest_frequency"], u.GHz), self.view.axis_kind, z=self.z,
                                      velocity_offset=self.velocity_offset * u.km / u.s,
                                      convention=self.view.convention, reference_rest_frequency=rest).value
-                names = list(self.lines["name"])
             self.marker_x = x
-            n = len(x)
+            # Only markers inside the drawn band: one outside is not drawn (and cannot stretch the axis).
+            shown = np.flatnonzero(self.view.in_view(x)) if len(x) else np.array([], dtype=int)
+            self.shown_markers = shown
+            names = [str(self.lines["name"][i]) for i in shown]
+            xs = x[shown]
+            n = len(xs)
             with self.view.figure.hold_sync():
-                self.stems.x = np.repeat(x[:, None], 2, axis=1) if n else []
+                self.stems.x = np.repeat(xs[:, None], 2, axis=1) if n else []
                 self.stems.y = np.tile([0.0, 0.88], (n, 1)) if n else []
-                self.heads.x, self.heads.y = x, np.full(n, 0.88)
-                self.heads.names = names
+                self.heads.x, self.heads.y = xs, np.full(n, 0.88)
+                if list(self.heads.names) != names:
+                    self.heads.names = names
 
     def _describe(self, index):
         row = self.lines[int(index)]
@@ -239,8 +355,12 @@ class LineOverlay(w.VBox):
     def _on_hover(self, mark, content):
         data = content.get("data") or content.get("point") or {}
         index = data.get("index")
-        if index is None and "x" in data and len(self.marker_x):
+        if index is not None and 0 <= int(index) < len(self.shown_markers):
+            index = int(self.shown_markers[int(index)])  # drawn marker -> row of `lines`
+        elif "x" in data and len(self.marker_x):
             index = int(np.argmin(np.abs(self.marker_x - float(data["x"]))))
+        else:
+            index = None
         if index is None or self.lines is None or not 0 <= int(index) < len(self.lines):
             return
         self.hover(int(index))
@@ -255,8 +375,8 @@ class LineOverlay(w.VBox):
 
     def _on_head_selected(self, change):
         # Clicking a marker makes its line the velocity reference.
-        if change.new is not None and len(change.new):
-            self.reference_line = str(self.lines["name"][int(change.new[0])])
+        if change.new is not None and len(change.new) and int(change.new[0]) < len(self.shown_markers):
+            self.reference_line = str(self.lines["name"][int(self.shown_markers[int(change.new[0])])])
 
     # ---------------------------------------------------------- redshift
     def _on_peaks(self, change):
@@ -274,8 +394,8 @@ class LineOverlay(w.VBox):
                 self.status.warn(f"No catalog lines explain the {len(peaks)} marked peaks together; "
                                  "check the peak positions or relax the filters.")
             else:
-                self.status.info(f"{len(found)} redshift guess(es) for {len(peaks)} peaks; pick one and press "
-                                 "'Use this z'.")
+                self.status.info(f"{len(found)} redshift(s) fit the {len(peaks)} marked peaks; pick one under "
+                                 "'Fits' and press 'Use this z'.")
 
     @observe("candidates")
     def _show_candidates(self, change):
@@ -288,24 +408,87 @@ class LineOverlay(w.VBox):
 
     def use_candidate_index(self, index):
         """Set z to the redshift of candidate ``index``."""
-        with self.status.guard("using the redshift guess"):
+        with self.status.guard("using the fitted redshift"):
             if not self.candidates:
-                self.status.warn("No redshift guesses yet: mark two or more peaks (mode 'Peaks') first.")
+                self.status.warn("No fitted redshifts yet: choose 'Peaks' above the spectrum and click two or "
+                                 "more line tops first.")
                 return
             self.z = float(self.candidates[int(index)].z)
 
-    def _show_summary(self, generation, z):
+    def _show_summary(self, z):
+        """Luminosity distance, angular scale and age at ``z`` (run by the summary worker)."""
         if z <= 0:
-            self.summary.value = ""
+            self.summary.value = "&nbsp;"
             return
         try:
             s = redshift_summary(z)
         except CubeloupeError as exc:
-            self.summary.value = html.escape(str(exc))
+            self.summary.value = f"<span style='color:#829ab1'>{html.escape(str(exc))}</span>"
             return
-        if generation != self._summary_generation:
-            return
+        if z != self.z:
+            return  # z moved on while this was worked out; the worker runs again for the new value
+        distance = s.luminosity_distance.to_value(u.Mpc)
         self.summary.value = (
-            f"<span style='color:#52606d'>At z = {z:g} ({html.escape(s.cosmology)}): D_L "
-            f"{s.luminosity_distance.to_value(u.Mpc):.0f} Mpc · {s.angular_scale.to_value(u.kpc / u.arcsec):.2f} "
-            f"kpc/arcsec · age {s.age.to_value(u.Gyr):.2f} Gyr</span>")
+            f"<span style='color:#52606d;font-size:90%'>{html.escape(s.cosmology)} at this z: "
+            f"D_L {distance:.{1 if distance < 100 else 0}f} Mpc · "
+            f"{s.angular_scale.to_value(u.kpc / u.arcsec):.3g} kpc/arcsec · "
+            f"cosmic age {s.age.to_value(u.Gyr):.2f} Gyr</span>")
+
+    def wait_for_summary(self, timeout=5.0):
+        """Block until the distance summary for the current z is shown (for scripts and tests)."""
+        return self._summary_worker.wait_idle(timeout)
+
+
+class _SummaryWorker:
+    """Runs ``action(z)`` in one background thread once z has stopped changing for ``quiet`` seconds.
+
+    One long-lived thread instead of one per change: starting a thread per keystroke or slider step
+    costs more than moving the markers, and the computation would compete with them for the GIL.
+    """
+
+    def __init__(self, action, quiet=0.15):
+        self._action = action
+        self._quiet = quiet
+        self._condition = threading.Condition()
+        self._pending = None
+        self._changed_at = 0.0
+        self._busy = False
+        self._thread = None
+
+    def request(self, z):
+        with self._condition:
+            self._pending = float(z)
+            self._changed_at = time.monotonic()
+            if self._thread is None:
+                self._thread = threading.Thread(target=self._run, name="cubeloupe-z-summary", daemon=True)
+                self._thread.start()
+            self._condition.notify()
+
+    def _run(self):
+        while True:
+            with self._condition:
+                while self._pending is None:
+                    self._condition.wait()
+                # Wait until z has been still for `quiet` seconds.
+                while (left := self._changed_at + self._quiet - time.monotonic()) > 0:
+                    self._condition.wait(left)
+                z, self._pending = self._pending, None
+                self._busy = True
+            try:
+                self._action(z)
+            except Exception:  # noqa: BLE001 - a summary must never kill the worker
+                log.exception("could not work out the distance summary for z = %s", z)
+            finally:
+                with self._condition:
+                    self._busy = False
+                    self._condition.notify_all()
+
+    def wait_idle(self, timeout=5.0):
+        deadline = time.monotonic() + timeout
+        with self._condition:
+            while self._pending is not None or self._busy:
+                left = deadline - time.monotonic()
+                if left <= 0:
+                    return False
+                self._condition.wait(min(left, 0.05))
+        return True

@@ -14,6 +14,7 @@ Examples
 >>> loupe.measurements[0]["flux"]                                         # doctest: +SKIP
 """
 
+import html
 import os
 
 import astropy.units as u
@@ -21,16 +22,18 @@ import ipywidgets as w
 import numpy as np
 from traitlets import Bool, Enum, Float, Instance, Int, List, TraitError, Unicode, link, observe, validate
 
+from cubeloupe.analysis.beams import cube_beam
 from cubeloupe.analysis.catalog import load_catalog
 from cubeloupe.analysis.cubes import open_cube
-from cubeloupe.analysis.display import AXIS_KINDS, channel_at, display_axis
-from cubeloupe.analysis.errors import CubeloupeError, RegionError, SpectralAxisError
+from cubeloupe.analysis.display import AXIS_KINDS, channel_at, cube_rest_frequency, display_axis
+from cubeloupe.analysis.errors import BeamError, CubeloupeError, RegionError, SpectralAxisError
 from cubeloupe.analysis.export import write_maps, write_spectra
 from cubeloupe.analysis.lines import measure_line
 from cubeloupe.analysis.luminosity import line_luminosity
 from cubeloupe.analysis.spectra import region_spectrum
 from cubeloupe.analysis.spectral import CONVENTIONS
 
+from ._look import section
 from .channel_bar import ChannelBar
 from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable, row_from
@@ -42,6 +45,12 @@ from .spectrum_view import SpectrumView
 from .status import StatusLine
 
 __all__ = ["Loupe"]
+
+SKY_COLUMN = 480  # px: the sky image, its colour bar and the sky controls
+
+_TITLE = ("<div style='display:flex;align-items:baseline;gap:10px;border-bottom:2px solid #334e68;"
+          "padding:0 0 3px 0;margin:0 0 6px 0'><span style='font-size:15px;font-weight:700;color:#243b53'>"
+          "cubeloupe</span><span style='font-size:12px;color:#486581;line-height:1.5'>{info}</span></div>")
 
 
 def _source_name(cube, index):
@@ -63,13 +72,17 @@ class Loupe(w.VBox):
         Extra line lists merged into the bundled catalog (see `load_catalog`), or a Table
         from `load_catalog` used as is.
     rest_frequency : Quantity [frequency], optional
-        Line velocities refer to; by default the file's RESTFRQ at z = 0, or the first
-        catalog line in the band.
+        Of the line velocities refer to (velocity zero is ``rest_frequency / (1 + z)``). By
+        default the cube's RESTFRQ; without one, the lowest-energy catalog line in the band
+        when z > 0, else the band centre once a velocity is needed (the status line says so).
     convention : {'radio', 'optical', 'relativistic'}
+    velocity_offset : Quantity [velocity] or float (km/s), optional
+        Systemic velocity that shifts the catalog line markers (e.g. a nearby galaxy's).
 
     Attributes
     ----------
-    window, channel, z, velocity_offset, rest_frequency, convention, axis_kind, regions,
+    window, channel, z, velocity_offset, rest_frequency, reference_line, velocity_reference, convention,
+    axis_kind, regions,
     line_free, line_window, peaks, baseline_order, show_subtracted, clip, moments, measurements,
     magnification, cosmology, sky_source
         The suite's state (see each trait's help); all readable and settable from code.
@@ -84,6 +97,8 @@ class Loupe(w.VBox):
     velocity_offset = Float(0.0, help="Systemic velocity shift (km/s) applied to the catalog line markers")
     rest_frequency = Float(0.0, help="Rest frequency (GHz) of the line velocities refer to (0: the file's RESTFRQ)")
     reference_line = Unicode("", help="Catalog name of the line velocities refer to ('' for none)")
+    velocity_reference = Unicode("", help="What velocity zero is, in words (read-only): a catalog line, the "
+                                          "cube's RESTFRQ, a rest frequency, or the band centre")
     convention = Enum(list(CONVENTIONS), "radio", help="Velocity convention")
     axis_kind = Enum(list(AXIS_KINDS), "observed frequency", help="x axis of the spectrum view")
     regions = List(help="Regions as dicts (name, color, kind, sky shape); see RegionList")
@@ -99,7 +114,8 @@ class Loupe(w.VBox):
     magnification = Float(1.0, help="Lensing magnification divided out of luminosities")
     cosmology = Unicode("Planck18", help="astropy cosmology used for luminosities")
 
-    def __init__(self, cubes, z=0.0, catalog=None, rest_frequency=None, convention="radio", **kwargs):
+    def __init__(self, cubes, z=0.0, catalog=None, rest_frequency=None, convention="radio", velocity_offset=None,
+                 **kwargs):
         self.status = StatusLine()
         self.cubes = []
         self.spectra = {}
@@ -109,8 +125,8 @@ class Loupe(w.VBox):
         for item in items:
             with self.status.guard(f"opening {item if isinstance(item, (str, os.PathLike)) else 'a cube'}"):
                 self.cubes.append(open_cube(item) if isinstance(item, (str, os.PathLike)) else item)
-        title = w.HTML("<div style='font-size:120%;font-weight:600;color:#243b53'>cubeloupe "
-                       "<span style='font-weight:400;color:#7b8794'>· line cube inspection</span></div>")
+        title = w.HTML(_TITLE.format(info="line cube inspection"))
+        title.add_class("cubeloupe-header")
         if not self.cubes:
             super().__init__(children=[title, self.status], **kwargs)
             self.add_class("cubeloupe-loupe")
@@ -120,13 +136,22 @@ class Loupe(w.VBox):
         problem = self.status.message if self.status.level == "error" else ""
         self.catalog = self._load_catalog(catalog)
         self._build()
+        self.header = title
         super().__init__(children=self._layout(title), **kwargs)
         self.add_class("cubeloupe-loupe")
         self._link_parts()
         with self.status.guard("setting the redshift and line"):
             self.convention = convention
             self.z = z
+            if velocity_offset is not None:
+                offset = float(u.Quantity(velocity_offset, u.km / u.s).to_value(u.km / u.s))
+                if abs(offset) > 0.6 * self.line_overlay.velocity_range:
+                    # Room on the slider either side of the systemic velocity, in whole 500 km/s.
+                    self.line_overlay.velocity_range = 500.0 * np.ceil(1.5 * abs(offset) / 500.0)
+                self.velocity_offset = offset
             self._choose_rest_frequency(rest_frequency)
+        self._describe_reference()
+        self._show_header()
         self._measure_enabled = True
         if problem:
             self.status.error(problem)
@@ -147,6 +172,8 @@ class Loupe(w.VBox):
         self.channel_bar = ChannelBar(self.cubes[0])
         self.region_list = RegionList(self.cubes[0].wcs)
         self.spectrum_view = SpectrumView(status=self.status)
+        restfrq = cube_rest_frequency(self.cubes[0])
+        self.spectrum_view.file_rest_frequency = None if restfrq is None else float(restfrq.to_value(u.GHz))
         self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
         band = (min(f.min() for f in self._frequencies), max(f.max() for f in self._frequencies))
         self.spectrum_view.band = band
@@ -155,18 +182,20 @@ class Loupe(w.VBox):
         self.measurement_table = MeasurementTable()
         self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
                                                  for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
-                                        description="Window",
-                                        tooltip="Which spectral window (cube) the sky view shows",
-                                        layout=w.Layout(width="460px",
+                                        description="Sky shows",
+                                        tooltip="Which spectral window (cube) the sky view shows; the spectrum "
+                                                "view shows them all",
+                                        style={"description_width": "initial"},
+                                        layout=w.Layout(width="440px",
                                                         display="" if len(self.cubes) > 1 else "none"))
         self.window_choice.add_class("cubeloupe-window-choice")
         self.export_box = self._build_exports()
 
     def _build_exports(self):
-        self.export_name = w.Text(value="cubeloupe", description="File stem",
-                                  tooltip="Start of the names of the files written; the kind of "
-                                                      "file and its extension are added",
-                                  layout=w.Layout(width="320px"))
+        self.export_name = w.Text(value="cubeloupe", description="File names start with",
+                                  tooltip="Start of the names of the files written (a folder may be included); "
+                                          "the kind of file and its extension are added",
+                                  style={"description_width": "initial"}, layout=w.Layout(width="360px"))
         self.export_overwrite = w.Checkbox(value=False, description="Replace existing files", indent=False,
                                            tooltip="Allow writing over files of the same name")
         buttons = []
@@ -182,7 +211,7 @@ class Loupe(w.VBox):
              lambda stem, ow: [self.save_picture("sky", f"{stem}_sky.png", ow),
                                self.save_picture("spectrum", f"{stem}_spectrum.png", ow)]),
         ):
-            button = w.Button(description=label, icon=icon, tooltip=tip, layout=w.Layout(width="190px"))
+            button = w.Button(description=label, icon=icon, tooltip=tip, layout=w.Layout(width="200px"))
             button.add_class("cubeloupe-export-" + label.split()[0].lower())
             button.on_click(lambda _, action=action, label=label: self._export_clicked(action, label))
             buttons.append(button)
@@ -198,10 +227,51 @@ class Loupe(w.VBox):
         tabs = w.Tab(children=[self.moment_panel, self.measurement_table, self.export_box])
         for i, name in enumerate(("Moment maps", "Measurements", "Export")):
             tabs.set_title(i, name)
-        left = w.VBox([self.window_choice, self.sky_view, self.channel_bar, self.region_list],
-                      layout=w.Layout(width="600px"))
-        right = w.VBox([self.spectrum_view, self.line_overlay], layout=w.Layout(flex="1 1 auto"))
-        return [title, self.status, w.HBox([left, right]), tabs]
+        tabs.add_class("cubeloupe-actions")
+        self.spectrum_view.figure.layout.height = "330px"
+        sky = section("Sky", [self.window_choice, self.sky_view], width=f"{SKY_COLUMN}px",
+                      css_class="cubeloupe-sky-section")
+        spectrum = section("Spectrum", [self.spectrum_view, self.region_list],
+                           hint="drag on it to mark ranges; pick what a click does below",
+                           css_class="cubeloupe-spectrum-section")
+        # The sky column keeps its width; the spectrum column takes what is left (not its content's width).
+        sky.layout.flex = f"0 0 {SKY_COLUMN}px"
+        spectrum.layout.flex = "1 1 0%"
+        spectrum.layout.min_width = "540px"
+        views = w.HBox([sky, spectrum], layout=w.Layout(align_items="flex-start", grid_gap="16px"))
+        channel = self.channel_bar
+        channel.layout.margin = "6px 0 2px 0"
+        channel.layout.border_top = "1px solid #d9e2ec"
+        channel.layout.padding = "4px 0 0 0"
+        self.status.layout.margin = "2px 0 8px 0"
+        return [title, views, channel, self.status, self.line_overlay, tabs]
+
+    def _show_header(self):
+        """One thin line per cube: file, shape, band, beam, unit (the current window in bold)."""
+        parts = []
+        for index, cube in enumerate(self.cubes):
+            f = self._frequencies[index]
+            try:
+                beam = cube_beam(cube)
+                if np.ndim(beam.major) > 0:
+                    beam_text = f"beam {np.median(beam.major.to_value(u.arcsec)):.2f}″ × " \
+                                f"{np.median(beam.minor.to_value(u.arcsec)):.2f}″ (median; varies by channel)"
+                else:
+                    beam_text = (f"beam {beam.major.to_value(u.arcsec):.2f}″ × {beam.minor.to_value(u.arcsec):.2f}″,"
+                                 f" PA {beam.pa.to_value(u.deg):.0f}°")
+            except BeamError:
+                beam_text = "no beam in the header"
+            n, ny, nx = cube.shape
+            width = abs(f[-1] - f[0]) / max(n - 1, 1) * 1e3
+            text = (f"{html.escape(_source_name(cube, index))} · {n} channels × {ny} × {nx} pixels · "
+                    f"{f.min():.4f}–{f.max():.4f} GHz ({width:.4g} MHz channels) · {beam_text} · "
+                    f"{html.escape(str(cube.unit) or 'no unit')}")
+            if len(self.cubes) > 1:
+                text = f"window {index}: {text}"
+                if index == self.window:
+                    text = f"<b>{text}</b>"
+            parts.append(text)
+        self.header.value = _TITLE.format(info="<br>".join(parts))
 
     def _link_parts(self):
         sv, sp, lo, rl, mp, mt, cb = (self.sky_view, self.spectrum_view, self.line_overlay, self.region_list,
@@ -218,6 +288,7 @@ class Loupe(w.VBox):
             link((self, name), (sp, name))
         for name in ("z", "rest_frequency", "convention"):
             link((self, name), (cb, name))
+        w.dlink((self, "velocity_reference"), (cb, "reference_label"), transform=self._short_reference)
         link((self, "regions"), (rl, "regions"))
         link((self, "clip"), (mp, "clip"))
         link((self, "magnification"), (mt, "magnification"))
@@ -227,18 +298,62 @@ class Loupe(w.VBox):
         mp.observe(self._on_moments, names=["maps"])
 
     def _choose_rest_frequency(self, rest_frequency):
+        """Velocity zero: the given rest frequency, else the cube's RESTFRQ, else a catalog line (z > 0)."""
         if rest_frequency is not None:
-            self.rest_frequency = float(u.Quantity(rest_frequency).to_value(u.GHz, equivalencies=u.spectral()))
+            value = float(u.Quantity(rest_frequency).to_value(u.GHz, equivalencies=u.spectral()))
+            self.rest_frequency = value
+            name = self._catalog_name_of(value)
+            if name:
+                self.reference_line = name
             return
-        restfrq = getattr(self.cubes[0].wcs.wcs, "restfrq", 0) or 0
-        if self.z == 0 and restfrq:
-            self.rest_frequency = restfrq / 1e9
+        restfrq = self.spectrum_view.file_rest_frequency
+        if restfrq:
+            # The cube's own rest frequency, as spectral.axis_in uses it when no line is given.
+            self.rest_frequency = restfrq
             return
         lines = self.line_overlay.lines
-        if lines is not None and len(lines):
+        if self.z != 0 and lines is not None and len(lines):
             # The lowest-energy line in the band is the usual first guess of what is seen.
             first = int(np.argmin(np.nan_to_num(np.asarray(lines["E_up"], dtype=float), nan=np.inf)))
             self.reference_line = str(lines["name"][first])
+
+    def _catalog_name_of(self, rest_ghz):
+        """The name of the one catalog line at this rest frequency (within 1 kHz), or ''."""
+        rest = np.asarray(u.Quantity(self.catalog["rest_frequency"], u.GHz).value)
+        hits = np.flatnonzero(np.abs(rest - rest_ghz) < 1e-6)
+        return str(self.catalog["name"][hits[0]]) if len(hits) == 1 else ""
+
+    @observe("reference_line", "rest_frequency")
+    def _describe_reference(self, change=None):
+        if not self.cubes or not hasattr(self, "line_overlay"):
+            return
+        if change is not None and change.name == "rest_frequency" and self.reference_line:
+            # A rest frequency set by hand that is not the chosen line's: the line no longer applies.
+            if self._catalog_name_of(self.rest_frequency) != self.reference_line:
+                self.line_overlay._quiet_reference = True
+                try:
+                    self.reference_line = ""
+                finally:
+                    self.line_overlay._quiet_reference = False
+        rest = self.rest_frequency
+        restfrq = self.spectrum_view.file_rest_frequency
+        if self.reference_line:
+            text = self.reference_line
+        elif rest > 0 and restfrq and abs(rest - restfrq) < 1e-9:
+            text = f"cube's RESTFRQ {restfrq:.6g} GHz"
+        elif rest > 0 and self.spectrum_view.band_centre_rest == rest:
+            text = f"band centre (rest {rest:.6g} GHz)"
+        elif rest > 0:
+            text = f"rest frequency {rest:.6g} GHz"
+        elif restfrq:
+            text = f"cube's RESTFRQ {restfrq:.6g} GHz"
+        else:
+            text = ""
+        self.velocity_reference = text
+
+    @staticmethod
+    def _short_reference(text):
+        return text.replace("cube's ", "").replace("rest frequency ", "rest ")
 
     # ----------------------------------------------------------- validation
     @validate("window")
@@ -267,6 +382,8 @@ class Loupe(w.VBox):
         if self.moment_panel.maps and self.moment_panel.window_index == self.window:
             self.sky_view.maps = self.moment_panel.maps
         self._update_cursor()
+        if len(self.cubes) > 1:
+            self._show_header()
 
     @observe("channel")
     def _update_cursor(self, change=None):
@@ -382,7 +499,7 @@ class Loupe(w.VBox):
             if not self.line_window or not self.spectra:
                 return
             if self.z != 0 and self._rest() is None:
-                raise SpectralAxisError("velocities need a line: pick it under 'Velocity of' (or set "
+                raise SpectralAxisError("velocities need a line: pick it under 'Velocity zero' (or set "
                                         "rest_frequency) before measuring")
             window = u.Quantity(self.line_window, u.GHz)
             for name, spectra in self.spectra.items():

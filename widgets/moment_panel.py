@@ -8,11 +8,12 @@ hooks drive the progress bar and the stop button.
 import threading
 
 import ipywidgets as w
-from traitlets import Bool, Dict, Float, Instance, Int, TraitError, Unicode, validate
+from traitlets import Bool, Dict, Float, Instance, Int, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis.errors import CancelledComputation
 from cubeloupe.analysis.moments import moment_maps
 
+from ._look import format_optional_number, parse_optional_number, row
 from .status import StatusLine
 
 __all__ = ["MomentPanel"]
@@ -51,27 +52,32 @@ class MomentPanel(w.VBox):
         self.status = status or StatusLine()
         self._thread = None
         self._cancel = None
-        self.clip_input = w.FloatText(value=0.0, description="Clip (× rms)",
-                                      tooltip="Moments 1 and 2 use only channels brighter than this "
-                                                          "many times the noise; 0 uses all channels. Needs "
-                                                          "line-free ranges",
-                                      style={"description_width": "initial"}, layout=w.Layout(width="170px"))
+        self.clip_input = w.Text(value="", placeholder="no clipping", description="Clip (× rms)",
+                                 continuous_update=False,
+                                 tooltip="Moments 1 and 2 use only channels brighter than this many times the "
+                                         "pixel's noise (measured on the line-free channels). Leave blank to use "
+                                         "every channel of the window",
+                                 style={"description_width": "initial"}, layout=w.Layout(width="190px"))
         self.clip_input.add_class("cubeloupe-clip-input")
         self.clip_input.observe(self._on_clip_input, names="value")
         self.start_button = w.Button(description="Make moment maps", icon="th", button_style="primary",
+                                     layout=w.Layout(width="170px"),
                                      tooltip="Compute moment 0 (integrated intensity), 1 (velocity) and 2 "
                                              "(velocity dispersion) over the line window, after the baseline")
         self.start_button.add_class("cubeloupe-moment-button")
         self.start_button.on_click(lambda _: self.start())
-        self.stop_button = w.Button(description="Stop", icon="stop", disabled=True,
+        self.stop_button = w.Button(description="Stop", icon="stop", disabled=True, layout=w.Layout(width="80px"),
                                     tooltip="Stop the moment-map computation")
         self.stop_button.add_class("cubeloupe-moment-stop")
         self.stop_button.on_click(lambda _: self.stop())
-        self.bar = w.FloatProgress(value=0.0, min=0.0, max=1.0, layout=w.Layout(width="220px"))
+        self.bar = w.FloatProgress(value=0.0, min=0.0, max=1.0, layout=w.Layout(width="200px"))
         self.bar.add_class("cubeloupe-moment-progress")
         self.bar_label = w.HTML()
-        super().__init__(children=[w.HBox([self.clip_input, self.start_button, self.stop_button]),
-                                   w.HBox([self.bar, self.bar_label])], **kwargs)
+        hint = w.HTML("<span style='color:#829ab1;font-size:90%'>Uses the line window and line-free ranges marked "
+                      "on the spectrum, and the baseline order; the maps appear under <i>Show</i> on the sky "
+                      "view.</span>")
+        super().__init__(children=[row([self.clip_input, self.start_button, self.stop_button, self.bar,
+                                        self.bar_label], flex_flow="row wrap"), hint], **kwargs)
         self.add_class("cubeloupe-moment-panel")
 
     @validate("clip")
@@ -82,7 +88,16 @@ class MomentPanel(w.VBox):
         return value
 
     def _on_clip_input(self, change):
-        self.clip = change.new if change.new and change.new > 0 else None
+        try:
+            self.clip = parse_optional_number(change.new, "The clip level")
+        except ValueError as exc:
+            self.status.error(f"Could not use that clip level: {exc}")
+            self.clip_input.value = format_optional_number(self.clip)
+
+    @observe("clip")
+    def _show_clip(self, change):
+        if self.clip_input.value.strip() != format_optional_number(self.clip):
+            self.clip_input.value = format_optional_number(self.clip)
 
     # ----------------------------------------------------------- running
     def start(self):

@@ -28,7 +28,7 @@ from traitlets import Bool, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis.errors import RegionError
 
-from ._look import REGION_COLORS
+from ._look import REGION_COLORS, section_title
 
 __all__ = ["RegionList", "REGION_KINDS"]
 
@@ -76,17 +76,25 @@ class RegionList(w.VBox):
         # on, so that grid needs no sky-to-pixel conversion (the regions package takes ~50 ms for one).
         self._drawn = {}
         self._grid_keys = {}
-        self._rows = w.VBox()
-        self.reshape_toggle = w.ToggleButton(value=False, description="Reshape selected", icon="arrows",
+        self._rows = w.Box(layout=w.Layout(flex_flow="row wrap", align_items="center"))
+        self._empty = w.HTML("<span style='color:#829ab1;font-size:90%'>No regions yet: pick Box, Oval, Outline "
+                             "or Pixel above the sky image and draw on it, or add one from code "
+                             "(<code>loupe.add_region(...)</code>).</span>")
+        self.reshape_toggle = w.ToggleButton(value=False, description="Reshape", icon="arrows",
+                                             layout=w.Layout(width="96px"),
                                              tooltip="When on, the next shape you draw replaces the shape of "
                                                      "the selected region instead of adding a new one")
+        self.reshape_toggle.add_class("cubeloupe-reshape")
         w.link((self.reshape_toggle, "value"), (self, "reshape"))
-        self.clear_button = w.Button(description="Remove all", icon="trash",
+        self.clear_button = w.Button(description="Remove all", icon="trash", layout=w.Layout(width="110px"),
                                      tooltip="Remove every region and its spectrum")
+        self.clear_button.add_class("cubeloupe-remove-all")
         self.clear_button.on_click(lambda _: setattr(self, "regions", []))
-        title = w.HTML("<b>Regions</b> <span style='color:#7b8794'>(draw on the image, or add from code)</span>")
-        super().__init__(children=[title, self._rows, w.HBox([self.reshape_toggle, self.clear_button])],
-                         **kwargs)
+        title = w.HTML(section_title("Regions", "spectra above are drawn in each region's colour"),
+                       layout=w.Layout(flex="1 1 auto"))
+        super().__init__(children=[w.HBox([title, self.reshape_toggle, self.clear_button],
+                                          layout=w.Layout(align_items="flex-end")),
+                                   self._empty, self._rows], **kwargs)
         self.add_class("cubeloupe-region-list")
         self._render()
 
@@ -322,17 +330,21 @@ class RegionList(w.VBox):
             color = w.ColorPicker(value=item["color"], concise=True, layout=w.Layout(width="36px"),
                                   tooltip="Colour of this region's outline and spectrum")
             color.observe(lambda ch, name=name: self.recolor(name, ch.new), names="value")
-            label = w.Text(value=name, layout=w.Layout(width="120px"),
+            label = w.Text(value=name, layout=w.Layout(width="96px"),
                            tooltip="Name of the region; type a new one and press Enter", continuous_update=False)
             label.observe(lambda ch, name=name: self._safe_rename(name, ch.new), names="value")
-            kind = w.HTML(f"<span style='color:#7b8794'>{item['kind']}</span>", layout=w.Layout(width="60px"))
+            kind = w.HTML(f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
+                          layout=w.Layout(width="48px"))
             drop = w.Button(icon="times", layout=w.Layout(width="36px"),
                             tooltip=f"Remove region {name} and its spectrum")
             drop.on_click(lambda _, name=name: self.remove(name))
-            row = w.HBox([pick, color, label, kind, drop])
+            row = w.HBox([pick, color, label, kind, drop],
+                         layout=w.Layout(align_items="center", margin="0 14px 0 0",
+                                         border_left=f"4px solid {item['color']}", padding="0 0 0 4px"))
             row.add_class("cubeloupe-region-row")
             rows.append(row)
         self._rows.children = rows
+        self._empty.layout.display = "none" if rows else ""
 
     def _safe_rename(self, old, new):
         try:

@@ -7,12 +7,14 @@ same module. Drawing tools turn mouse gestures into region shapes, which are
 handed to whoever listens (`on_shape`), usually a `RegionList`.
 """
 
+import html
+
 import ipywidgets as w
 import numpy as np
 from bqplot import Axis, ColorScale, Figure, LinearScale, Lines, Scatter
 from bqplot_image_gl import ImageGL
 from bqplot_image_gl.interacts import BrushEllipseSelector, BrushRectangleSelector, MouseInteraction
-from traitlets import Bool, Dict, Enum, Float, Instance, Int, List, TraitError, Unicode, observe, validate
+from traitlets import Bool, Dict, Enum, Float, Int, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis.beams import cube_beam
 from cubeloupe.analysis.display import (
@@ -26,10 +28,13 @@ from cubeloupe.analysis.display import (
 )
 from cubeloupe.analysis.errors import BeamError
 
-from ._look import RAMPS
+from ._look import RAMPS, row
 from .status import StatusLine
 
 __all__ = ["SkyView", "TOOLS"]
+
+_POINTER_HINT = ("<span style='color:#829ab1;font-size:90%'>Point at the image to read the sky position and "
+                 "value.</span>")
 
 # Drawing tools: value -> (button label, icon, tooltip)
 TOOLS = {
@@ -93,8 +98,8 @@ class SkyView(w.VBox):
         self._outline = None
         self._plane = None
         self._build()
-        super().__init__(children=[self._toolbar, w.HBox([self.figure, self.colorbar]), self._pointer],
-                         **kwargs)
+        super().__init__(children=[self._toolbar, w.HBox([self.figure, self.colorbar]), self._pointer,
+                                   self._display_bar], **kwargs)
         self.add_class("cubeloupe-sky-view")
         self._refresh_geometry()
         self._redraw()
@@ -118,18 +123,18 @@ class SkyView(w.VBox):
                                     self.draft_points],
                              axes=axes, padding_x=0, padding_y=0,
                              fig_margin={"top": 10, "bottom": 40, "left": 50, "right": 10},
-                             layout=w.Layout(width="460px", height="460px"))
+                             layout=w.Layout(width="364px", height="364px"))
         self.figure.add_class("cubeloupe-sky-figure")
         # Colour bar: the ramp drawn against data values, so its ticks read in data units.
         self._bar_scale = LinearScale(allow_padding=False)
         self._bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
                                   scales={"x": LinearScale(min=0, max=1), "y": self._bar_scale,
                                           "image": self.color_scale}, x=(0, 1))
-        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="",
+        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="54px",
                               grid_lines="none")
         self.colorbar = Figure(marks=[self._bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
-                               fig_margin={"top": 10, "bottom": 40, "left": 4, "right": 70},
-                               layout=w.Layout(width="110px", height="460px"))
+                               fig_margin={"top": 10, "bottom": 40, "left": 4, "right": 72},
+                               layout=w.Layout(width="96px", height="364px"))
         self.colorbar.add_class("cubeloupe-colorbar")
 
         self.pointer = MouseInteraction(x_scale=self.x_scale, y_scale=self.y_scale,
@@ -147,52 +152,58 @@ class SkyView(w.VBox):
             options=[(label, key) for key, (label, _, _) in TOOLS.items()],
             tooltips=[tip for _, _, tip in TOOLS.values()],
             icons=[icon for _, icon, _ in TOOLS.values()],
-            style=w.ToggleButtonsStyle(button_width="78px"))
+            style=w.ToggleButtonsStyle(button_width="88px"))
         self.tool_buttons.add_class("cubeloupe-region-tools")
         w.link((self.tool_buttons, "value"), (self, "tool"))
         self.close_outline_button = w.Button(description="Close outline", icon="check",
                                              tooltip="Finish the free-form outline you are clicking",
-                                             layout=w.Layout(width="120px", display="none"))
+                                             layout=w.Layout(width="130px", display="none"))
+        self.close_outline_button.add_class("cubeloupe-close-outline")
         self.close_outline_button.on_click(lambda _: self.finish_outline())
         self.stretch_choice = w.Dropdown(options=list(STRETCHES), description="Stretch",
                                          tooltip="How brightness maps to colour: 'linear' is even; "
-                                                             "'sqrt', 'log' and 'asinh' bring out faint emission",
-                                         layout=w.Layout(width="170px"))
+                                                 "'sqrt', 'log' and 'asinh' bring out faint emission",
+                                         style={"description_width": "initial"}, layout=w.Layout(width="150px"))
         self.stretch_choice.add_class("cubeloupe-stretch")
         w.link((self.stretch_choice, "value"), (self, "stretch"))
         self.palette_choice = w.Dropdown(options=list(RAMPS), description="Colours",
                                          tooltip="Colour ramp used for the image",
-                                         layout=w.Layout(width="190px"))
+                                         style={"description_width": "initial"}, layout=w.Layout(width="170px"))
+        self.palette_choice.add_class("cubeloupe-palette")
         w.link((self.palette_choice, "value"), (self, "palette"))
-        self.limits_slider = w.FloatRangeSlider(value=(0.5, 99.5), min=0, max=100, step=0.1,
-                                                description="Clip %", readout_format=".1f",
-                                                tooltip="Colour limits as percentiles of the shown "
-                                                                    "pixels: values outside are drawn at the ends "
-                                                                    "of the colour ramp",
-                                                layout=w.Layout(width="300px"))
+        self.limits_slider = w.FloatRangeSlider(value=(0.5, 99.5), min=0, max=100, step=0.5,
+                                                description="Colour limits (percentile)", readout_format=".1f",
+                                                tooltip="The darkest and brightest colours are set at these "
+                                                        "percentiles of the pixels shown; pixels outside are "
+                                                        "drawn at the ends of the colour ramp",
+                                                style={"description_width": "initial"},
+                                                layout=w.Layout(width="auto", flex="1 1 auto", min_width="300px"))
         self.limits_slider.add_class("cubeloupe-limits")
         self.limits_slider.observe(self._on_limits_slider, names="value")
         self.beam_toggle = w.Checkbox(value=True, description="Beam", indent=False,
-                                      tooltip="Show the telescope's beam (resolution) to scale "
-                                                          "in the lower left corner",
-                                      layout=w.Layout(width="80px"))
+                                      tooltip="Draw the beam (the resolution, FWHM) to scale in the lower left corner",
+                                      layout=w.Layout(width="64px"))
+        self.beam_toggle.add_class("cubeloupe-beam-toggle")
         w.link((self.beam_toggle, "value"), (self, "show_beam"))
         self.source_choice = w.Dropdown(options=[("channel", "channel")], description="Show",
-                                        tooltip="Show the current channel, or a moment map once "
-                                                            "one has been made",
-                                        layout=w.Layout(width="220px"))
+                                        tooltip="Show the current channel, or a moment map once one has been made",
+                                        style={"description_width": "initial"}, layout=w.Layout(width="175px"))
         self.source_choice.add_class("cubeloupe-source")
         w.link((self.source_choice, "value"), (self, "source"))
         self.contour_choice = w.Dropdown(options=[("none", "")], description="Contours",
                                          tooltip="Draw contour lines of a moment map over the image",
-                                         layout=w.Layout(width="220px"))
+                                         style={"description_width": "initial"}, layout=w.Layout(width="180px"))
+        self.contour_choice.add_class("cubeloupe-contours")
         w.link((self.contour_choice, "value"), (self, "contour_source"))
         self._toolbar = w.VBox([
-            w.HBox([self.tool_buttons, self.close_outline_button]),
-            w.HBox([self.source_choice, self.contour_choice, self.beam_toggle]),
-            w.HBox([self.stretch_choice, self.palette_choice, self.limits_slider]),
+            row([self.tool_buttons, self.close_outline_button], flex_flow="row wrap"),
+            row([self.source_choice, self.contour_choice, self.beam_toggle]),
         ])
-        self._pointer = w.HTML(value="&nbsp;")
+        self._display_bar = w.VBox([
+            row([self.stretch_choice, self.palette_choice]),
+            row([self.limits_slider]),
+        ])
+        self._pointer = w.HTML(value=_POINTER_HINT, layout=w.Layout(min_height="20px"))
         self._pointer.add_class("cubeloupe-pointer")
 
     # ------------------------------------------------------------ validation
@@ -446,7 +457,7 @@ class SkyView(w.VBox):
         domain = content.get("domain") or {}
         if event == "mouseleave":
             self.pointer_text = ""
-            self._pointer.value = "&nbsp;"
+            self._pointer.value = _POINTER_HINT
             return
         if "x" not in domain or "y" not in domain:
             return
@@ -477,12 +488,13 @@ class SkyView(w.VBox):
         i, j = int(round(x)), int(round(y))
         if not (0 <= i < nx and 0 <= j < ny) or self._plane is None:
             self.pointer_text = ""
-            self._pointer.value = "&nbsp;"
+            self._pointer.value = _POINTER_HINT
             return ""
         _, where = sky_position(self.cube.wcs, x, y)
         unit = self.maps[self.source].unit if self.source != "channel" else self.cube.unit
         value = self._plane[j, i]
         text = f"{where}  (x={i}, y={j})  value {value:.4g} {unit}"
         self.pointer_text = text
-        self._pointer.value = f"<code>{text}</code>"
+        self._pointer.value = (f"<span style='font-family:var(--jp-code-font-family,monospace);font-size:90%'>"
+                               f"{html.escape(text)}</span>")
         return text

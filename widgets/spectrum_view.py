@@ -20,7 +20,7 @@ from cubeloupe.analysis.errors import CubeloupeError, FitError, SpectralRangeErr
 from cubeloupe.analysis.polybaseline import MAX_ORDER, check_order
 from cubeloupe.analysis.spectral import CONVENTIONS
 
-from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR
+from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
 from .status import StatusLine
 
 __all__ = ["SpectrumView", "CLICK_MODES"]
@@ -69,10 +69,18 @@ class SpectrumView(w.VBox):
     mode = Enum(list(CLICK_MODES), "go", help="What clicking or dragging on the spectrum does")
     cursor_frequency = Float(None, allow_none=True, help="Observed frequency (GHz) of the channel on the sky")
     brushing = Bool(False, help="True while a range is being dragged (heavy work waits until release)")
+    x_range = List(Float(), help="The x range drawn, [low, high] in the axis unit (read-only): the data band(s) "
+                                 "with a small margin; empty until the band is known")
+
+    #: Fraction of the band's width left free on each side of the x axis.
+    band_margin = 0.02
 
     def __init__(self, status=None, **kwargs):
         self.status = status or StatusLine()
-        self.band = None  # (low, high) observed GHz of all windows; set by the owner
+        self._band = None
+        # The cube's own rest frequency (RESTFRQ, GHz), used for velocities when no line is chosen.
+        self.file_rest_frequency = None
+        self.band_centre_rest = None  # the rest frequency adopted from the band centre, if that happened
         self.spectra = {}
         self.fits = {}
         self.curve_marks = {}
@@ -84,9 +92,21 @@ class SpectrumView(w.VBox):
         self.add_class("cubeloupe-spectrum-view")
         self._draw_ranges()
 
+    @property
+    def band(self):
+        """(low, high) observed frequency in GHz covered by the data (all windows); set by the owner."""
+        return self._band
+
+    @band.setter
+    def band(self, value):
+        self._band = None if value is None else (float(min(value)), float(max(value)))
+        self._update_x_range()
+
     # ------------------------------------------------------------- building
     def _build(self):
-        self.x_scale = LinearScale()
+        # The x range is set from the data band (see _update_x_range), not from the marks: a line
+        # marker or a cursor outside the band must not stretch the axis.
+        self.x_scale = LinearScale(allow_padding=False)
         self.y_scale = LinearScale()
         self.band_scale = LinearScale(min=0.0, max=1.0, allow_padding=False)
         self.x_axis = Axis(scale=self.x_scale, label="observed frequency (GHz)", grid_lines="none")
@@ -114,39 +134,44 @@ class SpectrumView(w.VBox):
         self._set_marks()
 
         self.axis_choice = w.Dropdown(options=list(AXIS_KINDS), description="x axis",
-                                      tooltip="Show the spectrum against the frequency observed, the "
-                                                          "frequency in the source's rest frame, or velocity "
-                                                          "relative to the chosen line",
-                                      layout=w.Layout(width="230px"))
+                                      tooltip="Draw the spectrum against the observed (sky) frequency, the "
+                                              "frequency in the source's rest frame, or velocity relative to "
+                                              "the chosen line",
+                                      style={"description_width": "initial"}, layout=w.Layout(width="196px"))
         self.axis_choice.add_class("cubeloupe-axis-choice")
         w.link((self.axis_choice, "value"), (self, "axis_kind"))
-        self.convention_choice = w.Dropdown(options=list(CONVENTIONS), description="Velocity",
-                                            tooltip="Doppler convention used for velocities: radio, "
-                                                                "optical or relativistic",
-                                            layout=w.Layout(width="200px"))
+        self.convention_choice = w.Dropdown(options=list(CONVENTIONS), description="Doppler",
+                                            tooltip="Velocity convention: radio, optical or relativistic "
+                                                    "(used by the velocity axis, the channel readout and "
+                                                    "the measurements)",
+                                            style={"description_width": "initial"},
+                                            layout=w.Layout(width="146px"))
+        self.convention_choice.add_class("cubeloupe-convention")
         w.link((self.convention_choice, "value"), (self, "convention"))
         self.mode_buttons = w.ToggleButtons(options=[(label, key) for key, (label, _) in CLICK_MODES.items()],
                                             tooltips=[tip for _, tip in CLICK_MODES.values()],
-                                            style=w.ToggleButtonsStyle(button_width="100px"))
+                                            style=w.ToggleButtonsStyle(button_width="112px"))
         self.mode_buttons.add_class("cubeloupe-spectrum-mode")
         w.link((self.mode_buttons, "value"), (self, "mode"))
         self.order_choice = w.BoundedIntText(value=1, min=0, max=MAX_ORDER, description="Baseline order",
                                              tooltip="Degree of the polynomial fitted to the line-free "
-                                                                 "channels: 0 is a flat offset, 1 a sloped line",
-                                             style={"description_width": "initial"}, layout=w.Layout(width="160px"))
+                                                     "channels: 0 is a flat offset, 1 a sloped line",
+                                             style={"description_width": "initial"}, layout=w.Layout(width="136px"))
         self.order_choice.add_class("cubeloupe-baseline-order")
         w.link((self.order_choice, "value"), (self, "baseline_order"))
-        self.subtract_toggle = w.Checkbox(value=False, description="Subtract baseline", indent=False,
-                                          tooltip="Show the spectra with the fitted baseline removed",
-                                          layout=w.Layout(width="150px"))
+        self.subtract_toggle = w.Checkbox(value=False, description="Subtract", indent=False,
+                                          tooltip="Show the spectra with the fitted baseline subtracted",
+                                          layout=w.Layout(width="86px"))
         self.subtract_toggle.add_class("cubeloupe-subtract")
         w.link((self.subtract_toggle, "value"), (self, "show_subtracted"))
-        self.clear_button = w.Button(description="Clear marks", icon="eraser",
+        self.clear_button = w.Button(description="Clear", icon="eraser", layout=w.Layout(width="84px"),
                                      tooltip="Forget the line-free ranges, line window and peaks marked so far")
+        self.clear_button.add_class("cubeloupe-clear-marks")
         self.clear_button.on_click(lambda _: self.clear_marks())
         self._toolbar = w.VBox([
-            w.HBox([self.axis_choice, self.convention_choice, self.order_choice, self.subtract_toggle]),
-            w.HBox([self.mode_buttons, self.clear_button]),
+            row([self.axis_choice, self.convention_choice, self.order_choice, self.subtract_toggle],
+                flex_flow="row wrap"),
+            row([self.mode_buttons, self.clear_button], flex_flow="row wrap"),
         ])
 
     def _set_marks(self):
@@ -204,7 +229,7 @@ class SpectrumView(w.VBox):
     @observe("axis_kind", "convention", "z", "rest_frequency")
     def _on_frame(self, change):
         if self.axis_kind == "velocity" and self._rest() is None:
-            self._adopt_band_centre()
+            self._adopt_default_rest()
             return  # setting rest_frequency comes back here
         unit = AXIS_KINDS[self.axis_kind]
         self.x_axis.label = f"{self.axis_kind} ({unit.to_string()})" + (
@@ -212,18 +237,45 @@ class SpectrumView(w.VBox):
         # An observed-frequency axis does not depend on z, the line or the convention.
         if change.name == "axis_kind" or (self.axis_kind == "velocity") or \
                 (self.axis_kind == "rest frequency" and change.name == "z"):
+            self._update_x_range()
             self._redraw_all()
 
-    def _adopt_band_centre(self):
-        """A velocity axis with no line: measure velocities from the band centre, and say so."""
+    def _adopt_default_rest(self):
+        """A velocity axis with no line: use the cube's RESTFRQ, else the band centre (and say so)."""
+        if self.file_rest_frequency:
+            self.rest_frequency = float(self.file_rest_frequency)
+            return
         with self.status.guard("switching to a velocity axis"):
             if self.band is None:
                 raise SpectralRangeError("a velocity axis needs a line: set the rest frequency first")
             centre = display_axis([sum(self.band) / 2] * u.GHz, "rest frequency", z=self.z)[0]
-            self.status.warn(f"No line chosen, so velocities are measured from the band centre "
-                             f"({sum(self.band) / 2:.6f} GHz observed, rest frequency {centre.value:.6f} GHz at "
-                             f"z = {self.z:g}); pick a line under 'Velocity of' to measure from it.")
-            self.rest_frequency = float(centre.to_value(u.GHz))
+            self.status.warn(f"No line chosen and the cube has no rest frequency (RESTFRQ), so velocities are "
+                             f"measured from the band centre ({sum(self.band) / 2:.6f} GHz observed, rest frequency "
+                             f"{centre.value:.6f} GHz at z = {self.z:g}); pick a line under 'Velocity zero' "
+                             "to measure from it.")
+            self.band_centre_rest = float(centre.to_value(u.GHz))
+            self.rest_frequency = self.band_centre_rest
+
+    def _update_x_range(self):
+        """Span the x axis over the data band(s) plus a small margin, in the current axis unit."""
+        if self.band is None:
+            return
+        try:
+            ends = np.sort(self.x_of_frequency(np.array(self.band)))
+        except CubeloupeError:
+            return  # a velocity axis waiting for its line; _on_frame comes back once it is set
+        margin = self.band_margin * (ends[1] - ends[0]) if ends[1] > ends[0] else 1.0
+        low, high = float(ends[0] - margin), float(ends[1] + margin)
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = low, high
+        self.x_range = [low, high]
+
+    def in_view(self, x):
+        """Boolean mask of the x values (current axis units) inside the drawn x range."""
+        x = np.asarray(x, dtype=float)
+        if not self.x_range:
+            return np.ones(x.shape, dtype=bool)
+        return (x >= self.x_range[0]) & (x <= self.x_range[1])
 
     # ---------------------------------------------------------------- data
     def set_spectra(self, name, color, spectra):
@@ -345,6 +397,10 @@ class SpectrumView(w.VBox):
     def _draw_ranges(self):
         with self.figure.hold_sync():
             self.free_mark.x, self.free_mark.y = self._band_polygons(self.line_free)
+            # One fill colour per shaded range (bqplot fills only the lines it has a colour for).
+            n_free = max(len(self.line_free), 1)
+            self.free_mark.fill_colors = [LINE_FREE_FILL] * n_free
+            self.free_mark.fill_opacities = [0.3] * n_free
             self.window_mark.x, self.window_mark.y = self._band_polygons([self.line_window] if self.line_window
                                                                          else [])
             if self.peaks:

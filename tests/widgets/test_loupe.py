@@ -229,6 +229,40 @@ def test_velocity_axis_uses_the_chosen_convention(loupe):
     assert_allclose(x, 299792.458 * (230.538 - f) / f, rtol=1e-9)  # optical: c (f0 - f) / f
 
 
+def test_velocity_with_no_line_chosen_is_from_the_cubes_restfrq(cube_path, rng):
+    """No rest frequency given: velocities are from the header's RESTFRQ, at any z, and the readout says so."""
+    # cubefactory: RESTFRQ 220.0 GHz here, channel 0 at 230.538 GHz
+    loupe = Loupe(cube_path(rng.normal(size=(20, 6, 6)), crval3=230.538e9, restfrq=220.0e9), z=0.0)
+    assert loupe.rest_frequency == pytest.approx(220.0)
+    assert loupe.reference_line == "" and "RESTFRQ 220 GHz" in loupe.velocity_reference
+    # radio velocity v = c (f0 - f) / f0 (Greisen et al. 2006, A&A 446, 747), as axis_in with no line gives
+    v = 299792.458 * (220.0 - 230.538) / 220.0
+    assert f"{v:+.1f} km/s (radio, RESTFRQ 220 GHz)" in loupe.channel_bar.readout
+    loupe.axis_kind = "velocity"
+    assert loupe.status.level != "warning", loupe.status.message
+    assert loupe.spectrum_view.x_of_frequency(230.538)[0] == pytest.approx(v, rel=1e-9)
+    # a redshift keeps RESTFRQ as the line's rest frequency: zero velocity moves to 220 / (1 + z)
+    loupe.z = 0.1
+    assert "at z = 0.1" in loupe.channel_bar.readout
+    assert loupe.spectrum_view.x_of_frequency(220.0 / 1.1)[0] == pytest.approx(0.0, abs=1e-6)
+
+
+def test_chosen_line_names_the_velocity_zero_and_none_goes_back_to_restfrq(loupe):
+    # CO J=2-1 at 230.538 GHz (CDMS, from memory) equals this cube's RESTFRQ; naming it on the call finds it
+    named = Loupe(loupe.cubes[0], rest_frequency=230.538 * u.GHz)
+    assert named.reference_line == "CO J=2-1"
+    assert "(radio, CO J=2-1)" in named.channel_bar.readout
+    loupe.line_overlay.reference_choice.value = "CO J=2-1"
+    assert loupe.velocity_reference == "CO J=2-1"
+    loupe.line_overlay.reference_choice.value = ""
+    assert loupe.rest_frequency == pytest.approx(230.538) and "RESTFRQ" in loupe.velocity_reference
+    # a rest frequency typed in code that is not the chosen line's drops the line name
+    loupe.reference_line = "CO J=2-1"
+    loupe.rest_frequency = 230.0
+    assert loupe.reference_line == "" and loupe.velocity_reference == "rest frequency 230 GHz"
+    assert loupe.rest_frequency == 230.0
+
+
 def test_velocity_axis_without_a_line_measures_from_the_band_centre():
     from cubeloupe.widgets import SpectrumView
 
@@ -255,7 +289,11 @@ def test_markers_sit_at_rest_over_one_plus_z(cube_path, rng):
         assert list(overlay.lines["name"]) == list(lines["name"])
         expected = u.Quantity(lines["rest_frequency"], u.GHz).value / (1 + z)
         assert_allclose(overlay.marker_x, expected, rtol=1e-12)
-        assert_allclose(overlay.heads.x, expected, rtol=1e-12)
+        # only markers inside the drawn band are drawn (at z = 0.9995 CO J=4-3 sits above the band)
+        lo, hi = loupe.spectrum_view.x_range
+        inside = (expected >= lo) & (expected <= hi)
+        assert_allclose(overlay.heads.x, expected[inside], rtol=1e-12)
+        assert list(overlay.heads.names) == list(np.asarray(lines["name"])[inside])
     # the typed redshift field drives z
     overlay.z_input.value = 1.0002
     assert loupe.z == 1.0002
@@ -268,6 +306,79 @@ def test_markers_sit_at_rest_over_one_plus_z(cube_path, rng):
     row = overlay.lines[0]
     assert f"{u.Quantity(row['rest_frequency'], u.GHz).value:.6f}" in text
     assert "E_up" in text and str(row["spin_isomer"]) in text and str(row["provenance"])[:10] in text
+
+
+def test_x_axis_spans_the_data_band_not_the_markers(cube_path, rng):
+    """Regression: a line marker outside the band stretched the x axis (issue 4 review)."""
+    # 400 channels of 1 MHz from 230.538 GHz down (the cube's header): band 230.139-230.538 GHz
+    loupe = Loupe(cube_path(rng.normal(size=(400, 6, 6))), z=0.9995)
+    view = loupe.spectrum_view
+    span = 230.538 - 230.139
+    expected = [230.139 - view.band_margin * span, 230.538 + view.band_margin * span]
+    assert view.x_range == pytest.approx(expected, rel=1e-12)
+    assert [view.x_scale.min, view.x_scale.max] == pytest.approx(expected, rel=1e-12)
+    # CO J=4-3 (461.0408 GHz, CDMS, from memory) is at 230.578 GHz here: above the band, so not drawn
+    co43 = 461.040768 / 1.9995
+    assert any(abs(x - co43) < 1e-6 for x in loupe.line_overlay.marker_x)
+    assert all(abs(x - co43) > 1e-3 for x in loupe.line_overlay.heads.x)
+    # on a velocity axis the range is the band's velocities (radio, RESTFRQ 230.538 GHz, z = 0.9995)
+    loupe.axis_kind = "velocity"
+    c = 299792.458  # km/s
+    v = sorted(c * (1 - f * 1.9995 / 230.538) for f in (230.139, 230.538))
+    margin = view.band_margin * (v[1] - v[0])
+    assert view.x_range == pytest.approx([v[0] - margin, v[1] + margin], rel=1e-9)
+
+
+def test_energy_limit_is_blank_for_no_limit(loupe):
+    overlay = loupe.line_overlay
+    assert overlay.max_E_up is None and overlay.eup_input.value == "" and overlay.eup_input.placeholder
+    shown = len(overlay.lines)
+    overlay.eup_input.value = "20"
+    assert overlay.max_E_up == 20.0
+    # the filter is the catalog's: every line left has E_up/k <= 20 K
+    assert all(u.Quantity(overlay.lines["E_up"], u.K).value <= 20)
+    assert len(overlay.lines) <= shown
+    overlay.eup_input.value = "lots"
+    assert overlay.max_E_up == 20.0 and overlay.eup_input.value == "20" and loupe.status.level == "error"
+    overlay.eup_input.value = " "
+    assert overlay.max_E_up is None and len(overlay.lines) == shown
+    # nothing picked means every species; picking and "All species" round-trip
+    assert overlay.species == [] and "every species" in overlay._species_note.value
+    overlay.species = ["CO"]
+    assert overlay.species_choice.value == ("CO",) and set(overlay.lines["species"]) <= {"CO"}
+    overlay.all_species_button.click()
+    assert overlay.species == [] and overlay.species_choice.value == ()
+
+
+def test_clip_level_is_blank_for_no_clipping(loupe):
+    panel = loupe.moment_panel
+    assert loupe.clip is None and panel.clip_input.value == ""
+    panel.clip_input.value = "3"
+    assert loupe.clip == 3.0
+    panel.clip_input.value = "-1"
+    assert loupe.clip == 3.0 and loupe.status.level == "error"
+    loupe.clip = None
+    assert panel.clip_input.value == ""
+
+
+def test_systemic_velocity_puts_the_marker_on_the_line(cube_path, rng):
+    # 100 channels of 4.88 MHz below 229.65 GHz; CO J=2-1 (230.538 GHz, CDMS, from memory) at +1462 km/s
+    loupe = Loupe(cube_path(rng.normal(size=(100, 6, 6)), crval3=229.65e9, cdelt3=-4.8828125e6),
+                  rest_frequency=230.538 * u.GHz, velocity_offset=1462 * u.km / u.s)
+    assert loupe.velocity_offset == 1462.0
+    assert loupe.line_overlay.velocity_slider.max >= 1462.0 >= loupe.line_overlay.velocity_slider.min
+    # radio convention: f = f0 (1 - v/c) (Greisen et al. 2006, A&A 446, 747)
+    expected = 230.538 * (1 - 1462 / 299792.458)
+    names = list(loupe.line_overlay.heads.names)
+    assert "CO J=2-1" in names
+    assert loupe.line_overlay.heads.x[names.index("CO J=2-1")] == pytest.approx(expected, rel=1e-12)
+
+
+def test_header_names_the_cube(loupe, line_cube):
+    text = loupe.header.value
+    # cubefactory: 60 channels of 24 x 28 pixels, 1 MHz channels, a 1" round beam, Jy/beam
+    assert line_cube.name in text and "60 channels × 24 × 28 pixels" in text
+    assert "1 MHz channels" in text and "beam 1.00″ × 1.00″" in text and "Jy / beam" in text
 
 
 def test_bad_redshift_is_refused_with_a_message(loupe):
