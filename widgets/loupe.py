@@ -78,6 +78,10 @@ class Loupe(w.VBox):
     convention : {'radio', 'optical', 'relativistic'}
     velocity_offset : Quantity [velocity] or float (km/s), optional
         Systemic velocity that shifts the catalog line markers (e.g. a nearby galaxy's).
+    client : distributed.Client or 'default', optional
+        Send the moment-map computation to a dask.distributed cluster (see
+        `cubeloupe.analysis.moment_maps`); by default it runs in this kernel,
+        one thread per core. Views always read from the kernel's own memory map.
 
     Attributes
     ----------
@@ -115,8 +119,9 @@ class Loupe(w.VBox):
     cosmology = Unicode("Planck18", help="astropy cosmology used for luminosities")
 
     def __init__(self, cubes, z=0.0, catalog=None, rest_frequency=None, convention="radio", velocity_offset=None,
-                 **kwargs):
+                 client=None, **kwargs):
         self.status = StatusLine()
+        self.client = client
         self.cubes = []
         self.spectra = {}
         self._region_keys = {}
@@ -528,7 +533,7 @@ class Loupe(w.VBox):
         return {"cube": self.cube, "window": u.Quantity(self.line_window, u.GHz),
                 "line_free": u.Quantity(free, u.GHz) if free else None, "order": self.baseline_order,
                 "rest_frequency": self._rest(), "z": self.z, "convention": self.convention,
-                "window_index": self.window}
+                "client": self.client, "window_index": self.window}
 
     def make_moments(self, wait=False):
         """Start the moment maps of the current window (in a background thread); optionally wait."""

@@ -426,6 +426,32 @@ def test_moment_action_equals_moment_maps(loupe, line_cube):
     assert len(loupe.sky_view.contour_mark.x) > 0
 
 
+@pytest.mark.slow
+def test_moments_on_a_cluster_equal_those_in_the_kernel(line_cube):
+    """The same suite on a dask.distributed cluster gives the same maps (issue #7)."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster, distributed.Client(cluster) as client:
+        on_cluster = Loupe(line_cube, client=client)
+        _mark_ranges(on_cluster)
+        on_cluster.make_moments(wait=True)
+        assert on_cluster.moment_panel.state == "done", on_cluster.status.message
+    in_kernel = Loupe(line_cube)
+    _mark_ranges(in_kernel)
+    in_kernel.make_moments(wait=True)
+    for key in ("m0", "m1", "m2", "m0_error"):
+        assert_allclose(getattr(on_cluster.moments, key).value, getattr(in_kernel.moments, key).value,
+                        rtol=1e-12, equal_nan=True)
+
+
+def test_a_missing_cluster_is_reported_in_the_status_line(line_cube):
+    loupe = Loupe(line_cube, client="default")
+    _mark_ranges(loupe)
+    loupe.make_moments(wait=True)
+    assert loupe.moment_panel.state == "failed"
+    assert loupe.status.level == "error" and "no dask.distributed Client is running" in loupe.status.message
+
+
 def test_moments_without_a_window_say_so(loupe):
     assert loupe.make_moments(wait=True) is None
     assert loupe.status.level == "error" and "line window" in loupe.status.message
