@@ -56,13 +56,20 @@ Top level:
     ``n_significant_pixels`` (|significance| >= 5); ``rule``. Null when
     too few channels are line-free.
 
-    ``lines``: ``z``; ``threshold_snr``; ``expected`` (catalog lines in the
+    ``lines``: ``z``; ``threshold_snr`` (the threshold asked for);
+    ``effective_threshold_snr`` (the threshold applied: the larger of the one
+    asked for and the level above which ``false_alarms`` pure-noise peaks
+    are expected in the whole cube); ``false_alarms`` (null when not
+    controlled); ``expected_noise_peaks`` (pure-noise peaks expected above
+    the threshold applied, in the whole cube); ``expected_noise_peaks_at_threshold``
+    (the same above the threshold asked for); ``noise_fwhm_pixels`` [x, y]
+    (noise correlation behind those counts); ``resolution_elements``
+    (independent noise beams per channel image); ``expected`` (catalog lines in the
     band at z: ``name``, ``rest_frequency_ghz``, ``observed_frequency_ghz``,
     ``detected``); ``solved_z`` (null unless solved); ``edge_level_snr``;
-    ``expected_noise_peaks`` (pure-noise peaks expected above the threshold
-    in the whole cube); ``peak_snr`` (per channel); ``peak_spectrum``
+    ``peak_snr`` (per channel); ``peak_spectrum``
     (Quantity per channel, after removing each pixel's continuum level);
-    ``rule``.
+    ``rule``; ``velocity_reference`` (what velocities are relative to, in words).
 
     ``detections``: each ``frequency_ghz`` (centroid), ``peak_frequency_ghz``,
     ``snr`` (peak S/N), ``peak`` (Quantity), ``width_mhz`` and ``width_kms``
@@ -70,8 +77,9 @@ Top level:
     ``position`` (brightest pixel of the peak channel), ``candidates`` (best
     first, each ``name``, ``rest_frequency_ghz``, ``z`` (the redshift that
     puts the line at the detection, or the given/solved z),
-    ``velocity_offset_kms`` (offset from the line at that z; null for a lone
-    detection without z)).
+    ``velocity_offset_kms`` (radio-convention offset from the line redshifted
+    to that z, with frequencies in the cube's frame, SPECSYS; with z = 0 the
+    velocity in that frame itself; null for a lone detection without z)).
 
     ``strongest``: ``detection`` (index into ``detections``), ``window_ghz``,
     ``position``, ``moment0_peak`` (Quantity), ``spectrum``
@@ -306,6 +314,12 @@ def cube_entry(check):
         entry["lines"] = {
             "z": lines.z,
             "threshold_snr": _number(lines.threshold),
+            "effective_threshold_snr": _number(lines.effective_threshold),
+            "false_alarms": None if lines.false_alarms is None else _number(lines.false_alarms),
+            "expected_noise_peaks_at_threshold": _number(lines.expected_noise_peaks_at_threshold),
+            "noise_fwhm_pixels": None if lines.noise_fwhm_pixels is None else _numbers(lines.noise_fwhm_pixels),
+            "resolution_elements": _number(lines.resolution_elements),
+            "velocity_reference": lines.velocity_reference,
             "expected": [
                 {
                     "name": e.name,
@@ -571,7 +585,10 @@ def _figures(check):
     if lines is not None:
         fig, ax = plt.subplots(figsize=(9, 3), layout="constrained")
         ax.plot(x, lines.peak_snr, color="#1d232b", lw=0.9, drawstyle="steps-mid")
-        ax.axhline(lines.threshold, color="#a4161a", ls="--", lw=0.8, label=f"threshold {lines.threshold:g}")
+        applied = lines.effective_threshold if lines.effective_threshold is not None else lines.threshold
+        ax.axhline(applied, color="#a4161a", ls="--", lw=0.8, label=f"threshold applied {applied:.2f}")
+        if applied > lines.threshold:
+            ax.axhline(lines.threshold, color="#a4161a", ls=":", lw=0.7, label=f"threshold asked {lines.threshold:g}")
         for i, feature in enumerate(lines.features):
             ch = feature.channels
             ax.axvspan(x[ch.first], x[ch.last], color="#f4a261", alpha=0.35)
@@ -719,8 +736,14 @@ def cube_section(entry, check=None):
                             or "no catalog line") + "</p>")
         if lines["solved_z"] is not None:
             parts.append(f"<p>Redshift solved from the detections: z = {lines['solved_z']:.5f}</p>")
-        parts.append(f'<p class="rule">{esc(lines["rule"])} About {lines["expected_noise_peaks"]:.2g} '
-                     "noise peak(s) are expected above the threshold in this cube.</p>")
+        parts.append(
+            f"<p>Detection threshold applied: <b>{lines['effective_threshold_snr']:.2f} sigma</b> "
+            f"(asked: {lines['threshold_snr']:g}); about {lines['expected_noise_peaks']:.2g} pure-noise peak(s) "
+            f"are expected above it in the whole cube ({lines['expected_noise_peaks_at_threshold']:.2g} above "
+            f"{lines['threshold_snr']:g} sigma), for about {lines['resolution_elements']:.3g} independent noise "
+            "beams per channel.</p>")
+        parts.append(f'<p class="rule">{esc(lines["rule"])}</p>')
+        parts.append(f'<p class="rule">{esc(lines["velocity_reference"])}</p>')
         parts.append(figures.get("lines", ""))
     detections = entry["detections"]
     if detections:
@@ -751,7 +774,8 @@ def _html_page(summary, sections, *, title=None):
         f"<title>{esc(title)}</title><style>{_STYLE}</style></head><body>",
         f"<h1>{esc(title)}</h1>",
         f"<p>{len(cubes)} cube(s), {n_failed} not checked; z = {summary['z'] if summary['z'] is not None else 'not given'}; "
-        f"detection threshold {summary['threshold_snr']:g} sigma; made {esc(summary['created'])} "
+        f"detection threshold {summary['threshold_snr']:g} sigma, raised per cube where needed to keep pure-noise "
+        f"detections rare (see each cube); made {esc(summary['created'])} "
         f"with cubeloupe {esc(str(summary['cubeloupe_version']))}.</p>",
     ]
     rows = []

@@ -14,13 +14,14 @@ The check reads the cube in two full passes plus a small one:
 1. `continuum_free_peaks`: per pixel, the continuum level (median over a
    channel subsample) and noise; per channel, the peak of the data minus
    that level, and the valid fraction; per pixel, sums over all channels for
-   the line-free mean.
-2. `noise.channel_statistics` over a regular grid of pixels (without those
-   with significant continuum when it is extended): the robust rms per
-   channel.
+   the line-free mean (`noise.PixelSums`); over the channel subsample, the
+   correlation of neighbouring pixels (the noise FWHM, `noise_fwhm_from_lags`).
+2. `noise.channel_statistics` over every k-th image row (without pixels
+   with significant continuum when it is extended), using every k-th pixel
+   of those rows (`noise_grid`): the robust rms per channel.
 3. The channels excluded from the line-free set are read again to take them
-   out of the sums of pass 1; then `moments.moment_maps` over the strongest
-   detection.
+   out of the sums of pass 1 (`noise.PixelSums.without_channels`); then
+   `moments.moment_maps` over the strongest detection.
 
 The rules the check applies, stated once here and repeated in the report:
 
@@ -37,8 +38,20 @@ Detections
     stays above the edge level (the noise floor's median plus 3 robust
     scatters, the floor being the channels below the threshold) or whose own
     S/N reaches the threshold; runs one channel apart are merged, and a run
-    is a detection when its highest channel reaches the threshold (5 by
-    default). See `group_features`.
+    is a detection when its highest channel reaches the threshold. See
+    `group_features`.
+Detection threshold
+    The larger of the threshold asked for (5 by default) and the level
+    above which ``FALSE_ALARMS`` (0.05) pure-noise peaks are expected over
+    the whole cube (`false_alarm_threshold`). The maximum of N values of
+    Gaussian noise grows like sqrt(2 ln N): a plain 5 sigma gives a 1 GB cube
+    (512 x 512 x 1000, 5-pixel beam) about 40 noise detections, so the
+    threshold there is about 6 sigma. The count is the expected Euler
+    characteristic of a Gaussian random field (Worsley et al. 1996, Human
+    Brain Mapping 4, 58), capped by the Bonferroni bound ``n_pixels Q(t)``,
+    per channel image, channels independent; the noise correlation is the
+    beam or the one measured on the data, whichever gives more independent
+    beams. The threshold applied and the expected count are reported.
 Line-free channels
     Every channel except those of a detection padded on each side by a
     quarter of the detection's number of channels (at least
@@ -46,12 +59,13 @@ Line-free channels
 Leftover continuum
     The mean over line-free channels in each pixel; its significance is that
     mean over its standard error, the pixel's standard deviation over those
-    channels divided by ``sqrt(n_free)`` (independent channels; the same
-    statistics as `noise.leftover_continuum`, from the sums of pass 1).
-Expected noise peaks
-    A large cube has pure-noise peaks above 5 sigma: their expected number
-    (Gaussian random fields, see `LinesSummary`) is reported, with a warning
-    when it exceeds 0.5.
+    channels divided by ``sqrt(n_free)`` (independent channels; the
+    statistics of `noise.leftover_continuum`, by its code, from the sums of
+    pass 1).
+Velocities
+    Offsets of identifications are radio-convention velocities from the
+    catalog line redshifted to the identification's z, in the frame of the
+    cube's spectral axis (SPECSYS); see `LinesSummary.velocity_reference`.
 
 Examples
 --------
@@ -69,10 +83,12 @@ from astropy import constants
 from astropy.wcs.utils import proj_plane_pixel_scales
 
 from .errors import BeamError, CubeloupeError, SpectralAxisError
+from .noise import MAD_TO_SIGMA, pixel_sums
 
 __all__ = [
     "FLAG_SIGMAS",
     "DETECTION_SNR",
+    "FALSE_ALARMS",
     "MIN_PAD_CHANNELS",
     "IDENTIFY_TOLERANCE",
     "AxisSummary",
@@ -93,17 +109,21 @@ __all__ = [
     "flag_channels",
     "group_features",
     "line_free_channels",
+    "false_alarm_threshold",
+    "noise_fwhm_from_lags",
+    "noise_grid",
 ]
 
 FLAG_SIGMAS = 5.0
 DETECTION_SNR = 5.0
+# Pure-noise peaks the check allows over a whole cube: the detection threshold is
+# raised until no more are expected, so that about 19 pure-noise cubes in 20 give
+# no detection at all, whatever their size (see `false_alarm_threshold`).
+FALSE_ALARMS = 0.05
 MIN_PAD_CHANNELS = 2
 # Below this many pixels across the beam's minor axis FWHM a cube is
 # undersampled: 3 to 5 pixels per beam is the usual imaging choice (common practice).
 MIN_PIXELS_PER_BEAM = 3.0
-# Scale from the median absolute deviation to the standard deviation of a
-# Gaussian, 1 / Phi^-1(3/4) (common practice).
-MAD_TO_SIGMA = 1.482602218505602
 
 _KMS = u.km / u.s
 _C_KMS = constants.c.to_value(_KMS)
@@ -666,7 +686,7 @@ class LinesSummary:
     Attributes
     ----------
     threshold : float
-        Detection threshold in channel rms.
+        Detection threshold asked for, in channel rms.
     peak_spectrum : Quantity, shape (n_channels,)
         Maximum over pixels of each channel after removing each pixel's
         continuum level (`continuum_free_peaks`).
@@ -683,10 +703,25 @@ class LinesSummary:
     solved_z : float or None
         Redshift solved from two or more features when no ``z`` was given.
     expected_noise_peaks : float
-        Number of pure-noise peaks expected above the threshold in the whole
-        cube, for Gaussian noise correlated over the beam (the Euler
-        characteristic of a Gaussian random field, Worsley et al. 1996).
+        Number of pure-noise peaks expected above ``effective_threshold`` in
+        the whole cube, for Gaussian noise correlated over ``noise_fwhm_pixels``
+        (the Euler characteristic of a Gaussian random field, Worsley et al.
+        1996, capped by the Bonferroni bound).
     rule : str
+    effective_threshold : float
+        The threshold applied: the larger of ``threshold`` and
+        `false_alarm_threshold` (equal to ``threshold`` when
+        ``false_alarms`` is None).
+    false_alarms : float or None
+        Expected number of pure-noise detections allowed in the whole cube.
+    expected_noise_peaks_at_threshold : float
+        Pure-noise peaks expected above ``threshold`` itself.
+    noise_fwhm_pixels : tuple of float (x, y) or None
+        Noise correlation FWHM used for the counts (see `check_cube` notes).
+    resolution_elements : float
+        Independent noise beams per channel image behind the counts.
+    velocity_reference : str
+        What the velocities of the detections are relative to.
     """
 
     threshold: float
@@ -699,6 +734,12 @@ class LinesSummary:
     solved_z: object
     expected_noise_peaks: float
     rule: str
+    effective_threshold: float = None
+    false_alarms: object = None
+    expected_noise_peaks_at_threshold: float = None
+    noise_fwhm_pixels: object = None
+    resolution_elements: float = None
+    velocity_reference: str = ""
 
 
 @dataclass(frozen=True)
@@ -710,6 +751,7 @@ class StrongestFeature:
     window : Quantity [GHz], shape (2,)
         Frequency window of the moment map.
     moment0 : spectral_cube Projection
+        Linear baseline per pixel on the line-free channels near the feature.
     position : tuple of int
         ``(y, x)`` of the moment-0 peak.
     spectrum : spectral_cube OneDSpectrum
@@ -866,6 +908,10 @@ CONTINUUM_MASK_FRACTION = 0.02
 # of the cost of noise.py's default. Large images are first thinned to a
 # regular grid of about 4 times as many pixels (see check_cube).
 NOISE_MAX_PIXELS = 2**14
+# The moment map of the strongest feature fits each pixel's baseline on the line-free
+# channels within this many feature widths, and at least this many channels, on each side.
+BASELINE_SPAN = 3
+MIN_BASELINE_CHANNELS = 20
 # The redshift solver pairs every feature with every catalog line: only the
 # strongest features are given to it.
 MAX_SOLVER_FEATURES = 8
@@ -891,6 +937,11 @@ class ContinuumFreePeaks:
         Fraction of pixels with data (finite and unmasked) in each channel.
     n_sample : int
         Channels per pixel behind ``continuum_level`` and ``pixel_noise``.
+    noise_fwhm_pixels : tuple of float (x, y) or None
+        FWHM of the noise correlation in pixels, measured on the same channels
+        (`noise_fwhm_from_lags`); 0 for uncorrelated noise.
+    pixel_sums : noise.PixelSums
+        Per-pixel sums over every channel about ``continuum_level``.
     """
 
     peaks: u.Quantity
@@ -899,49 +950,26 @@ class ContinuumFreePeaks:
     pixel_noise: u.Quantity
     valid_fraction: np.ndarray
     n_sample: int
-    pixel_sums: np.ndarray = field(default=None, repr=False)  # count, sum, sum of squares about the level
+    noise_fwhm_pixels: object = None
+    pixel_sums: object = field(default=None, repr=False)  # noise.PixelSums about continuum_level
 
     def line_free_mean(self, cube, line_free, *, client=None, progress=None, cancel=None):
         """Mean over line-free channels per pixel, its standard error and significance.
 
-        The same statistics as `noise.leftover_continuum` (mean over the
-        pixel's valid line-free channels; standard error ``std / sqrt(n)``
-        with ddof=1), obtained from the per-pixel sums over every channel
-        made by this pass, less the sums over the excluded channels, which
-        are read again (usually a small part of the cube). This saves a
-        whole pass over the cube.
+        The statistics of `noise.leftover_continuum`, by its own code
+        (`noise.PixelSums`): the per-pixel sums over every channel made by
+        this pass, less the sums over the excluded channels, which are read
+        again (usually a small part of the cube). This saves a whole pass.
 
         Returns
         -------
         mean, error : Quantity, shape (ny, nx)
         significance : ndarray, shape (ny, nx)
         """
-        from .blocks import plane_blocks, run_blocks
-
+        sums = self.pixel_sums.without_channels(cube, ~np.asarray(line_free, dtype=bool), client=client,
+                                                progress=progress, cancel=cancel)
+        mean, error, significance = sums.statistics()
         unit = self.peaks.unit
-        count, sum1, sum2 = (np.array(a) for a in self.pixel_sums)
-        excluded = ~np.asarray(line_free, dtype=bool)
-        if excluded.any():
-
-            def consume(block, result):
-                nonlocal count, sum1, sum2
-                count -= result[0].reshape(count.shape)
-                sum1 -= result[1].reshape(count.shape)
-                sum2 -= result[2].reshape(count.shape)
-
-            level = np.nan_to_num(self.continuum_level.value)
-            run_blocks(cube, _PlaneSums(level), plane_blocks(cube.shape, channels=excluded, itemsize=4), consume,
-                       dtype=np.float32, client=client, progress=progress, cancel=cancel)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            # the sums are about each pixel's continuum level, near the mean
-            offset = sum1 / count
-            variance = np.clip(sum2 - sum1 * offset, 0, None) / (count - 1)
-            mean = np.nan_to_num(self.continuum_level.value) + offset
-            error = np.sqrt(variance / count)
-            significance = mean / error
-        mean[count < 1] = np.nan
-        error[count < 2] = np.nan
-        significance[count < 2] = np.nan
         return u.Quantity(mean, unit), u.Quantity(error, unit), significance
 
     def continuum_pixels(self, sigmas=3.0):
@@ -954,6 +982,70 @@ class ContinuumFreePeaks:
         noise = np.nanmedian(self.pixel_noise.value) * 1.2533 / np.sqrt(max(1, self.n_sample))
         with np.errstate(invalid="ignore"):
             return np.abs(np.nan_to_num(self.continuum_level.value)) > sigmas * noise
+
+
+def _lag_sums(residual):
+    """Per channel of ``residual`` (channels, rows, columns): sums of squares and of neighbour products.
+
+    Returns an array of shape (6, n_channels): the sum of squares, of the
+    products of horizontal neighbours, of vertical neighbours, and the
+    number of terms in each (blank pixels left out).
+    """
+    n, rows, columns = residual.shape
+    finite = np.isfinite(residual)
+    if finite.all():
+        values = residual
+        counts = [np.full(n, rows * columns), np.full(n, rows * (columns - 1)), np.full(n, (rows - 1) * columns)]
+    else:
+        values = np.where(finite, residual, residual.dtype.type(0))
+        counts = [finite.sum(axis=(1, 2)), (finite[:, :, 1:] & finite[:, :, :-1]).sum(axis=(1, 2)),
+                  (finite[:, 1:, :] & finite[:, :-1, :]).sum(axis=(1, 2))]
+    squares = np.einsum("cij,cij->c", values, values, dtype=np.float64)
+    across = np.einsum("cij,cij->c", values[:, :, 1:], values[:, :, :-1], dtype=np.float64)
+    down = np.einsum("cij,cij->c", values[:, 1:, :], values[:, :-1, :], dtype=np.float64)
+    return np.stack([squares, across, down, *(np.asarray(c, dtype=np.float64) for c in counts)])
+
+
+def noise_fwhm_from_lags(lags):
+    """FWHM of the noise correlation, in pixels along x and y, from neighbour products per channel.
+
+    For noise that is white noise smoothed with a Gaussian of FWHM ``f``
+    pixels, the correlation of neighbouring pixels is ``rho = exp(-2 ln 2 /
+    f^2)``, so ``f = sqrt(-2 ln 2 / ln rho)`` (the lag-one smoothness
+    estimate of Forman et al. 1995, Magn. Reson. Med. 33, 636, from memory).
+    ``rho`` is taken per channel and the median over channels kept, so that
+    the few channels holding a bright line do not count. Uncorrelated noise
+    (``rho <= 0``) gives 0.
+
+    Parameters
+    ----------
+    lags : ndarray, shape (6, n_channels)
+        As made by `continuum_free_peaks`: sums of squares, of x-neighbour
+        and of y-neighbour products, and their numbers of terms.
+
+    Returns
+    -------
+    tuple of float (x, y), or None when there are too few pixels
+
+    Examples
+    --------
+    >>> lags = np.array([[100.0], [25.0], [25.0], [100.0], [100.0], [100.0]])
+    >>> [round(f, 3) for f in noise_fwhm_from_lags(lags)]  # rho = 1/4 = exp(-2 ln 2): f = 1 pixel
+    [1.0, 1.0]
+    """
+    squares, across, down, n0, n_across, n_down = np.asarray(lags, dtype=float)
+    fwhm = []
+    for products, n_pairs in ((across, n_across), (down, n_down)):
+        usable = (n0 > 1) & (n_pairs > 0) & (squares > 0)
+        if not usable.any():
+            fwhm.append(None)
+            continue
+        rho = float(np.median((products[usable] / n_pairs[usable]) / (squares[usable] / n0[usable])))
+        fwhm.append(0.0 if rho <= 0 else float(np.sqrt(-2 * np.log(2) / np.log(min(rho, 1 - 1e-12)))))
+    if fwhm[0] is None and fwhm[1] is None:
+        return None
+    # an image one pixel high (or wide) has neighbours along one axis only: take it for both
+    return tuple(f if f is not None else next(g for g in fwhm if g is not None) for f in fwhm)
 
 
 @dataclass(frozen=True)
@@ -980,10 +1072,9 @@ class _ContinuumFreePeaks:
                 spread = np.nanmedian(np.abs(sample - level[:, None]), axis=1)
         # The block is this kernel's own copy (see blocks.run_blocks): subtract in place.
         residual = np.subtract(flat, np.nan_to_num(level), out=flat)
-        # Sums about the pixel's own level are small numbers: float32 sums lose
-        # nothing that matters, and the line-free mean's variance needs no
-        # difference of large sums.
-        sums = _pixel_sums(residual)
+        # the sums of noise.leftover_continuum, about the pixel's own level
+        count, sum1, sum2 = pixel_sums(residual)
+        lags = _lag_sums(residual.reshape(data.shape)[::self.step])
         where = residual.argmax(axis=1)
         peak = residual[np.arange(n_chan), where]
         valid = np.full(n_chan, flat.shape[1])
@@ -999,34 +1090,7 @@ class _ContinuumFreePeaks:
             else:
                 peak[k] = -np.inf
         return {"peak": peak, "where": where, "level": level, "noise": MAD_TO_SIGMA * spread, "valid": valid,
-                **sums}
-
-
-def _pixel_sums(flat):
-    """Per-pixel count, sum and sum of squares over the channels (rows) of ``flat``, blanks left out."""
-    sum1 = flat.sum(axis=0)
-    if np.isfinite(sum1).all():
-        count = np.full(flat.shape[1], flat.shape[0], dtype=np.float64)
-        sum2 = np.einsum("ij,ij->j", flat, flat)
-    else:
-        finite = np.isfinite(flat)
-        clean = np.where(finite, flat, np.float32(0))
-        count = finite.sum(axis=0, dtype=np.float64)
-        sum1 = clean.sum(axis=0)
-        sum2 = np.einsum("ij,ij->j", clean, clean)
-    return {"count": count, "sum1": sum1.astype(np.float64), "sum2": sum2.astype(np.float64)}
-
-
-@dataclass(frozen=True, eq=False)
-class _PlaneSums:
-    """Block kernel over whole channel images: per-pixel count, sum and sum of squares about ``level``."""
-
-    level: np.ndarray
-
-    def __call__(self, data):
-        residual = data.reshape(data.shape[0], -1) - self.level.ravel().astype(data.dtype)
-        sums = _pixel_sums(residual)
-        return np.stack([sums["count"], sums["sum1"], sums["sum2"]])
+                "count": count, "sum1": sum1, "sum2": sum2, "lags": lags}
 
 
 def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
@@ -1059,6 +1123,7 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
     Unit("Jy / beam")
     """
     from .blocks import run_blocks, spectra_blocks
+    from .noise import PixelSums
 
     n_chan, ny, nx = cube.shape
     step = max(1, -(-n_chan // CONTINUUM_SAMPLE_CHANNELS))
@@ -1068,6 +1133,7 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
     noise = np.full((ny, nx), np.nan)
     valid = np.zeros(n_chan)
     sums = np.zeros((3, ny, nx))
+    lags = np.zeros((6, len(range(0, n_chan, step))))
 
     def consume(block, result):
         rows, columns = block.rows, block.columns
@@ -1078,6 +1144,7 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
         level[rows, columns] = result["level"].reshape(shape)
         noise[rows, columns] = result["noise"].reshape(shape)
         valid[:] += result["valid"]
+        lags[:] += result["lags"]
         better = result["peak"] > best
         if better.any():
             where = result["where"][better]
@@ -1090,10 +1157,12 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
                progress=progress, cancel=cancel)
     best[~np.isfinite(best)] = np.nan
     unit = u.Unit(cube.unit)
+    sums = PixelSums(level=np.nan_to_num(level), count=sums[0], sum1=sums[1], sum2=sums[2],
+                     channels=np.ones(n_chan, dtype=bool))
     return ContinuumFreePeaks(
         peaks=u.Quantity(best, unit), positions=positions, continuum_level=u.Quantity(level, unit),
         pixel_noise=u.Quantity(noise, unit), valid_fraction=valid / float(ny * nx),
-        n_sample=len(range(0, n_chan, step)), pixel_sums=sums,
+        n_sample=len(range(0, n_chan, step)), noise_fwhm_pixels=noise_fwhm_from_lags(lags), pixel_sums=sums,
     )
 
 
@@ -1107,25 +1176,81 @@ def _stage(progress, start, stop):
     return lambda fraction: progress(start + (stop - start) * min(max(float(fraction), 0.0), 1.0))
 
 
-def _expected_noise_peaks(n_channels, n_pixels, beam_pixels, threshold):
-    """Channels of pure Gaussian noise whose peak would reach ``threshold``.
+def _expected_noise_peaks(n_channels, n_pixels, fwhm_pixels, threshold):
+    """Expected number of pure-noise peaks at or above ``threshold`` sigma over a whole cube.
 
-    For noise correlated over a Gaussian beam of FWHM ``(a, b)`` pixels, the
-    expected number of peaks above ``u`` in an image of ``n_pixels`` is its
-    Euler characteristic, ``R (4 ln 2) (2 pi)^(-3/2) u exp(-u^2 / 2) + P(X > u)``
-    with ``R = n_pixels / (a b)`` resolution elements (Worsley et al. 1996,
-    Human Brain Mapping 4, 58; Adler 1981, The Geometry of Random Fields); the
-    edge term is left out. Without a beam (or one under a pixel) the pixels
-    are taken as independent: ``n_pixels P(X > u)``. Channels are independent.
+    For noise correlated over a Gaussian of FWHM ``(a, b)`` pixels, the
+    expected number of peaks above ``t`` in an image of ``n_pixels`` is its
+    expected Euler characteristic, ``R (4 ln 2) (2 pi)^(-3/2) t exp(-t^2 / 2) +
+    Q(t)`` with ``R = n_pixels / (a b)`` resolution elements and ``Q`` the
+    Gaussian upper tail (Worsley et al. 1996, Human Brain Mapping 4, 58;
+    Adler 1981, The Geometry of Random Fields); the edge terms are left out.
+    It can never exceed the number of pixels above ``t``, ``n_pixels Q(t)``
+    (the Bonferroni bound, exact for uncorrelated pixels): the smaller of
+    the two is used, as is usual for random-field thresholds. Without an
+    FWHM the pixels are taken as independent. Channels are independent.
     """
     from scipy.stats import norm
 
     tail = norm.sf(threshold)
-    if beam_pixels is None or min(beam_pixels) < 1:
-        return float(n_channels * n_pixels * tail)
-    resels = n_pixels / (beam_pixels[0] * beam_pixels[1])
+    bonferroni = n_pixels * tail
+    if fwhm_pixels is None or min(fwhm_pixels) <= 0:
+        return float(n_channels * bonferroni)
+    resels = n_pixels / (fwhm_pixels[0] * fwhm_pixels[1])
     density = 4 * np.log(2) * (2 * np.pi) ** -1.5 * threshold * np.exp(-0.5 * threshold**2)
-    return float(n_channels * (resels * density + tail))
+    return float(n_channels * min(resels * density + tail, bonferroni))
+
+
+def false_alarm_threshold(n_channels, n_pixels, fwhm_pixels=None, *, false_alarms=FALSE_ALARMS):
+    """The peak S/N above which ``false_alarms`` pure-noise peaks are expected in the whole cube.
+
+    The detection threshold that keeps the false-alarm rate of the whole
+    cube, not of one pixel, at ``false_alarms``: the level ``t`` where the
+    expected number of peaks of Gaussian noise above ``t`` over
+    ``n_channels`` channel images of ``n_pixels`` pixels, correlated over a
+    Gaussian of ``fwhm_pixels`` (x, y), equals ``false_alarms``
+    (`_expected_noise_peaks`: the expected Euler characteristic of a Gaussian
+    random field, Worsley et al. 1996, capped by the Bonferroni bound).
+    Because the maximum over many pixels of Gaussian noise grows like
+    ``sqrt(2 ln N)``, a fixed 5 sigma lets big cubes report dozens of noise
+    peaks.
+
+    Parameters
+    ----------
+    n_channels : int
+    n_pixels : float
+        Pixels with data per channel image.
+    fwhm_pixels : (float, float) or None
+        FWHM of the noise correlation along x and y in pixels; None or 0 for
+        uncorrelated pixels.
+    false_alarms : float
+        Expected number of pure-noise peaks allowed in the whole cube.
+
+    Returns
+    -------
+    float
+
+    Examples
+    --------
+    >>> from scipy.stats import norm
+    >>> t = false_alarm_threshold(100, 10_000, None, false_alarms=0.05)
+    >>> bool(np.isclose(t, norm.isf(0.05 / 1e6)))  # independent pixels: the Bonferroni level
+    True
+    """
+    from scipy.optimize import brentq
+
+    if not false_alarms > 0:
+        raise ValueError(f"false_alarms must be a positive expected count; got {false_alarms!r}")
+    if n_channels < 1 or n_pixels <= 0:
+        return 0.0
+
+    def excess(t):
+        return np.log(_expected_noise_peaks(n_channels, n_pixels, fwhm_pixels, t)) - np.log(false_alarms)
+
+    low, high = 1.0, 30.0
+    if excess(low) <= 0:
+        return low
+    return float(brentq(excess, low, high, xtol=1e-6))
 
 
 _FLAG_RULE = (
@@ -1141,15 +1266,86 @@ _CONTINUUM_RULE = (
 )
 
 
-def _lines_rule(threshold):
+def _lines_rule(threshold, effective, false_alarms):
+    if false_alarms is None:
+        level = f"the threshold, {threshold:g} sigma as asked (no false-alarm control)"
+    else:
+        level = (
+            f"the threshold, {effective:.2f} sigma: the larger of the {threshold:g} asked and the level above "
+            f"which {false_alarms:g} pure-noise peaks are expected over the whole cube (expected Euler "
+            f"characteristic of Gaussian noise correlated over the beam or the measured noise correlation, "
+            f"whichever gives more independent beams, capped by the Bonferroni bound; Worsley et al. 1996, "
+            f"Human Brain Mapping 4, 58)"
+        )
     return (
         f"Detections: peak-intensity spectrum (maximum over pixels per channel of the data minus each "
         f"pixel's median over channels, i.e. without continuum) over the channel's "
         f"robust rms; runs of adjacent channels whose 3-channel smoothed S/N is above the edge level "
         f"(median + 3 robust scatters of the channels below the threshold) or whose own S/N reaches "
-        f"the threshold, gaps of one channel bridged, kept when the highest channel reaches {threshold:g}. Identifications: catalog lines within half the feature "
+        f"the threshold, gaps of one channel bridged, kept when the highest channel reaches {level}. "
+        f"Identifications: catalog lines within half the feature "
         f"width + {IDENTIFY_TOLERANCE.to_value(_KMS):g} km/s at z."
     )
+
+
+def _velocity_reference(frame):
+    """What the velocities of the report are relative to, in words."""
+    frame = f"the cube's {frame} frame" if frame else "the cube's own frame (no SPECSYS in the header)"
+    return (
+        "Velocity offsets of identifications are radio-convention velocities, c (f_line - f) / f_line, of a "
+        "detection relative to the catalog line redshifted to the identification's z (f_line = f_rest / (1 + z); "
+        "the z given, solved, or that puts the line on the detection), i.e. in the rest frame of a source at "
+        f"that z, with observed frequencies in {frame}. With z = 0 they are velocities in that frame itself: "
+        "a nearby galaxy described by a systemic velocity v shows its lines near +v; give z = v / c for an "
+        "optical-convention v (1 + z = 1 / (1 - v / c) for a radio-convention v) to have offsets from the "
+        "systemic velocity. Widths in km/s are c df / f at the detection."
+    )
+
+
+def _noise_fwhm(header, measured):
+    """FWHM (x, y) of the noise correlation in pixels for the false-alarm count.
+
+    The beam's (major and minor axes over the pixel size) or the one measured
+    on the data (`noise_fwhm_from_lags`), whichever covers the smaller area:
+    more independent beams, a higher threshold. This keeps the count honest
+    for noise less correlated than the beam (gridded single-dish data,
+    white-noise test cubes) and for a measurement lifted by sources.
+    """
+    beam = None
+    if header.beam_major is not None:
+        beam = tuple(float((axis / header.pixel_size.min()).decompose())
+                     for axis in (header.beam_major, header.beam_minor))
+    found = [f for f in (beam, measured) if f is not None]
+    return min(found, key=lambda f: f[0] * f[1]) if found else None
+
+
+def noise_grid(shape, max_pixels=None):
+    """How the check samples pixels for the channel rms: every ``stride``-th image row, ``max_pixels`` of them.
+
+    Reading whole rows is several times cheaper than a strided grid along
+    both axes (the rows are contiguous in the file); `channel_statistics`
+    then takes every ``stride``-th of the rows' pixels, so the pixels used
+    lie on a regular grid of about ``stride`` pixels in both directions,
+    about ``max_pixels`` of them (default ``NOISE_MAX_PIXELS``).
+
+    Returns
+    -------
+    stride : int
+    max_pixels : int
+        The ``max_pixels`` to give `channel_statistics` on the rows read.
+
+    Examples
+    --------
+    >>> noise_grid((1000, 512, 512))
+    (4, 16384)
+    """
+    max_pixels = NOISE_MAX_PIXELS if max_pixels is None else int(max_pixels)
+    _, ny, nx = (int(n) for n in shape)
+    stride = max(1, round(np.sqrt(ny * nx / max_pixels)))
+    if stride == 1:
+        return 1, max_pixels
+    read = -(-ny // stride) * nx
+    return stride, max(1, -(-read // stride))
 
 
 def _feature(cube, channels, frequency, peak_spectrum, peak_position, candidates=()):
@@ -1173,7 +1369,8 @@ def _feature(cube, channels, frequency, peak_spectrum, peak_position, candidates
     )
 
 
-def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=None, cancel=None):
+def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALARMS, client=None, progress=None,
+               cancel=None):
     """Run the delivery check on one cube.
 
     Parameters
@@ -1185,7 +1382,13 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
         identifies detections at that z. Without it, two or more detections
         are used to solve for z.
     threshold : float
-        Detection threshold for the peak S/N spectrum (default 5).
+        Smallest detection threshold for the peak S/N spectrum (default 5).
+    false_alarms : float or None
+        Expected number of pure-noise detections allowed over the whole cube
+        (default 0.05): the threshold applied is the larger of ``threshold``
+        and `false_alarm_threshold` for the cube's size and noise
+        correlation (``lines.effective_threshold``). None applies
+        ``threshold`` as it is.
     client : None, "default" or distributed.Client
         Where the block-wise passes run (see `cubeloupe.analysis.blocks`).
     progress : callable, optional
@@ -1223,6 +1426,9 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
         z = check_redshift(z)
     if not threshold > 0:
         raise ValueError(f"threshold must be a positive number of sigma; got {threshold!r}")
+    if false_alarms is not None and not false_alarms > 0:
+        raise ValueError(f"false_alarms must be a positive expected count of noise peaks, or None; "
+                         f"got {false_alarms!r}")
     path = str((getattr(cube, "meta", {}) or {}).get("cubeloupe_source", {}).get("path", "<in memory>"))
     report = progress or (lambda fraction: None)
     header = header_summary(cube)
@@ -1247,12 +1453,10 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
     elif covered > 0.5:
         notes.append(f"continuum covers {covered:.0%} of the image: the channel rms is "
                      "measured over every pixel and may be overestimated")
-    # A regular grid of pixels (every k-th along x and y) is all the robust rms
-    # needs; keeping 4 x NOISE_MAX_PIXELS of them spares reading and sorting the rest.
-    stride = max(1, int(np.sqrt(ny * nx / (4 * NOISE_MAX_PIXELS))))
+    stride, max_pixels = noise_grid(header.shape)
     if stride > 1:
-        noise_cube = noise_cube[:, ::stride, ::stride]
-    stats = channel_statistics(noise_cube, max_pixels=NOISE_MAX_PIXELS, client=client,
+        noise_cube = noise_cube[:, ::stride, :]
+    stats = channel_statistics(noise_cube, max_pixels=max_pixels, client=client,
                                progress=_stage(report, 0.3, 0.55), cancel=cancel)
     channel_rms = stats.rms
     total_rms = cube_noise(noise_cube, statistics=stats)
@@ -1267,18 +1471,36 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
                      + (f"; {n_blank} channel(s) wholly blanked" if n_blank else ""))
     noise_summary = NoiseSummary(channel_rms=channel_rms, cube_rms=total_rms, flagged=flagged, rule=_FLAG_RULE)
 
-    # Detections in the peak S/N spectrum.
+    # Detections in the peak S/N spectrum, above a threshold that holds the
+    # expected number of pure-noise detections over the whole cube at false_alarms.
     with np.errstate(invalid="ignore", divide="ignore"):
         snr = (peak_values / channel_rms).to_value(u.dimensionless_unscaled)
-    feature_channels = group_features(snr, threshold=threshold)
-    edge = _floor_edge(_boxcar3(snr), threshold) if np.isfinite(snr).any() else None
-    finite_pixels = ny * nx * (1.0 - float(np.nanmean(blanked)))
-    beam_pixels = None
-    if header.beam_major is not None:
-        beam_pixels = tuple(float((axis / header.pixel_size.min()).decompose())
-                            for axis in (header.beam_major, header.beam_minor))
-    noise_peaks = _expected_noise_peaks(nchan, finite_pixels, beam_pixels, threshold)
-    if noise_peaks > 0.5:
+    filled = spectra.valid_fraction[spectra.valid_fraction > 0]
+    n_filled = int(filled.size)
+    finite_pixels = ny * nx * float(filled.mean()) if n_filled else 0.0
+    fwhm = _noise_fwhm(header, spectra.noise_fwhm_pixels)
+    # The peak spectrum is of data less each pixel's level, the median of n_sample channels,
+    # whose own scatter (1.2533 sigma / sqrt(n), the median's efficiency, common practice)
+    # widens the noise of the S/N spectrum by sqrt(1 + pi / (2 n)).
+    widening = float(np.sqrt(1 + np.pi / (2 * max(1, spectra.n_sample))))
+    effective = float(threshold)
+    if false_alarms is not None:
+        effective = max(effective, widening * false_alarm_threshold(n_filled, finite_pixels, fwhm,
+                                                                    false_alarms=false_alarms))
+    noise_peaks = _expected_noise_peaks(n_filled, finite_pixels, fwhm, effective / widening)
+    at_requested = _expected_noise_peaks(n_filled, finite_pixels, fwhm, threshold / widening)
+    resels = finite_pixels / (fwhm[0] * fwhm[1]) if fwhm is not None and min(fwhm) > 0 else finite_pixels
+    resels = min(resels, finite_pixels)
+    feature_channels = group_features(snr, threshold=effective)
+    edge = _floor_edge(_boxcar3(snr), effective) if np.isfinite(snr).any() else None
+    if effective > threshold:
+        notes.append(
+            f"detection threshold raised from {threshold:g} to {effective:.2f} sigma: at {threshold:g} sigma "
+            f"about {at_requested:.2g} pure-noise peak(s) would be expected in this cube ({n_filled} channels "
+            f"of about {resels:.3g} independent noise beams each); features whose peak S/N lies between "
+            f"{threshold:g} and {effective:.2f} are not reported"
+        )
+    elif noise_peaks > 0.5:
         notes.append(
             f"about {noise_peaks:.1f} pure-noise peaks are expected above {threshold:g} sigma in a cube of "
             f"this size and beam (Gaussian random-field count); treat detections of one or two channels "
@@ -1312,7 +1534,11 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
     lines = LinesSummary(
         threshold=float(threshold), peak_spectrum=peak_values, peak_snr=snr, edge_level=edge,
         features=features if features else tuple(),
-        z=z, expected=expected, solved_z=solved_z, expected_noise_peaks=noise_peaks, rule=_lines_rule(threshold),
+        z=z, expected=expected, solved_z=solved_z, expected_noise_peaks=noise_peaks,
+        rule=_lines_rule(threshold, effective, false_alarms),
+        effective_threshold=effective, false_alarms=false_alarms, expected_noise_peaks_at_threshold=at_requested,
+        noise_fwhm_pixels=fwhm, resolution_elements=float(resels),
+        velocity_reference=_velocity_reference(header.spectral_frame),
     )
     report(0.62)
 
@@ -1354,7 +1580,12 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, client=None, progress=N
 
 
 def _strongest(cube, feature, frequency, free, *, client, progress, cancel, notes):
-    """Moment-0 map over the feature (baseline on the line-free channels) and the spectrum at its peak."""
+    """Moment-0 map over the feature and the spectrum at its peak.
+
+    Each pixel's linear baseline is fitted on the line-free channels near the
+    feature (``BASELINE_SPAN`` feature widths, at least
+    ``MIN_BASELINE_CHANNELS`` channels, on each side).
+    """
     from .moments import moment_maps
 
     ch = feature.channels
@@ -1368,6 +1599,14 @@ def _strongest(cube, feature, frequency, free, *, client, progress, cancel, note
     window = u.Quantity([lo - 0.5 * half.value, hi + 0.5 * half.value], u.GHz)
     usable = free.copy()
     usable[first:last + 1] = False
+    # A local baseline: the line-free channels within BASELINE_SPAN feature widths (at least
+    # MIN_BASELINE_CHANNELS channels) on each side, as a baseline around a line is usually fitted
+    # (common practice); it also spares reading the whole band again.
+    span = max(MIN_BASELINE_CHANNELS, BASELINE_SPAN * ch.n_channels)
+    local = np.zeros(n, dtype=bool)
+    local[max(0, first - span):last + span + 1] = True
+    if (usable & local).sum() >= 3:
+        usable &= local
     line_free = _channel_ranges(usable, f)
     order = 1 if usable.sum() >= 3 else None
     if line_free is not None:

@@ -18,6 +18,13 @@ correlated interferometric noise already has. The peak and the count of valid
 pixels always use every pixel. Memory is bounded by the larger of one block
 (a few MB) and one channel image.
 
+The leftover continuum (mean over line-free channels per pixel, its standard
+error and significance) comes from per-pixel sums (`PixelSums`): count, sum
+and sum of squares about a per-pixel level near the mean, made in one pass
+over float32 blocks of whole spectra. Sums about a level lose no precision in
+float32 and need no second pass; the delivery check builds the same sums
+during its own pass and takes channels out with `PixelSums.without_channels`.
+
 Examples
 --------
 >>> from cubeloupe.analysis import open_cube, channel_noise, cube_noise
@@ -48,6 +55,9 @@ __all__ = [
     "cube_noise",
     "peak_spectrum",
     "leftover_continuum",
+    "PixelSums",
+    "pixel_sums",
+    "line_free_sums",
 ]
 
 # 1 / Phi^-1(3/4): MAD of a Gaussian times this is its sigma (common practice).
@@ -135,39 +145,70 @@ class ContinuumMap:
     n_channels: int
 
 
+def _median_rows(values):
+    """Median of each row of a 2-D array, reordering the rows in place (the result of ``np.median(axis=1)``).
+
+    Hand-written around `numpy.ndarray.partition` because `np.median` of an
+    even number of values partitions around both middle elements at once,
+    which numpy 2.4 runs about 8 times slower than around one (measured on
+    16 rows of 16384 float32 values: 5.7 ms against 0.7 ms); the lower
+    middle element is then the largest value left of the upper one.
+    """
+    n = values.shape[1]
+    half = n // 2
+    values.partition(half, axis=1)
+    upper = values[:, half].astype(np.float64)
+    if n % 2:
+        return upper
+    return 0.5 * (values[:, :half].max(axis=1) + upper)
+
+
 @dataclass(frozen=True)
 class _PlaneStatistics:
     """Kernel over whole channel images: count, peak and where, median and MAD."""
 
     max_pixels: int
 
+    def _median_and_mad(self, values):
+        """Median and MAD of each row of ``values`` (a copy this kernel owns), over every ``step``-th value."""
+        median = _median_rows(values)
+        deviation = np.abs(values - median[:, None])
+        return median, _median_rows(deviation)
+
     def __call__(self, data):
         n_chan = data.shape[0]
         flat = data.reshape(n_chan, -1)
-        finite = np.isfinite(flat)
-        count = finite.sum(axis=1)
-        filled = np.where(finite, flat, -np.inf)
-        where = np.argmax(filled, axis=1)
-        peak = np.where(count > 0, filled[np.arange(n_chan), where], np.nan)
+        n_pix = flat.shape[1]
+        # Fast path for channels without blanks: a row sum is finite exactly when every value is
+        # (barring overflow near 1e38, which only sends a channel down the slow path below).
+        complete = np.isfinite(flat.sum(axis=1))
+        where = flat.argmax(axis=1)
+        peak = flat[np.arange(n_chan), where].astype(np.float64)
+        count = np.full(n_chan, n_pix)
         median = np.full(n_chan, np.nan)
         mad = np.full(n_chan, np.nan)
         sampled = np.zeros(n_chan, dtype=int)
-        if count.min(initial=0) == flat.shape[1] and flat.shape[1] <= self.max_pixels:
-            # every pixel valid and few enough: one vectorised median for all channels
-            median = np.median(flat, axis=1)
-            mad = np.median(np.abs(flat - median[:, None]), axis=1)
-            sampled[:] = flat.shape[1]
-        else:
-            for c in range(n_chan):
-                values = flat[c][finite[c]]
-                if values.size == 0:
-                    continue
-                if values.size > self.max_pixels:
-                    step = -(-values.size // self.max_pixels)
-                    values = values[::step]
-                median[c] = np.median(values)
-                mad[c] = np.median(np.abs(values - median[c]))
-                sampled[c] = values.size
+        # the evenly spaced subset of the module notes: every step-th valid pixel
+        step = max(1, -(-n_pix // self.max_pixels))
+        rows = np.flatnonzero(complete)
+        if rows.size:
+            values = flat[:, ::step].copy() if rows.size == n_chan else flat[rows, ::step]
+            median[rows], mad[rows] = self._median_and_mad(values)
+            sampled[rows] = values.shape[1]
+        for c in np.flatnonzero(~complete):
+            finite = np.isfinite(flat[c])
+            count[c] = int(finite.sum())
+            if count[c] == 0:
+                peak[c] = np.nan
+                continue
+            valid = np.flatnonzero(finite)
+            where[c] = valid[np.argmax(flat[c, valid])]
+            peak[c] = flat[c, where[c]]
+            values = flat[c, valid]
+            step_c = max(1, -(-values.size // self.max_pixels))
+            values = values[::step_c][None].copy()
+            (median[c],), (mad[c],) = self._median_and_mad(values)
+            sampled[c] = values.shape[1]
         return {"count": count, "peak": peak, "where": where, "median": median, "mad": mad, "sampled": sampled}
 
 
@@ -332,22 +373,158 @@ def peak_spectrum(cube, *, statistics=None, **kwargs):
                         wcs=cube.wcs.sub([WCSSUB_SPECTRAL]))
 
 
-@dataclass(frozen=True)
-class _ContinuumKernel:
-    """Per-pixel mean, standard error and count over the block's channels."""
+def pixel_sums(residual):
+    """Per-pixel count, sum and sum of squares over the channels of a block, blanks left out.
 
-    def __call__(self, data):
-        finite = np.isfinite(data)
-        count = finite.sum(axis=0)
-        values = np.where(finite, data, 0.0)
+    Parameters
+    ----------
+    residual : ndarray, shape (n_channels, n_pixels)
+        Values less a per-pixel reference level near their mean (so that the
+        float32 sums of small numbers lose nothing that matters and the
+        variance needs no difference of large sums: the shifted-data
+        algorithm, Chan, Golub & LeVeque 1983, Am. Stat. 37, 242).
+
+    Returns
+    -------
+    count, sum1, sum2 : ndarray of float64, shape (n_pixels,)
+    """
+    sum1 = residual.sum(axis=0)
+    if np.isfinite(sum1).all():
+        count = np.full(residual.shape[1], residual.shape[0], dtype=np.float64)
+        sum2 = np.einsum("ij,ij->j", residual, residual)
+    else:
+        finite = np.isfinite(residual)
+        clean = np.where(finite, residual, residual.dtype.type(0))
+        count = finite.sum(axis=0, dtype=np.float64)
+        sum1 = clean.sum(axis=0)
+        sum2 = np.einsum("ij,ij->j", clean, clean)
+    return count, sum1.astype(np.float64), sum2.astype(np.float64)
+
+
+@dataclass(frozen=True)
+class PixelSums:
+    """Per-pixel count, sum and sum of squares of a cube's values about a reference level, over some channels.
+
+    What the leftover continuum is made of (see `leftover_continuum`): one
+    pass over the cube gives them, and `without_channels` takes channels out
+    again by reading only those, so a caller that already has the sums over
+    every channel needs no second full pass.
+
+    Attributes
+    ----------
+    level : ndarray, shape (ny, nx)
+        The per-pixel reference level (cube unit, no NaN) the sums are about.
+    count, sum1, sum2 : ndarray, shape (ny, nx)
+        Valid channels, sum and sum of squares of ``value - level``.
+    channels : ndarray of bool, shape (n_channels,)
+        The channels the sums run over.
+    """
+
+    level: np.ndarray
+    count: np.ndarray
+    sum1: np.ndarray
+    sum2: np.ndarray
+    channels: np.ndarray
+
+    def without_channels(self, cube, channels, *, client=None, progress=None, cancel=None):
+        """The sums with ``channels`` (bool mask) taken out, reading only those channels of ``cube``."""
+        excluded = np.asarray(channels, dtype=bool) & self.channels
+        count, sum1, sum2 = (np.array(a, dtype=np.float64) for a in (self.count, self.sum1, self.sum2))
+        if excluded.any():
+            def consume(block, result):
+                count.ravel()[:] -= result[0]
+                sum1.ravel()[:] -= result[1]
+                sum2.ravel()[:] -= result[2]
+
+            blocks = plane_blocks(cube.shape, channels=excluded, itemsize=4, block_bytes=DEFAULT_BLOCK_BYTES)
+            run_blocks(cube, _PlaneSums(self.level), blocks, consume, dtype=np.float32, client=client,
+                       progress=progress, cancel=cancel)
+        elif progress is not None:
+            progress(1.0)
+        return PixelSums(self.level, count, sum1, sum2, self.channels & ~excluded)
+
+    def statistics(self):
+        """Mean, its standard error (``std / sqrt(n)``, ddof=1) and their ratio per pixel, as plain arrays."""
+        count = self.count
         with np.errstate(invalid="ignore", divide="ignore"):
-            mean = values.sum(axis=0) / count
-            deviation = np.where(finite, data - mean, 0.0)
-            variance = (deviation**2).sum(axis=0) / (count - 1)
+            offset = self.sum1 / count
+            variance = np.clip(self.sum2 - self.sum1 * offset, 0, None) / (count - 1)
+            mean = self.level + offset
             error = np.sqrt(variance / count)
+            significance = mean / error
         mean[count < 1] = np.nan
         error[count < 2] = np.nan
-        return np.stack([mean, error])
+        significance[count < 2] = np.nan
+        return mean, error, significance
+
+    def continuum_map(self, cube):
+        """The `ContinuumMap` of these sums, with the WCS, beam and unit of ``cube``."""
+        from spectral_cube import Projection
+
+        mean, error, significance = self.statistics()
+        unit = u.Unit(cube.unit)
+        celestial = cube.wcs.celestial
+        beam = _map_beam(cube, self.channels)
+        make = lambda values, unit_, what: Projection(values, unit=unit_, wcs=celestial, beam=beam,  # noqa: E731
+                                                      meta={"cubeloupe_map": what}, copy=False)
+        return ContinuumMap(
+            mean=make(mean, unit, "line-free mean"),
+            error=make(error, unit, "line-free mean error"),
+            significance=make(significance, u.dimensionless_unscaled, "line-free mean significance"),
+            n_channels=int(self.channels.sum()),
+        )
+
+
+@dataclass(frozen=True, eq=False)
+class _PlaneSums:
+    """Kernel over whole channel images: per-pixel count, sum and sum of squares about ``level``."""
+
+    level: np.ndarray
+
+    def __call__(self, data):
+        flat = data.reshape(data.shape[0], -1)
+        residual = np.subtract(flat, self.level.ravel().astype(data.dtype), out=flat)
+        return np.stack(pixel_sums(residual))
+
+
+@dataclass(frozen=True)
+class _SpectraSums:
+    """Kernel over blocks of whole spectra: per-pixel level (the mean), then the sums about it."""
+
+    def __call__(self, data):
+        flat = data.reshape(data.shape[0], -1)
+        total = flat.sum(axis=0)
+        if np.isfinite(total).all():
+            level = total / np.float32(flat.shape[0])
+        else:
+            finite = np.isfinite(flat)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                level = np.where(finite, flat, 0).sum(axis=0) / finite.sum(axis=0)
+            level = np.nan_to_num(level).astype(flat.dtype)
+        # the block is this kernel's own copy (blocks.run_blocks): subtract in place
+        residual = np.subtract(flat, level, out=flat)
+        return np.stack([level.astype(np.float64), *pixel_sums(residual)])
+
+
+def line_free_sums(cube, channels, *, client=None, progress=None, cancel=None):
+    """`PixelSums` over ``channels`` (bool mask), in one pass over blocks of whole spectra.
+
+    Each pixel's sums are about its own mean over those channels, formed
+    within the block, so float32 blocks keep the precision of a float64
+    two-pass computation (the standard error agrees to about 1e-6).
+    """
+    _, ny, nx = cube.shape
+    level, count, sum1, sum2 = (np.full((ny, nx), np.nan) for _ in range(4))
+
+    def consume(block, values):
+        shape = (block.rows.stop - block.rows.start, block.columns.stop - block.columns.start)
+        for target, row in zip((level, count, sum1, sum2), values):
+            target[block.rows, block.columns] = row.reshape(shape)
+
+    blocks = spectra_blocks(cube.shape, channels=channels, itemsize=4)
+    run_blocks(cube, _SpectraSums(), blocks, consume, dtype=np.float32, client=client, progress=progress,
+               cancel=cancel)
+    return PixelSums(level, count, sum1, sum2, np.asarray(channels, dtype=bool).copy())
 
 
 def leftover_continuum(cube, line_free=None, *, rest_frequency=None, z=0.0, convention="radio", client=None,
@@ -380,8 +557,6 @@ def leftover_continuum(cube, line_free=None, *, rest_frequency=None, z=0.0, conv
     >>> bool((leftover.significance > 5).any())    # the demo has a 3.2 mJy continuum source
     True
     """
-    from spectral_cube import Projection
-
     if line_free is None:
         free = np.ones(cube.shape[0], dtype=bool)
     elif not isinstance(line_free, u.Quantity) and np.asarray(line_free).dtype == bool:
@@ -394,24 +569,5 @@ def leftover_continuum(cube, line_free=None, *, rest_frequency=None, z=0.0, conv
     else:
         free = channel_mask(cube, line_free, rest_frequency=rest_frequency, z=z, convention=convention,
                             min_channels=2, what="line-free ranges")
-    n_chan, ny, nx = cube.shape
-    result = np.full((2, ny, nx), np.nan)
-
-    def consume(block, values):
-        result[:, block.rows, block.columns] = values
-
-    blocks = spectra_blocks(cube.shape, channels=free, itemsize=8)
-    run_blocks(cube, _ContinuumKernel(), blocks, consume, client=client, progress=progress, cancel=cancel)
-    unit = u.Unit(cube.unit)
-    celestial = cube.wcs.celestial
-    beam = _map_beam(cube, free)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        significance = result[0] / result[1]
-    make = lambda values, unit_, what: Projection(values, unit=unit_, wcs=celestial, beam=beam,  # noqa: E731
-                                                  meta={"cubeloupe_map": what}, copy=False)
-    return ContinuumMap(
-        mean=make(result[0], unit, "line-free mean"),
-        error=make(result[1], unit, "line-free mean error"),
-        significance=make(significance, u.dimensionless_unscaled, "line-free mean significance"),
-        n_channels=int(free.sum()),
-    )
+    sums = line_free_sums(cube, free, client=client, progress=progress, cancel=cancel)
+    return sums.continuum_map(cube)

@@ -137,3 +137,21 @@ def line_cube_data(shape, *, rng, noise_rms=1.0, lines=(), crval3=230.538e9, cde
         spectrum += peak * np.exp(-0.5 * ((freq - f0) / sigma) ** 2)
     data += spectrum[:, None, None] * blob[None]
     return data
+
+
+def correlated_noise(shape, *, rng, fwhm_pixels, rms=1.0):
+    """Gaussian noise correlated over a circular Gaussian beam of ``fwhm_pixels``, as in interferometric images.
+
+    White noise smoothed plane by plane with ``scipy.ndimage.gaussian_filter``
+    (FWHM = sqrt(8 ln 2) sigma, wrapping at the edges) and rescaled to ``rms``:
+    white noise through a unit-sum Gaussian of width sigma has variance
+    1 / (4 pi sigma^2) (common practice). Returns float32 (n_chan, ny, nx).
+    """
+    from scipy.ndimage import gaussian_filter
+
+    sigma = fwhm_pixels / np.sqrt(8 * np.log(2))
+    out = np.empty(shape, dtype=np.float32)
+    for k in range(shape[0]):
+        plane = gaussian_filter(rng.standard_normal(shape[1:]), sigma, mode="wrap")
+        out[k] = plane * np.sqrt(4 * np.pi) * sigma * rms
+    return out

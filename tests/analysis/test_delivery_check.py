@@ -7,12 +7,15 @@ import numpy as np
 import pytest
 from astropy.tests.helper import assert_quantity_allclose
 
-from cubefactory import C_KMS, frequency_axis_hz, line_cube_data, write_cube
+from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube
 from cubeloupe.analysis import open_cube
 from cubeloupe.analysis.check_report import cube_entry, summary_dict
 from cubeloupe.analysis.delivery_check import (
+    FALSE_ALARMS,
     FeatureChannels,
     check_cube,
+    continuum_free_peaks,
+    false_alarm_threshold,
     flag_channels,
     group_features,
     header_summary,
@@ -392,3 +395,138 @@ def test_expected_noise_peaks_follows_gaussian_random_fields(rng):
     assert 0.55 * expected < observed < 1.1 * expected
     naive = n_planes * 64 * 64 / (np.pi / (4 * np.log(2)) * fwhm**2) * 3.167e-5  # P(X > 4) = 3.167e-5
     assert observed > 3 * naive
+
+
+# --------------------------------------------------------------------------- false alarms over the whole cube
+
+
+def test_false_alarm_threshold_of_independent_pixels_is_the_bonferroni_level():
+    from scipy.stats import norm
+
+    # n independent Gaussian values exceed t about n Q(t) times: Q(t) = alpha / n (Bonferroni, common practice)
+    for n_channels, n_pixels in ((250, 32 * 32), (1000, 512 * 512)):
+        expected = norm.isf(FALSE_ALARMS / (n_channels * n_pixels))
+        assert false_alarm_threshold(n_channels, n_pixels) == pytest.approx(expected, abs=1e-5)
+        # noise correlated over less than a pixel cannot have more peaks than pixels: the same level
+        assert false_alarm_threshold(n_channels, n_pixels, (0.5, 0.5)) == pytest.approx(expected, abs=1e-5)
+
+
+def test_false_alarm_threshold_rises_with_cube_size_and_falls_with_beam_size():
+    from cubeloupe.analysis.delivery_check import _expected_noise_peaks
+
+    small = false_alarm_threshold(100, 64 * 64, (4.0, 4.0))
+    big = false_alarm_threshold(1000, 512 * 512, (5.0, 4.0))
+    assert 4.0 < small < big
+    assert false_alarm_threshold(1000, 512 * 512, (10.0, 10.0)) < big < false_alarm_threshold(1000, 512 * 512)
+    # the problem being solved: a plain 5 sigma on a 1 GB cube with a 5 x 4 pixel beam expects
+    # dozens of noise detections; at the raised threshold the expected count is the one asked for
+    assert _expected_noise_peaks(1000, 512 * 512, (5.0, 4.0), 5.0) > 10
+    assert _expected_noise_peaks(1000, 512 * 512, (5.0, 4.0), big) == pytest.approx(FALSE_ALARMS, rel=1e-4)
+    assert 5.5 < big < 6.5
+
+
+@pytest.mark.parametrize("fwhm", [0.0, 3.0, 5.0])
+def test_noise_correlation_is_measured_from_the_data(tmp_path, fwhm):
+    """The lag-one smoothness estimate recovers the FWHM the noise was smoothed with."""
+    rng = np.random.default_rng(11)
+    shape = (64, 96, 96)
+    data = correlated_noise(shape, rng=rng, fwhm_pixels=fwhm) if fwhm else rng.standard_normal(shape)
+    measured = continuum_free_peaks(open_cube(write_cube(tmp_path / "n.fits", data))).noise_fwhm_pixels
+    if fwhm:
+        # the noise was made by scipy.ndimage.gaussian_filter of FWHM = 2.3548 sigma
+        np.testing.assert_allclose(measured, fwhm, rtol=0.1)
+    else:
+        assert max(measured) < 0.7  # white noise: neighbours uncorrelated
+
+
+@pytest.mark.parametrize("shape, fwhm, seed", [
+    ((250, 32, 32), 0.0, 1),     # white noise under a 4-pixel header beam
+    ((200, 64, 64), 0.0, 2),
+    ((120, 64, 64), 4.0, 3),     # noise correlated over the beam, as interferometers make it
+    ((60, 100, 100), 2.5, 4),
+])
+def test_pure_noise_cubes_of_several_sizes_give_no_detection(tmp_path, shape, fwhm, seed):
+    rng = np.random.default_rng(seed)
+    data = 1e-3 * (correlated_noise(shape, rng=rng, fwhm_pixels=fwhm) if fwhm else rng.standard_normal(shape))
+    result = check_cube(open_cube(write_cube(tmp_path / "noise.fits", data)))
+    lines = result.lines
+    assert lines.features == () and result.strongest is None
+    assert lines.effective_threshold >= 5.0
+    assert lines.expected_noise_peaks <= FALSE_ALARMS * 1.0001
+    raised = lines.expected_noise_peaks_at_threshold > FALSE_ALARMS
+    assert (lines.effective_threshold > 5.0) == raised
+    assert any("threshold raised" in note for note in result.warnings) == raised
+
+
+def test_pure_noise_detections_match_the_expected_false_alarm_count(tmp_path):
+    """End to end: asking for 3 noise peaks per cube gives about 3, counted over 12 noise cubes.
+
+    The expected Euler characteristic (Worsley et al. 1996) slightly overestimates the peaks of
+    a field sampled at 4 pixels per FWHM (see the test of _expected_noise_peaks): between half
+    and 1.3 times the count asked for, with Poisson scatter (sqrt(36) = 6).
+    """
+    counts = []
+    for seed in range(12):
+        rng = np.random.default_rng(100 + seed)
+        data = correlated_noise((100, 48, 48), rng=rng, fwhm_pixels=4.0)
+        result = check_cube(open_cube(write_cube(tmp_path / f"n{seed}.fits", data)), threshold=1.0,
+                            false_alarms=3.0)
+        counts.append(len(result.lines.features))
+        assert result.lines.effective_threshold > 4.0
+    assert 0.5 * 36 <= sum(counts) <= 1.3 * 36, counts
+
+
+def test_line_above_the_effective_threshold_is_found(tmp_path):
+    rng = np.random.default_rng(21)
+    shape, noise = (200, 64, 64), 1e-3
+    twin = check_cube(open_cube(write_cube(tmp_path / "twin.fits", rng.normal(0, noise, shape))))
+    effective = twin.lines.effective_threshold
+    assert effective > 5.0
+    # A line at 1.1 times the raised threshold on a 4-pixel source: the source lifts the MAD of its
+    # channels by a few per cent (Hampel 1974), so 10 % of margin keeps its peak S/N above the threshold.
+    centre = frequency_axis_hz(200)[120]
+    data = line_cube_data(shape, rng=rng, noise_rms=noise, lines=[(centre, 1.1 * effective * noise, 3e6)],
+                          source_sigma_pixels=4.0)
+    result = check_cube(open_cube(write_cube(tmp_path / "line.fits", data)))
+    assert result.lines.effective_threshold == pytest.approx(effective, abs=0.1)
+    assert len(result.lines.features) == 1
+    assert abs(result.lines.features[0].frequency.to_value(u.Hz) - centre) < 1e6  # within a channel
+    # and with the false-alarm control off, the asked threshold is applied as it is
+    plain = check_cube(open_cube(write_cube(tmp_path / "line2.fits", data)), false_alarms=None)
+    assert plain.lines.effective_threshold == 5.0
+
+
+def test_large_beam_correlated_noise_cube_gives_no_detection_but_keeps_its_line(tmp_path):
+    """A 105 MB cube (256 x 256 x 400) of noise correlated over a 4-pixel beam, without and with a line."""
+    rng = np.random.default_rng(5)
+    shape, noise = (400, 256, 256), 1e-3
+    data = correlated_noise(shape, rng=rng, fwhm_pixels=4.0, rms=noise)
+    # header beam 1" on 0.25" pixels: 4 pixels FWHM, as the noise
+    result = check_cube(open_cube(write_cube(tmp_path / "big.fits", data)))
+    assert result.lines.features == ()
+    assert_quantity_allclose(result.noise.cube_rms, noise * u.Jy / u.beam, rtol=0.05)
+    effective = result.lines.effective_threshold
+    assert effective > 5.5  # 400 channels of 4000 beams each
+    # the same noise with a line of 1.1 times the threshold on a compact source
+    centre = frequency_axis_hz(400)[250]
+    freq = frequency_axis_hz(400)
+    y, x = np.mgrid[0:256, 0:256]
+    blob = np.exp(-0.5 * ((y - 100) ** 2 + (x - 140) ** 2) / 3.0**2)
+    data += (1.1 * effective * noise * np.exp(-0.5 * ((freq - centre) / 3e6) ** 2))[:, None, None] * blob
+    found = check_cube(open_cube(write_cube(tmp_path / "big_line.fits", data)))
+    assert len(found.lines.features) == 1
+    feature = found.lines.features[0]
+    assert abs(feature.channels.peak - 250) <= 1
+    assert abs(feature.position[0] - 100) <= 3 and abs(feature.position[1] - 140) <= 3
+
+
+def test_report_states_the_threshold_applied_and_the_velocity_reference(two_line_check):
+    with_z, _ = two_line_check
+    entry = cube_entry(with_z)
+    lines = entry["lines"]
+    assert lines["threshold_snr"] == 5.0
+    assert lines["effective_threshold_snr"] >= 5.0
+    assert lines["false_alarms"] == FALSE_ALARMS
+    assert lines["expected_noise_peaks"] <= FALSE_ALARMS * 1.0001
+    assert "LSRK" in lines["velocity_reference"] and "z" in lines["velocity_reference"]
+    json.dumps(entry, allow_nan=False)

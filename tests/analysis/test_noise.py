@@ -1,6 +1,7 @@
 """Noise statistics: robust rms per channel, cube rms, peak spectrum, leftover continuum."""
 
 import threading
+import warnings
 
 import astropy.units as u
 import numpy as np
@@ -144,3 +145,39 @@ def test_cancel_and_input_unchanged(cube_path, rng):
     channel_statistics(open_cube(path))
     leftover_continuum(open_cube(path))
     assert file_digest(path) == before
+
+
+@pytest.mark.parametrize("max_pixels", [1000, 1001, 5000])
+def test_subsampled_median_and_mad_are_those_of_the_evenly_spaced_subset(cube_path, rng, max_pixels):
+    # Reference: numpy's median and scipy's MAD over every step-th valid pixel (the documented
+    # subset), for channels without blanks (odd and even subset sizes) and with blanks.
+    data = rng.normal(0, 1.5, (6, 70, 90)) + rng.uniform(-2, 2, (6, 1, 1))
+    data[2][rng.random((70, 90)) < 0.3] = np.nan
+    data[4, :10] = np.nan
+    stats = channel_statistics(open_cube(cube_path(data)), max_pixels=max_pixels)
+    stored = data.astype(np.float32).reshape(6, -1)
+    for channel, row in enumerate(stored):
+        valid = row[np.isfinite(row)]
+        subset = valid[::-(-valid.size // max_pixels)]
+        assert stats.n_sampled[channel] == subset.size
+        assert stats.median.value[channel] == pytest.approx(np.median(subset), rel=1e-6)
+        assert stats.rms.value[channel] == pytest.approx(median_abs_deviation(subset, scale="normal"), rel=1e-6)
+        assert stats.peak.value[channel] == np.max(valid)
+
+
+def test_leftover_continuum_keeps_its_precision_under_bright_continuum(cube_path, rng):
+    # Continuum 1000 times the noise: float32 sums about each pixel's own level keep the standard
+    # error to 1e-5 of a float64 two-pass reference (numpy mean and std with ddof=1).
+    data = rng.normal(0, 1e-3, (300, 12, 14)) + 1.0
+    data[:, 3, 4] = np.nan
+    data[7:20, 5, 6] = np.nan
+    leftover = leftover_continuum(open_cube(cube_path(data)))
+    stored = data.astype(np.float32).astype(np.float64)
+    mean = np.nanmean(stored, axis=0)
+    count = np.isfinite(stored).sum(axis=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # the all-blank pixel
+        error = np.nanstd(stored, axis=0, ddof=1) / np.sqrt(count)
+    assert_allclose(leftover.mean.value, mean, rtol=1e-7, equal_nan=True)
+    assert_allclose(leftover.error.value, error, rtol=1e-5, equal_nan=True)
+    assert np.isnan(leftover.mean.value[3, 4])

@@ -29,8 +29,8 @@ from cubefactory import frequency_axis_hz, make_header  # noqa: E402
 CRVAL3, CDELT3 = 270.3e9, -2.0e6
 
 
-def write_big_cube(path, shape, seed=1):
-    """Write the benchmark cube plane by plane (bounded memory while writing)."""
+def write_big_cube(path, shape, seed=1, pure_noise=False):
+    """Write the benchmark cube plane by plane (bounded memory while writing); ``pure_noise``: noise only."""
     nchan, ny, nx = shape
     header = make_header(shape, crval3=CRVAL3, cdelt3=CDELT3, restfrq=CRVAL3, beam=(1.0, 0.8, 0.0),
                          pixel=0.2)
@@ -47,8 +47,12 @@ def write_big_cube(path, shape, seed=1):
     freq = frequency_axis_hz(nchan, CRVAL3, CDELT3)
     y, x = np.mgrid[0:ny, 0:nx]
     blob = np.exp(-0.5 * ((y - ny / 2) ** 2 + (x - nx / 3) ** 2) / 4.0**2).astype(np.float32)
-    lines = (5e-3 * np.exp(-0.5 * ((freq - freq[nchan // 3]) / 20e6) ** 2)
-             + 3e-3 * np.exp(-0.5 * ((freq - freq[2 * nchan // 3]) / 30e6) ** 2) + 0.4e-3)
+    # Lines of 12 and 8 sigma: above the detection threshold the check applies to a cube of this
+    # size (about 6 sigma, raised from 5 so that pure noise gives no detection), so every pass runs.
+    lines = (12e-3 * np.exp(-0.5 * ((freq - freq[nchan // 3]) / 20e6) ** 2)
+             + 8e-3 * np.exp(-0.5 * ((freq - freq[2 * nchan // 3]) / 30e6) ** 2) + 0.4e-3)
+    if pure_noise:
+        lines = np.zeros_like(lines)
     with open(path, "wb") as handle:
         handle.write(header_bytes)
         for k in range(nchan):
@@ -107,6 +111,8 @@ def main():
     parser.add_argument("--shape", type=int, nargs=3, default=(1000, 512, 512), metavar=("NCHAN", "NY", "NX"))
     parser.add_argument("--repeat", type=int, default=3)
     parser.add_argument("--keep", type=Path, help="write (or reuse) the cube at this path and keep it")
+    parser.add_argument("--pure-noise", action="store_true",
+                        help="noise only, no line or continuum: the check must report no detection")
     args = parser.parse_args()
 
     from cubeloupe.analysis import open_cube
@@ -120,12 +126,12 @@ def main():
     if args.keep is not None:
         path = args.keep
         if not path.exists():
-            write_big_cube(path, shape)
+            write_big_cube(path, shape, pure_noise=args.pure_noise)
     else:
         folder = tempfile.TemporaryDirectory(prefix="cubeloupe-bench-")
         path = Path(folder.name) / "bench.fits"
         print(f"writing a {np.prod(shape) * 4 / 1e9:.2f} GB cube {shape} ...", flush=True)
-        write_big_cube(path, shape)
+        write_big_cube(path, shape, pure_noise=args.pure_noise)
     try:
         data = fits.open(path, memmap=True)[0].data
         np.nansum(data, axis=0)  # warm the page cache
@@ -147,13 +153,13 @@ def main():
         rows.append(("check_cube + report section (figures)", t_report, c_report, memory.used))
 
         free = result.continuum.line_free if result.continuum is not None else np.ones(shape[0], bool)
-        stride = max(1, int(np.sqrt(shape[1] * shape[2] / (4 * dc.NOISE_MAX_PIXELS))))
+        stride, max_pixels = dc.noise_grid(shape)
         spectra = dc.continuum_free_peaks(open_cube(path))
         passes = [
             ("  pass 1: continuum_free_peaks", lambda: dc.continuum_free_peaks(open_cube(path))),
-            (f"  pass 2: channel_statistics, 1/{stride}^2 of the pixels (noise.py)",
-             lambda: channel_statistics(open_cube(path)[:, ::stride, ::stride], max_pixels=dc.NOISE_MAX_PIXELS)),
-            ("  line-free mean from pass-1 sums (+ excluded channels)",
+            (f"  pass 2: channel_statistics, every {stride}th row (noise.py)",
+             lambda: channel_statistics(open_cube(path)[:, ::stride, :], max_pixels=max_pixels)),
+            ("  line-free mean from pass-1 sums (+ excluded channels, noise.PixelSums)",
              lambda: spectra.line_free_mean(open_cube(path), free)),
             ("  (for comparison: leftover_continuum of noise.py)",
              lambda: leftover_continuum(open_cube(path), free)),
@@ -169,7 +175,11 @@ def main():
 
         print(f"\ncube {shape} float32 = {os.path.getsize(path) / 1e9:.2f} GB; {os.cpu_count()} CPUs; "
               f"median of {args.repeat}")
-        print(f"found: rms {result.noise.cube_rms:.3g}, {len(result.lines.features)} detection(s), "
+        print(f"found: rms {result.noise.cube_rms:.3g}, {len(result.lines.features)} detection(s) above "
+              f"{result.lines.effective_threshold:.2f} sigma (asked {result.lines.threshold:g}; "
+              f"{result.lines.expected_noise_peaks:.2g} noise peaks expected above it, "
+              f"{result.lines.expected_noise_peaks_at_threshold:.2g} above {result.lines.threshold:g}; noise FWHM "
+              f"{', '.join(f'{f:.2f}' for f in result.lines.noise_fwhm_pixels or ())} pixels), "
               f"continuum peak {result.continuum.peak_significance if result.continuum else float('nan'):.1f} sigma")
         print(f"{'what':58s} {'wall (s)':>9s} {'x nansum':>9s} {'CPU (s)':>8s} {'x nansum':>9s} {'private MB':>11s}")
         print(f"{'np.nansum over the spectral axis (baseline)':58s} {t_nansum:9.2f} {1.0:9.2f} "
