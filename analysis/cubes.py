@@ -145,7 +145,10 @@ def open_cube(path, *, hdu=None, use_dask=False):
             # A short file is reported below as a CubeFileError naming the file;
             # astropy's own warning about it would only repeat that.
             warnings.filterwarnings("ignore", message="File may have been truncated")
-            hdul = fits.open(path, mode="readonly", memmap=True)
+            # "denywrite" maps the file read-only (no copy-on-write), so the
+            # array cannot be written and a cube larger than memory maps
+            # without tripping the kernel's overcommit check.
+            hdul = fits.open(path, mode="denywrite", memmap=True)
             index, data_hdu = _find_data_hdu(hdul, path, hdu)
             fixed = _validated_header(data_hdu.header, path)
             data = data_hdu.data

@@ -29,6 +29,7 @@ import numpy as np
 
 from .beams import beam_area_pixels, pixel_solid_angle
 from .errors import BlankedDataWarning, PartialRegionWarning, RegionError, UnitMismatchError
+from .prefetch import prefetch_if_cold
 from .spectral import frequency_axis
 from .units import is_per_beam, is_temperature
 
@@ -178,7 +179,11 @@ def _read_region(cube, box, inside):
     Only the bounding box is touched; one copy converts it to float64.
     """
     view = (slice(None),) + tuple(box)
-    block = np.array(cube._data[view], dtype=np.float64)
+    # On a cube not in the page cache, faulting the box in page by page is
+    # bound by disk latency x channels; announce every page range first.
+    boxed = cube._data[view]
+    prefetch_if_cold(boxed)
+    block = np.array(boxed, dtype=np.float64)
     n_channels = block.shape[0]
     whole_box = bool(inside.all())
     pixels = block.reshape(n_channels, -1) if whole_box else block[:, inside]

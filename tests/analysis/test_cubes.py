@@ -144,8 +144,9 @@ def test_memory_mapped_read_only_and_recorded(cube_path):
     assert isinstance(base, mmap.mmap)  # backed by the file, not a copy in memory
     assert cube.meta["cubeloupe_source"]["path"] == str(path.resolve())
     assert cube.meta["cubeloupe_source"]["shape"] == SHAPE
-    # Even writing into the array in memory never reaches the file.
-    if cube._data.flags.writeable:
+    # The mapping is read-only: the data cannot even be changed in memory.
+    assert not cube._data.flags.writeable
+    with pytest.raises(ValueError, match="read-only"):
         cube._data[0, 0, 0] = -1e9
     cube.moment0()
     del cube, base
