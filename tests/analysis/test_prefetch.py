@@ -45,3 +45,17 @@ def test_prefetch_on_a_mapped_file_leaves_data_and_file_unchanged(tmp_path):
 def test_arrays_in_memory_need_no_hint():
     assert prefetch(np.zeros((3, 10, 10))[:, 2:5, 2:5]) == 0
     assert prefetch_if_cold(np.zeros((3, 10, 10))[:, 2:5, 2:5]) == 0
+
+
+def test_only_a_slow_probe_sends_the_hint(tmp_path, monkeypatch):
+    import cubeloupe.analysis.prefetch as prefetch_module
+
+    path = tmp_path / "c.fits"
+    fits.PrimaryHDU(np.zeros((12, 40, 2100), ">f4")).writeto(path)
+    with fits.open(path, mode="denywrite", memmap=True) as hdul:
+        view = hdul[0].data[:, 10:20, 5:25]
+        monkeypatch.setattr(prefetch_module, "_COLD_PROBE_SECONDS", 3600.0)   # every read counts as warm
+        assert prefetch_if_cold(view) == 0
+        monkeypatch.setattr(prefetch_module, "_COLD_PROBE_SECONDS", -1.0)     # every read counts as cold
+        assert prefetch_if_cold(view) == prefetch(view) > 0
+        del view

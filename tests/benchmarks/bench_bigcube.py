@@ -18,6 +18,7 @@ disk's read throughput, memory above the memory map < 512 MB.
 """
 
 import argparse
+import mmap
 import os
 import shutil
 import sys
@@ -174,8 +175,31 @@ def main():
             else:
                 spectrum = np.nansum(cube._data[:, 891:911, 1191:1211], axis=(1, 2))
                 how = "slicing"
-            rows.append((f"20x20 region spectrum, {how} (cold)", time.perf_counter() - start, "target < 100 ms"))
+            cold = time.perf_counter() - start
+            # A cold read cannot beat the disk: every channel holds 20 rows of the
+            # box, each in its own page (rows are IMAGE * 4 bytes apart).
+            floor = nchan * 20 * mmap.PAGESIZE / disk
+            rows.append((f"20x20 region spectrum, {how} (cold)", cold,
+                         f"target < 100 ms; disk floor {floor * 1e3:.0f} ms for the pages it spans"))
+            start = time.perf_counter()
+            spectrum = region_spectrum(cube, region) if region_spectrum is not None else spectrum
+            rows.append((f"20x20 region spectrum, {how} (warm)", time.perf_counter() - start, "target < 100 ms"))
             assert len(spectrum) == nchan
+
+            from cubeloupe.widgets import Loupe
+
+            start = time.perf_counter()
+            loupe = Loupe(cube)
+            rows.append(("Loupe(cube) shown, first channel drawn", time.perf_counter() - start, loupe.status.message))
+            start = time.perf_counter()
+            loupe.channel = nchan // 2
+            rows.append(("Loupe channel change (cold, 2048^2 shown at 512^2)", time.perf_counter() - start,
+                         "target < 50 ms"))
+            start = time.perf_counter()
+            loupe.add_region(RectanglePixelRegion(PixCoord(300.5, 1700.5), width=20, height=20), name="box")
+            rows.append(("Loupe new 20x20 region -> spectrum drawn (cold)", time.perf_counter() - start,
+                         "target < 100 ms"))
+            del loupe
 
             dv = abs(velocity[1] - velocity[0])
             lo, hi = nchan // 2 - 50, nchan // 2 + 50
