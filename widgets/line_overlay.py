@@ -12,6 +12,7 @@ import logging
 import threading
 import time
 
+import astropy.constants as const
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
@@ -28,6 +29,8 @@ from cubeloupe.analysis.spectral import Z_MAX, check_redshift, observed_frequenc
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
 
 __all__ = ["LineOverlay"]
+
+_C_KMS = const.c.to_value(u.km / u.s)
 
 log = logging.getLogger("cubeloupe.widgets")
 
@@ -301,7 +304,7 @@ class LineOverlay(w.VBox):
         with self.status.guard("finding catalog lines in the band"):
             lo, hi = self.band
             # Widen by the slider's range so lines shifted into the band by the offset are kept.
-            pad = 1 + self.velocity_range / 299792.458
+            pad = 1 + self.velocity_range / _C_KMS
             lo, hi = lo / pad, hi * pad
             key = self._lines_needed(lo, hi)
             if key != self._lines_key or self.lines is None:
