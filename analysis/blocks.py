@@ -53,6 +53,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import CancelledComputation, ClusterError, CubeFileError
+from .prefetch import BlockReadAhead
 
 __all__ = [
     "DEFAULT_BLOCK_BYTES",
@@ -62,6 +63,7 @@ __all__ = [
     "spectra_blocks",
     "plane_blocks",
     "file_view",
+    "cube_array",
     "resolve_client",
     "run_blocks",
 ]
@@ -255,8 +257,19 @@ def _address(array):
     return array.__array_interface__["data"][0]
 
 
-def _numpy_data(cube):
-    """The cube's data as a numpy array if it has one without computing anything, else None."""
+def cube_array(cube):
+    """The cube's data as a numpy array if it has one without computing anything, else None.
+
+    For a cube from `open_cube` this is the memory-mapped array of the file
+    (channel, y, x); for a dask cube straight from the file, the array under
+    its graph; for anything computed lazily, None.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_names, demo_path, open_cube
+    >>> cube_array(open_cube(demo_path(demo_names()[0]))).ndim
+    3
+    """
     data = cube._data
     if isinstance(data, np.ndarray):
         return data
@@ -289,7 +302,7 @@ def file_view(cube):
     FileView or None
     """
     source = (getattr(cube, "meta", None) or {}).get("cubeloupe_source")
-    data = _numpy_data(cube)
+    data = cube_array(cube)
     if not source or data is None:
         return None
     base = data
@@ -453,14 +466,17 @@ def run_blocks(cube, kernel, blocks, consume, *, dtype=np.float64, client=None, 
 
 
 def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
-    data = _numpy_data(cube)
+    data = cube_array(cube)
     if data is None:
         data = cube._data
     mask = _custom_mask(cube, data)
     total = len(blocks)
     threads = default_threads() if threads is None else max(1, int(threads))
+    ahead = BlockReadAhead(data, blocks) if isinstance(data, np.ndarray) else None
 
     def work(block):
+        if ahead is not None:
+            ahead.before(block)
         return kernel(_read_block(data, block, dtype, mask))
 
     if threads == 1 or total <= 1:
@@ -505,7 +521,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
 def _run_distributed(cube, kernel, blocks, consume, view, dtype, client, progress, cancel):
     import distributed
 
-    mask = _custom_mask(cube, _numpy_data(cube))
+    mask = _custom_mask(cube, cube_array(cube))
     total = len(blocks)
     try:
         slots = max(4, 2 * sum(client.nthreads().values()))

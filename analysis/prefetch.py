@@ -16,12 +16,14 @@ Examples
 0
 """
 
+import math
 import mmap
+import threading
 import time
 
 import numpy as np
 
-__all__ = ["prefetch", "prefetch_if_cold"]
+__all__ = ["prefetch", "prefetch_if_cold", "prefetch_channels", "BlockReadAhead"]
 
 # A channel's worth of a small box copies in microseconds from the page cache;
 # from disk it takes at least one device round trip (~0.1 ms or more).
@@ -67,15 +69,18 @@ def prefetch(view):
 
     Parameters
     ----------
-    view : ndarray, 3-D
-        A (strided) view into a memory-mapped array, e.g. ``data[:, y0:y1, x0:x1]``.
+    view : ndarray, 2-D or 3-D
+        A (strided) view into a memory-mapped array, e.g. ``data[:, y0:y1, x0:x1]``
+        or one channel image ``data[k]``.
 
     Returns
     -------
     n_ranges : int
         Number of page ranges the kernel was told about (0 when ``view`` is not
-        memory-mapped, is not 3-D, or the platform has no ``madvise``).
+        memory-mapped, is not 2-D or 3-D, or the platform has no ``madvise``).
     """
+    if view.ndim == 2:
+        view = view[np.newaxis]
     if view.ndim != 3 or view.size == 0 or not hasattr(mmap, "MADV_WILLNEED"):
         return 0
     mapping = _mapping(view)
@@ -89,8 +94,11 @@ def prefetch(view):
     if n > _MAX_RANGES:
         lo, hi = lo[:1], hi[-1:]
     size = len(mapping)
-    for start, stop in zip(lo.tolist(), hi.tolist()):
-        mapping.madvise(mmap.MADV_WILLNEED, start, min(stop, size) - start)
+    try:
+        for start, stop in zip(lo.tolist(), hi.tolist()):
+            mapping.madvise(mmap.MADV_WILLNEED, start, min(stop, size) - start)
+    except OSError:  # only a hint: a platform refusing it changes nothing but speed
+        return 0
     return len(lo)
 
 
@@ -121,3 +129,121 @@ def prefetch_if_cold(view):
         if time.perf_counter() - start > _COLD_PROBE_SECONDS:
             return prefetch(view)
     return 0
+
+
+def _is_cold(element_view):
+    """True when copying ``element_view`` (a few bytes) took as long as a disk read."""
+    start = time.perf_counter()
+    np.array(element_view)
+    return time.perf_counter() - start > _COLD_PROBE_SECONDS
+
+
+def prefetch_channels(cube, channels):
+    """Start reading whole channel images of a memory-mapped cube in the background.
+
+    A channel image is one contiguous run of the file: announced first, it
+    arrives in a few large reads instead of one page fault at a time (a cold
+    2048 x 2048 channel: ~35 ms -> ~5 ms on the benchmark machine). Announcing
+    the channels next to the one shown makes stepping through the band read
+    from memory. Pages already in memory cost one cheap system call.
+
+    Parameters
+    ----------
+    cube : SpectralCube or ndarray
+        A cube opened with `open_cube` (or its 3-D array).
+    channels : iterable of int
+        Channel indices; those outside the cube are skipped.
+
+    Returns
+    -------
+    n_ranges : int
+        Page ranges announced (0 for cubes that are not memory-mapped).
+
+    Examples
+    --------
+    >>> prefetch_channels(np.zeros((4, 8, 8)), [0, 1])   # in memory: nothing to do
+    0
+    """
+    from .blocks import cube_array
+
+    data = cube if isinstance(cube, np.ndarray) else cube_array(cube)
+    if data is None or data.ndim != 3 or _mapping(data) is None:
+        return 0
+    return sum(prefetch(data[k]) for k in channels if 0 <= k < data.shape[0])
+
+
+class BlockReadAhead:
+    """Announce the pages of the next blocks ahead of the reader, once reads turn out cold.
+
+    Block kernels read a block's selected channels one run of pixels each; on
+    a cube not in the page cache every run is a separate disk request, so the
+    reader waits on latency. Once a probe read finds the data cold, the
+    blocks up to ``ahead_bytes`` ahead are announced in batches, consecutive
+    blocks merged, so each channel becomes one large request and the disk
+    works at its throughput while the cores compute. Warm data pay only the
+    probe (one small copy per block).
+
+    Parameters
+    ----------
+    data : ndarray, 3-D
+        The cube's array; nothing is done unless it is a view of a memory map.
+    blocks : list of Block
+        In the order they will be read (see `cubeloupe.analysis.blocks`).
+    ahead_bytes : int
+        File data to keep announced ahead of the reader.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis.blocks import spectra_blocks
+    >>> blocks = spectra_blocks((50, 8, 8))
+    >>> ahead = BlockReadAhead(np.zeros((50, 8, 8)), blocks)
+    >>> ahead.before(blocks[0])   # in memory: nothing to announce
+    0
+    """
+
+    def __init__(self, data, blocks, ahead_bytes=64 * 2**20):
+        self._data = data
+        self._blocks = list(blocks)
+        self.active = data.ndim == 3 and bool(self._blocks) and _mapping(data) is not None
+        largest = max((math.prod(b.shape) for b in self._blocks), default=1) * data.itemsize
+        self._ahead = max(2, math.ceil(ahead_bytes / max(1, largest)))
+        self._position = {b.index: i for i, b in enumerate(self._blocks)}
+        self.cold = False
+        self._horizon = 0  # blocks[:_horizon] have been announced
+        self._lock = threading.Lock()
+
+    def before(self, block):
+        """Call before reading ``block``; returns the number of page ranges announced now."""
+        if not self.active:
+            return 0
+        position = self._position[block.index]
+        with self._lock:
+            if not self.cold:
+                start, stop = block.runs[0]
+                probe = self._data[(start + stop - 1) // 2, block.rows.start, block.columns.start]
+                if not _is_cold(probe):
+                    return 0
+                self.cold = True
+                self._horizon = max(self._horizon, position)
+            # Announce in batches of half the look-ahead: fewer, larger requests.
+            if self._horizon - position > self._ahead // 2:
+                return 0
+            first, self._horizon = self._horizon, min(len(self._blocks), position + self._ahead)
+            batch = self._blocks[first:self._horizon]
+        return self._announce(batch)
+
+    def _announce(self, batch):
+        n = 0
+        i = 0
+        while i < len(batch):
+            # Consecutive blocks with the same channels: one box per channel run.
+            j = i
+            while j + 1 < len(batch) and batch[j + 1].runs == batch[i].runs:
+                j += 1
+            group = batch[i:j + 1]
+            rows = slice(min(b.rows.start for b in group), max(b.rows.stop for b in group))
+            columns = slice(min(b.columns.start for b in group), max(b.columns.stop for b in group))
+            for start, stop in batch[i].runs:
+                n += prefetch(self._data[start:stop, rows, columns])
+            i = j + 1
+        return n

@@ -77,6 +77,8 @@ class RegionList(w.VBox):
         self._drawn = {}
         self._grid_keys = {}
         self._rows = w.Box(layout=w.Layout(flex_flow="row wrap", align_items="center"))
+        self._row_widgets = {}
+        self._outline_cache = {}
         self._empty = w.HTML("<span style='color:#829ab1;font-size:90%'>No regions yet: pick Box, Oval, Outline "
                              "or Pixel above the sky image and draw on it, or add one from code "
                              "(<code>loupe.add_region(...)</code>).</span>")
@@ -304,50 +306,76 @@ class RegionList(w.VBox):
     def outlines_for(self, cube):
         """Outlines of all regions in ``cube``'s pixel coordinates (dicts name, color, x, y)."""
         out = []
+        grid = self._grid_key(cube.wcs)
         for item in self.regions:
-            shape = self._drawn_shape(item["name"], cube.wcs) or self.sky_region(item["name"])
-            if isinstance(shape, PointSkyRegion):
-                x, y = cube.wcs.celestial.world_to_pixel(shape.center)
-                i, j = np.round(x), np.round(y)
-                xs, ys = [i - .5, i + .5, i + .5, i - .5, i - .5], [j - .5, j - .5, j + .5, j + .5, j - .5]
-            else:
-                pixel = shape if isinstance(shape, PixelRegion) else shape.to_pixel(cube.wcs.celestial)
-                verts = pixel.as_artist().get_verts()
-                xs, ys = verts[:, 0], verts[:, 1]
-            out.append({"name": item["name"], "color": item["color"],
-                        "x": [float(v) for v in xs], "y": [float(v) for v in ys]})
+            # Placing a sky shape on a grid costs ~25 ms (regions fits the local WCS):
+            # keep each outline until its shape or the grid changes.
+            key = (grid, self._shape_key(item))
+            if key not in self._outline_cache:
+                self._outline_cache[key] = self._outline(item["name"], cube)
+            xs, ys = self._outline_cache[key]
+            out.append({"name": item["name"], "color": item["color"], "x": list(xs), "y": list(ys)})
+        if len(self._outline_cache) > 4 * len(self.regions) + 16:
+            self._outline_cache.clear()
         return out
+
+    def _outline(self, name, cube):
+        shape = self._drawn_shape(name, cube.wcs) or self.sky_region(name)
+        if isinstance(shape, PointSkyRegion):
+            x, y = cube.wcs.celestial.world_to_pixel(shape.center)
+            i, j = np.round(x), np.round(y)
+            xs, ys = [i - .5, i + .5, i + .5, i - .5, i - .5], [j - .5, j - .5, j + .5, j + .5, j - .5]
+        else:
+            pixel = shape if isinstance(shape, PixelRegion) else shape.to_pixel(cube.wcs.celestial)
+            verts = pixel.as_artist().get_verts()
+            xs, ys = verts[:, 0], verts[:, 1]
+        return tuple(float(v) for v in xs), tuple(float(v) for v in ys)
 
     # --------------------------------------------------------------- display
     @observe("regions", "selected")
     def _render(self, change=None):
-        rows = []
+        # Rows are kept per (name, colour, kind) and reused: rebuilding every row's
+        # widgets on each change cost ~100 ms with a handful of regions.
+        rows, kept = [], {}
         for item in self.regions:
-            name = item["name"]
-            pick = w.ToggleButton(value=name == self.selected, icon="hand-pointer-o", layout=w.Layout(width="36px"),
-                                  tooltip=f"Select region {name} (its spectrum is used for the table and reshaping)")
-            pick.observe(lambda ch, name=name: ch.new and setattr(self, "selected", name), names="value")
-            color = w.ColorPicker(value=item["color"], concise=True, layout=w.Layout(width="36px"),
-                                  tooltip="Colour of this region's outline and spectrum")
-            color.observe(lambda ch, name=name: self.recolor(name, ch.new), names="value")
-            label = w.Text(value=name, layout=w.Layout(width="96px"),
-                           tooltip="Name of the region; type a new one and press Enter", continuous_update=False)
-            label.observe(lambda ch, name=name: self._safe_rename(name, ch.new), names="value")
-            kind = w.HTML(f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
-                          layout=w.Layout(width="48px"))
-            drop = w.Button(icon="times", layout=w.Layout(width="36px"),
-                            tooltip=f"Remove region {name} and its spectrum")
-            drop.on_click(lambda _, name=name: self.remove(name))
-            row = w.HBox([pick, color, label, kind, drop],
-                         layout=w.Layout(align_items="center", margin="0 14px 0 0",
-                                         border_left=f"4px solid {item['color']}", padding="0 0 0 4px"))
-            row.add_class("cubeloupe-region-row")
+            key = (item["name"], item["color"], item["kind"])
+            row = self._row_widgets.pop(key, None) or self._make_row(item)
+            row.children[0].value = item["name"] == self.selected
+            kept[key] = row
             rows.append(row)
+        for row in self._row_widgets.values():
+            for child in row.children:
+                child.close()
+            row.close()
+        self._row_widgets = kept
         self._rows.children = rows
         self._empty.layout.display = "none" if rows else ""
+
+    def _make_row(self, item):
+        name = item["name"]
+        pick = w.ToggleButton(value=name == self.selected, icon="hand-pointer-o", layout=w.Layout(width="36px"),
+                              tooltip=f"Select region {name} (its spectrum is used for the table and reshaping)")
+        pick.observe(lambda ch, name=name: ch.new and setattr(self, "selected", name), names="value")
+        color = w.ColorPicker(value=item["color"], concise=True, layout=w.Layout(width="36px"),
+                              tooltip="Colour of this region's outline and spectrum")
+        color.observe(lambda ch, name=name: self.recolor(name, ch.new), names="value")
+        label = w.Text(value=name, layout=w.Layout(width="96px"),
+                       tooltip="Name of the region; type a new one and press Enter", continuous_update=False)
+        label.observe(lambda ch, name=name: self._safe_rename(name, ch.new), names="value")
+        kind = w.HTML(f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
+                      layout=w.Layout(width="48px"))
+        drop = w.Button(icon="times", layout=w.Layout(width="36px"), tooltip=f"Remove region {name} and its spectrum")
+        drop.on_click(lambda _, name=name: self.remove(name))
+        row = w.HBox([pick, color, label, kind, drop],
+                     layout=w.Layout(align_items="center", margin="0 14px 0 0",
+                                     border_left=f"4px solid {item['color']}", padding="0 0 0 4px"))
+        row.add_class("cubeloupe-region-row")
+        return row
 
     def _safe_rename(self, old, new):
         try:
             self.rename(old, new)
         except RegionError:
-            self._render()
+            for (name, _, _), row in self._row_widgets.items():
+                if name == old:
+                    row.children[2].value = old   # put the refused name back in the box

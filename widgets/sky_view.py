@@ -27,6 +27,7 @@ from cubeloupe.analysis.display import (
     stretched,
 )
 from cubeloupe.analysis.errors import BeamError
+from cubeloupe.analysis.prefetch import prefetch_channels
 
 from ._look import RAMPS, row
 from .status import StatusLine
@@ -336,6 +337,8 @@ class SkyView(w.VBox):
         """
         if self.source == "channel":
             # One plane from the memory map; spectral-cube's unmasked_data slices lazily.
+            # Announced first, a plane not in memory arrives in a few large reads.
+            prefetch_channels(self.cube, [self.channel])
             plane = self.cube.unmasked_data[self.channel, :, :]
             return np.asarray(plane.value), plane.unit
         projection = self.maps[self.source]
@@ -362,6 +365,9 @@ class SkyView(w.VBox):
             self._draw_beam()
             if self.contour_source:
                 self._draw_contours()
+        if self.source == "channel":
+            # Stepping or playing through the band reads the neighbours next: start reading them now.
+            prefetch_channels(self.cube, [self.channel - 1, self.channel + 1])
 
     def _beam(self):
         if self.window not in self._beam_cache:

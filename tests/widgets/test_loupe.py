@@ -176,6 +176,24 @@ def test_regions_are_editable_and_removable(loupe):
     assert len(loupe.sky_view.outlines) == 1
 
 
+def test_region_rows_follow_the_regions_and_refuse_a_taken_name(loupe):
+    rows = loupe.region_list._rows
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="a")
+    loupe.add_region(CirclePixelRegion(PixCoord(5, 5), radius=2), name="b")
+    names = [row.children[2].value for row in rows.children]
+    picked = [row.children[0].value for row in rows.children]
+    assert names == ["a", "b"] and picked == [False, True]   # the newest region is selected
+    rows.children[0].children[0].value = True                 # click a's select button
+    assert loupe.region_list.selected == "a"
+    assert [row.children[0].value for row in rows.children] == [True, False]
+    rows.children[1].children[2].value = "a"                  # type a name that is taken
+    assert loupe.region_list.names == ["a", "b"] and rows.children[1].children[2].value == "b"
+    rows.children[1].children[2].value = "rim"
+    assert loupe.region_list.names == ["a", "rim"] and set(loupe.spectra) == {"a", "rim"}
+    rows.children[0].children[4].click()                      # remove a
+    assert [row.children[2].value for row in rows.children] == ["rim"] and loupe.regions[0]["name"] == "rim"
+
+
 def test_region_outside_the_cube_is_reported_and_not_kept(loupe):
     loupe.add_region(CirclePixelRegion(PixCoord(500, 500), radius=3), name="far")
     assert loupe.status.level == "error"
