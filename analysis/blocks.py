@@ -365,7 +365,10 @@ def _read_block(array, block, dtype, mask=None):
 
 def _remote_block(view, block, dtype, mask_bits, kernel):
     """Run on a worker: map the file, read one block, run the kernel."""
-    data = _read_block(view.array(), block, np.dtype(dtype))
+    array = view.array()
+    # A worker sees one block at a time: when it is cold, announce its channel runs all at once.
+    BlockReadAhead(array, [block]).before(block)
+    data = _read_block(array, block, np.dtype(dtype))
     if mask_bits is not None:
         keep = np.unpackbits(mask_bits, count=data.size).reshape(data.shape).astype(bool)
         data[~keep] = np.nan
