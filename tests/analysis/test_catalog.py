@@ -241,7 +241,7 @@ def test_co_einstein_a_matches_dipole_moment(catalog):
 
 
 def test_hcn_einstein_a(catalog):
-    # HCN J=1-0: A = 2.407e-5 s^-1 (LAMDA, Schoier et al. 2005; from memory).
+    # HCN J=1-0: A = 2.4075e-5 s^-1 (LAMDA hcn.dat, Schoier et al. 2005; copy vendored in tests/data/catalog_reference.ecsv).
     assert_quantity_allclose(find_line("HCN J=1-0")["einstein_A"], 2.407e-5 / u.s, rtol=0.01)
 
 
