@@ -36,6 +36,12 @@ log = logging.getLogger("cubeloupe.widgets")
 
 ISOMER_CHOICES = ("any", "ortho", "para", "none")
 
+# Height of the marker heads as a fraction of the spectrum plot (the stems rise from the bottom to it).
+HEAD_HEIGHT = 0.88
+
+_HOVER_HINT = ("<span style='color:#829ab1;font-size:90%'>Point at a line marker on the spectrum for its "
+               "details; click its head to make it velocity zero.</span>")
+
 
 class LineOverlay(w.VBox):
     """Redshift and velocity controls, catalog filters and labelled line markers.
@@ -70,6 +76,10 @@ class LineOverlay(w.VBox):
     candidates = List(help="Redshift candidates for the marked peaks (RedshiftCandidate objects), best first")
     hover_text = Unicode("", help="Details of the marker under the pointer, as shown")
     velocity_range = Float(1500.0, help="Half-range of the velocity slider (km/s)")
+    marker_reach = Float(0.008, help="How near the pointer must come to a marker to point at it, as a fraction "
+                                     "of the spectrum's drawn x range")
+    head_reach = Float(0.06, help="How near in height to a marker's head a click must be to make its line "
+                                  "velocity zero, as a fraction of the plot's height")
 
     def __init__(self, spectrum_view, band, catalog=None, status=None, **kwargs):
         self.view = spectrum_view
@@ -88,6 +98,7 @@ class LineOverlay(w.VBox):
         self.view.add_overlay_marks([self.stems, self.heads])
         self.view.observe(self._on_view_frame, names=["axis_kind", "convention", "rest_frequency", "x_range"])
         self.view.observe(self._on_peaks, names=["peaks"])
+        self.view.on_pointer(self._on_pointer)
         self._refresh_lines()
 
     def _build(self):
@@ -160,9 +171,7 @@ class LineOverlay(w.VBox):
         self.use_candidate.on_click(lambda _: self.use_candidate_index(self.candidate_choice.index or 0))
         self.summary = w.HTML(value="&nbsp;", layout=w.Layout(min_height="20px"))
         self.summary.add_class("cubeloupe-z-summary")
-        self._hover = w.HTML(value="<span style='color:#829ab1;font-size:90%'>Point at a line marker on the "
-                                   "spectrum for its details; click it to make it velocity zero.</span>",
-                             layout=w.Layout(min_height="20px"))
+        self._hover = w.HTML(value=_HOVER_HINT, layout=w.Layout(min_height="20px"))
         self._hover.add_class("cubeloupe-line-details")
         peaks_hint = w.HTML("<span style='color:#829ab1;font-size:90%'>Choose <i>Peaks</i> above the spectrum "
                             "and click two or more line tops; the redshifts that fit them appear here.</span>")
@@ -339,8 +348,8 @@ class LineOverlay(w.VBox):
             n = len(xs)
             with self.view.figure.hold_sync():
                 self.stems.x = np.repeat(xs[:, None], 2, axis=1) if n else []
-                self.stems.y = np.tile([0.0, 0.88], (n, 1)) if n else []
-                self.heads.x, self.heads.y = xs, np.full(n, 0.88)
+                self.stems.y = np.tile([0.0, HEAD_HEIGHT], (n, 1)) if n else []
+                self.heads.x, self.heads.y = xs, np.full(n, HEAD_HEIGHT)
                 if list(self.heads.names) != names:
                     self.heads.names = names
 
@@ -375,6 +384,41 @@ class LineOverlay(w.VBox):
         self._hover.value = f"<div style='font-size:90%'>{text.replace('<br>', ' · ')}</div>"
         self.hover_text = self._hover.value
         return text
+
+    def marker_near(self, x):
+        """Row of `lines` whose drawn marker is nearest to ``x`` (current axis units), if within reach.
+
+        Returns None when no drawn marker lies within `marker_reach` of the drawn x range.
+        """
+        shown = self.shown_markers
+        if not len(shown) or not self.view.x_range:
+            return None
+        distance = np.abs(self.marker_x[shown] - float(x))
+        nearest = int(np.argmin(distance))
+        reach = self.marker_reach * (self.view.x_range[1] - self.view.x_range[0])
+        return int(shown[nearest]) if distance[nearest] <= reach else None
+
+    def _on_pointer(self, event, x, height):
+        # The spectrum view's pointer: the marks themselves never see the mouse in the browser,
+        # because bqplot's interaction layer lies over them.
+        index = None if event == "leave" else self.marker_near(x)
+        if event in ("move", "leave"):
+            if index is None:
+                self.clear_hover()
+            else:
+                self.hover(index)
+            return False
+        # Only in 'go' mode: in 'peaks' a click near a head still marks a peak.
+        if event == "click" and self.view.mode == "go" and index is not None and height is not None \
+                and abs(height - HEAD_HEIGHT) <= self.head_reach:
+            self.reference_line = str(self.lines["name"][index])
+            return True
+        return False
+
+    def clear_hover(self):
+        """Show the hint again instead of a marker's details (the pointer left the markers)."""
+        self._hover.value = _HOVER_HINT
+        self.hover_text = ""
 
     def _on_head_selected(self, change):
         # Clicking a marker makes its line the velocity reference.

@@ -41,7 +41,7 @@ _POINTER_HINT = ("<span style='color:#829ab1;font-size:90%'>Point at the image t
 TOOLS = {
     "look": ("Look", "eye", "Move the pointer over the image to read sky position and value"),
     "box": ("Box", "square-o", "Drag a box on the image to make a rectangular region"),
-    "oval": ("Oval", "circle-o", "Drag on the image to make an elliptical region"),
+    "oval": ("Oval", "circle-o", "Press at the centre and drag outwards to make an elliptical region"),
     "outline": ("Outline", "pencil", "Click corner after corner to outline a free-form region; "
                                      "double-click (or press Close outline) to finish it"),
     "pixel": ("Pixel", "crosshairs", "Click one pixel to make a one-pixel region"),
@@ -457,6 +457,10 @@ class SkyView(w.VBox):
                   "angle": float(getattr(selector, "rotate", 0.0) or 0.0)}
         with self.status.guard("making a region from the drawn shape"):
             self._emit(kind, params)
+        # The region's own outline shows the shape now; a selector left on the image would
+        # move under the next drag instead of starting a new region.
+        selector.selected_x = None
+        selector.selected_y = None
 
     def _on_pointer_msg(self, _, content, buffers=None):
         event = content.get("event")

@@ -23,7 +23,7 @@ from cubeloupe.analysis.spectral import CONVENTIONS
 from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
 from .status import StatusLine
 
-__all__ = ["SpectrumView", "CLICK_MODES"]
+__all__ = ["SpectrumView", "CLICK_MODES", "RANGE_MODES"]
 
 # What a click or drag on the spectrum does: value -> (label, tooltip)
 CLICK_MODES = {
@@ -32,6 +32,8 @@ CLICK_MODES = {
     "window": ("Line window", "Drag across the line to set the window used for measurements and moment maps"),
     "peaks": ("Peaks", "Click the tops of lines you see; with two or more the redshift is solved"),
 }
+# The modes in which a drag marks a spectral range.
+RANGE_MODES = ("line-free", "window")
 
 
 def _pairs(value):
@@ -86,6 +88,7 @@ class SpectrumView(w.VBox):
         self.curve_marks = {}
         self.model_marks = {}
         self._pick_callbacks = []
+        self._pointer_callbacks = []
         self._overlay_marks = []
         self._build()
         super().__init__(children=[self._toolbar, self.figure], **kwargs)
@@ -126,7 +129,13 @@ class SpectrumView(w.VBox):
                              fig_margin={"top": 30, "bottom": 45, "left": 65, "right": 15},
                              layout=w.Layout(width="100%", height="360px"))
         self.figure.add_class("cubeloupe-spectrum-figure")
-        self.clicker = MouseInteraction(x_scale=self.x_scale, y_scale=self.y_scale, events=["click"])
+        # The pointer is followed in every mode. bqplot lays its interaction layer over the marks,
+        # so marks never see the mouse: line markers are found from the pointer's position instead
+        # (see on_pointer). In the range modes the brush is chained after the pointer (`next`):
+        # drags then brush a range and pointer moves still reach the kernel. The y scale is the
+        # band scale, so a height comes as a fraction of the plot (0 at the bottom, 1 at the top).
+        self.clicker = MouseInteraction(x_scale=self.x_scale, y_scale=self.band_scale,
+                                        events=["click", "mousemove", "mouseleave"])
         self.clicker.on_msg(self._on_click_msg)
         self.brush = BrushIntervalSelector(scale=self.x_scale, marks=[], color=LINE_WINDOW_FILL)
         self.brush.observe(self._on_brushing, names=["brushing"])
@@ -436,7 +445,7 @@ class SpectrumView(w.VBox):
     # ---------------------------------------------------------- interaction
     @observe("mode")
     def _on_mode(self, change):
-        self.figure.interaction = self.brush if self.mode in ("line-free", "window") else self.clicker
+        self.clicker.next = self.brush if self.mode in RANGE_MODES else None
         self.brush.color = LINE_FREE_FILL if self.mode == "line-free" else LINE_WINDOW_FILL
 
     def on_pick(self, callback, remove=False):
@@ -446,14 +455,53 @@ class SpectrumView(w.VBox):
         else:
             self._pick_callbacks.append(callback)
 
-    def _on_click_msg(self, _, content, buffers=None):
-        if content.get("event") != "click" or "x" not in (content.get("domain") or {}):
-            return
-        self.click(float(content["domain"]["x"]))
+    def on_pointer(self, callback, remove=False):
+        """Register ``callback(event, x, height)`` for the pointer over the plot.
 
-    def click(self, x):
-        """Act on a click at ``x`` (current axis units), as the mouse would."""
+        ``event`` is 'move', 'leave' (the pointer left the plot) or 'click', ``x`` is in the
+        current axis units and ``height`` is the fraction of the plot's height (0 at the bottom,
+        1 at the top; None if unknown). A callback that returns True for a click takes it: no
+        channel is picked and no peak is marked.
+        """
+        if remove:
+            self._pointer_callbacks.remove(callback)
+        else:
+            self._pointer_callbacks.append(callback)
+
+    def _on_click_msg(self, _, content, buffers=None):
+        event = content.get("event")
+        domain = content.get("domain") or {}
+        x = None if domain.get("x") is None else float(domain["x"])
+        height = None if domain.get("y") is None else float(domain["y"])
+        if event == "mouseleave":
+            self._tell_pointer("leave", x, height)
+        elif x is None:
+            return
+        elif event == "mousemove":
+            self.point(x, height)
+        elif event == "click" and self.mode not in RANGE_MODES:
+            # In the range modes the click that ends a brush drag also reaches the pointer.
+            self.click(x, height)
+
+    def point(self, x, height=None):
+        """Act on the pointer moving to ``x`` (current axis units) at ``height``, as the mouse would."""
+        self._tell_pointer("move", x, height)
+
+    def _tell_pointer(self, event, x, height):
+        with self.status.guard("following the pointer"):
+            for callback in list(self._pointer_callbacks):
+                callback(event, x, height)
+
+    def click(self, x, height=None):
+        """Act on a click at ``x`` (current axis units) and ``height``, as the mouse would.
+
+        A pointer listener may take the click (e.g. one on a line marker's head); otherwise it
+        picks the channel ('go') or marks a peak ('peaks').
+        """
         with self.status.guard("reading the clicked position"):
+            for callback in list(self._pointer_callbacks):
+                if callback("click", x, height):
+                    return
             frequency = float(self.frequency_of_x([x])[0])
             if self.mode == "peaks":
                 if frequency not in self.peaks:

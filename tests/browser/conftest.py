@@ -361,22 +361,36 @@ def lab_page(browser, lab_server, screenshot_dir):
         context.close()
 
 
+@pytest.fixture(scope="module")
+def other_lab_page(browser, lab_server, screenshot_dir):
+    """A second page in a browser context of its own, for a module that also works on another
+    notebook: its console errors and kernel stay apart from those of ``lab_page``."""
+    context, lab = _new_lab_page(browser, lab_server, screenshot_dir)
+    try:
+        yield lab
+    finally:
+        context.close()
+
+
 @pytest.hookimpl(hookwrapper=True)
 def pytest_runtest_makereport(item, call):
     """On a failure, attach what the page showed: a screenshot path and the console errors."""
     outcome = yield
     report = outcome.get_result()
-    lab = item.funcargs.get("lab_page") if hasattr(item, "funcargs") else None
-    if report.when != "call" or not report.failed or lab is None:
+    funcargs = getattr(item, "funcargs", {})
+    pages = [(name, funcargs[name]) for name in ("lab_page", "other_lab_page") if name in funcargs]
+    if report.when != "call" or not report.failed or not pages:
         return
     directory = Path(tempfile.gettempdir()) / "cubeloupe-browser-failures"
     directory.mkdir(exist_ok=True)
-    path = directory / f"{item.name}.png"
     from playwright.sync_api import Error as PlaywrightError
 
-    try:
-        lab.page.screenshot(path=str(path))
-        where = str(path)
-    except PlaywrightError as error:  # the page may be gone; the report matters more than the picture
-        where = f"(no screenshot: {error})"
-    report.sections.append(("browser", f"screenshot: {where}\nconsole errors: {lab.console_errors}"))
+    for name, lab in pages:
+        path = directory / f"{item.name}{'' if name == 'lab_page' else '-' + name}.png"
+        try:
+            lab.page.screenshot(path=str(path))
+            where = str(path)
+        except PlaywrightError as error:  # the page may be gone; the report matters more than the picture
+            where = f"(no screenshot: {error})"
+        report.sections.append((f"browser ({name})",
+                                f"screenshot: {where}\nconsole errors: {lab.console_errors}"))

@@ -6,9 +6,12 @@ attributes, which JupyterLab keeps stable for its UI tests.
 """
 
 import io
+import json
 import re
+import time
 from pathlib import Path
 
+import pytest
 from PIL import Image
 
 # Time limits for conditions (milliseconds). They bound a wait; they are not waited out.
@@ -17,7 +20,19 @@ KERNEL_TIMEOUT = 90_000
 RUN_TIMEOUT = 150_000
 UI_TIMEOUT = 30_000
 
+CHANGE_TIMEOUT = 60  # seconds allowed for the kernel's answer to reach the page (polled)
+
 CURRENT_NOTEBOOK = ".jp-NotebookPanel:not(.lm-mod-hidden)"
+
+# Typed into a notebook once: `_probe()` is the suite shown (a global named `loupe` if the
+# notebook has one, else the first Loupe made), and json is imported for `ask_kernel`.
+PROBE_SETUP = (
+    "import json; from ipywidgets.widgets.widget import _instances as _cl_widgets; "
+    "from cubeloupe.widgets import Loupe as _cl_Loupe; "
+    "_probe = lambda: globals()['loupe'] if isinstance(globals().get('loupe'), _cl_Loupe) "
+    "else next(w for w in list(_cl_widgets.values()) if isinstance(w, _cl_Loupe)); "
+    "print(type(_probe()).__name__)"
+)
 
 _JS_STATE = """
 (panelSelector) => {
@@ -223,6 +238,41 @@ class LabPage:
         return path
 
 
+def ask_kernel(lab, expression):
+    """Evaluate ``expression`` (may use ``L`` for the Loupe) in the kernel; return it from JSON.
+
+    Needs :data:`PROBE_SETUP` to have been run in the notebook.
+    """
+    output = lab.run_code(f"L = _probe(); print(json.dumps({expression}, default=str))")
+    return json.loads(output.splitlines()[-1])
+
+
+def wait_until(condition, what, timeout=CHANGE_TIMEOUT, interval=0.1):
+    """Poll ``condition()`` until it returns a truthy value (returned) or fail after ``timeout``."""
+    deadline = time.monotonic() + timeout
+    while True:
+        value = condition()
+        if value:
+            return value
+        if time.monotonic() > deadline:
+            pytest.fail(f"timed out after {timeout} s waiting for {what}")
+        time.sleep(interval)  # polling interval of the condition above
+
+
+def settled(read, what):
+    """Poll ``read()`` until two consecutive readings agree (the page stopped changing)."""
+    previous = [read()]
+
+    def same():
+        current = read()
+        done = current == previous[0]
+        previous[0] = current
+        return done
+
+    wait_until(same, what)
+    return previous[0]
+
+
 def distinct_colours(locator):
     """Number of distinct RGB colours in a screenshot of ``locator`` (a rendered-content check).
 
@@ -286,6 +336,61 @@ def scatter_label_positions(figure):
             if (label.getAttribute('display') === 'none') continue;
             const box = dot.getBoundingClientRect();
             out[label.textContent.trim()] = box.left + box.width / 2;
+          }
+          return out;
+        }"""
+    )
+
+
+def spectrum_curves(spectrum_figure, min_points=10):
+    """(stroke colour, vertex count) of every drawn line with at least ``min_points`` vertices."""
+    return spectrum_figure.evaluate(
+        """(figure, minPoints) => Array.from(figure.querySelectorAll('path.line'))
+             .map(path => [getComputedStyle(path).stroke,
+                           ((path.getAttribute('d') || '').match(/L/g) || []).length + 1])
+             .filter(([, n]) => n >= minPoints)""",
+        min_points,
+    )
+
+
+def css_rgb(figure, colour):
+    """The computed ``rgb(...)`` form of a CSS colour, as getComputedStyle reports strokes."""
+    return figure.evaluate(
+        "(figure, colour) => { const probe = document.createElement('div'); probe.style.color = colour;"
+        " figure.appendChild(probe); const rgb = getComputedStyle(probe).color; probe.remove(); return rgb; }",
+        colour)
+
+
+def drawn_lines(figure, colour, dashed=None, filled=False):
+    """Bounding boxes of the drawn lines of a bqplot figure stroked (or filled) in ``colour``.
+
+    bqplot fills a line with ``fill="inside"`` by styling the line's own path.
+    """
+    return figure.evaluate(
+        """(figure, [rgb, dashed, filled]) => Array.from(figure.querySelectorAll('path.line'))
+             .filter(path => (path.getAttribute('d') || '').length > 4)
+             .filter(path => getComputedStyle(path)[filled ? 'fill' : 'stroke'] === rgb)
+             .filter(path => getComputedStyle(path).display !== 'none')
+             .filter(path => dashed === null
+                     || ((getComputedStyle(path).strokeDasharray || 'none') !== 'none') === dashed)
+             .map(path => { const b = path.getBoundingClientRect();
+                            return {left: b.left, right: b.right, top: b.top, bottom: b.bottom}; })""",
+        [css_rgb(figure, colour), dashed, filled],
+    )
+
+
+def scatter_label_points(figure):
+    """Page (x, y) of the centre of every labelled scatter point in a bqplot figure: {label: (x, y)}."""
+    return figure.evaluate(
+        """(figure) => {
+          const out = {};
+          for (const group of figure.querySelectorAll('g.object_grp')) {
+            const label = group.querySelector('text.dot_text');
+            const dot = group.querySelector('path.dot');
+            if (!label || !dot || !label.textContent.trim()) continue;
+            if (label.getAttribute('display') === 'none') continue;
+            const box = dot.getBoundingClientRect();
+            out[label.textContent.trim()] = [box.left + box.width / 2, box.top + box.height / 2];
           }
           return out;
         }"""

@@ -15,16 +15,19 @@ back: Loupe.cube, channel, channel_bar.readout, regions, spectra, sky_view.box_s
 axis_kind, z, convention, velocity_offset, line_window, sky_source, moments, status.
 """
 
-import json
 import math
-import time
 
 import pytest
 
 from lab import (
+    PROBE_SETUP,
+    ask_kernel,
     box_centre,
     distinct_colours,
     scatter_label_positions,
+    settled,
+    spectrum_curves,
+    wait_until,
     x_axis_calibration,
 )
 
@@ -32,49 +35,6 @@ pytestmark = pytest.mark.browser
 
 QUICK_LOOK_GLOB = "*quick*look*.ipynb"
 SPEED_OF_LIGHT = 299_792.458  # km/s, exact by the SI definition of the metre
-CHANGE_TIMEOUT = 60  # seconds allowed for the kernel's answer to reach the page
-
-# Typed into the notebook once: `_probe()` is the suite shown (a global named `loupe` if the
-# notebook has one, else the first Loupe made), `_ask(expr)` prints an expression as JSON.
-PROBE_SETUP = (
-    "import json; from ipywidgets.widgets.widget import _instances as _cl_widgets; "
-    "from cubeloupe.widgets import Loupe as _cl_Loupe; "
-    "_probe = lambda: globals()['loupe'] if isinstance(globals().get('loupe'), _cl_Loupe) "
-    "else next(w for w in list(_cl_widgets.values()) if isinstance(w, _cl_Loupe)); "
-    "print(type(_probe()).__name__)"
-)
-
-
-def ask_kernel(lab, expression):
-    """Evaluate ``expression`` (may use ``L`` for the Loupe) in the kernel; return it from JSON."""
-    output = lab.run_code(f"L = _probe(); print(json.dumps({expression}, default=str))")
-    return json.loads(output.splitlines()[-1])
-
-
-def wait_until(condition, what, timeout=CHANGE_TIMEOUT, interval=0.1):
-    """Poll ``condition()`` until it returns a truthy value (returned) or fail after ``timeout``."""
-    deadline = time.monotonic() + timeout
-    while True:
-        value = condition()
-        if value:
-            return value
-        if time.monotonic() > deadline:
-            pytest.fail(f"timed out after {timeout} s waiting for {what}")
-        time.sleep(interval)  # polling interval of the condition above
-
-
-def settled(read, what):
-    """Poll ``read()`` until two consecutive readings agree (the page stopped changing)."""
-    previous = [read()]
-
-    def same():
-        current = read()
-        done = current == previous[0]
-        previous[0] = current
-        return done
-
-    wait_until(same, what)
-    return previous[0]
 
 
 def snapshot(lab, suite, name):
@@ -129,16 +89,6 @@ def marker_frequencies(spectrum_figure):
         return {name: round(slope * x + intercept, 7) for name, x in positions.items()}, slope
 
     return settled(read, "the line markers to settle")
-
-
-def spectrum_curves(spectrum_figure, min_points=10):
-    """(stroke colour, vertex count) of every drawn line with at least ``min_points`` vertices."""
-    return spectrum_figure.evaluate(
-        """(figure, minPoints) => Array.from(figure.querySelectorAll('path.line'))
-             .map(path => [getComputedStyle(path).stroke, ((path.getAttribute('d') || '').match(/L/g) || []).length + 1])
-             .filter(([, n]) => n >= minPoints)""",
-        min_points,
-    )
 
 
 @pytest.fixture(scope="module")
@@ -242,12 +192,22 @@ def test_box_drag_on_sky_adds_region_spectrum(loupe):
     assert any(spectra), f"region {name} has no spectrum in the kernel"
     # The box the kernel got is the one dragged: pixel centres run from -0.5 to n - 0.5
     # across the plot, and the image's y axis points up the screen.
-    selected = ask_kernel(lab, "[sorted(map(float, L.sky_view.box_selector.selected_x)), "
-                               "sorted(map(float, L.sky_view.box_selector.selected_y))]")
+    geometry = (f"(lambda s: [[s.center.x - s.width / 2, s.center.x + s.width / 2], "
+                f"[s.center.y - s.height / 2, s.center.y + s.height / 2]])(L.region_list.region_for({name!r}, L.cube))")
+    selected = ask_kernel(lab, geometry)
     expected_x = [-0.5 + fx0 * nx, -0.5 + fx1 * nx]
     expected_y = sorted([-0.5 + (1 - fy0) * ny, -0.5 + (1 - fy1) * ny])
     assert selected[0] == pytest.approx(expected_x, abs=1.0)
     assert selected[1] == pytest.approx(expected_y, abs=1.0)
+    # The drawn box is cleared once it is a region: a drag inside it starts another region.
+    wait_until(lambda: ask_kernel(lab, "L.sky_view.box_selector.selected_x is None"), "the box selector cleared")
+    area.scroll_into_view_if_needed()   # asking the kernel ran cells below the suite
+    box = area.bounding_box()
+    lab.drag((box["x"] + 0.4 * box["width"], box["y"] + 0.45 * box["height"]),
+             (box["x"] + 0.55 * box["width"], box["y"] + 0.6 * box["height"]), steps=10)
+    wait_until(lambda: len(ask_kernel(lab, "L.regions")) == len(regions_before) + 2, "a second region")
+    after = ask_kernel(lab, geometry)
+    assert after[0] + after[1] == pytest.approx(selected[0] + selected[1], abs=1e-9)   # the first box did not move
     # The new line is drawn in the region's colour.
     stroke = spectrum.evaluate(
         "(figure, colour) => { const probe = document.createElement('div'); probe.style.color = colour;"

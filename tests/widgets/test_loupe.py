@@ -235,6 +235,44 @@ def test_click_on_spectrum_moves_the_channel(loupe):
     assert loupe.spectrum_view.cursor_mark.x[0] == pytest.approx(f[42])
 
 
+def _pointer(loupe, event, x, height=0.5):
+    loupe.spectrum_view.clicker._handle_custom_msg({"event": event, "domain": {"x": x, "y": height}}, [])
+
+
+def test_pointing_at_a_marker_shows_its_details_and_a_click_on_its_head_sets_velocity_zero(loupe):
+    # CO J=2-1 (230.538 GHz, this cube's RESTFRQ) lies in the band at z = 0: its marker is drawn.
+    overlay = loupe.line_overlay
+    index = int(np.flatnonzero(overlay.lines["name"] == "CO J=2-1")[0])
+    marker = overlay.marker_x[index]
+    _pointer(loupe, "mousemove", marker + 1e-5)
+    assert "CO J=2-1" in overlay.hover_text
+    far = _freqs(loupe)[2]
+    _pointer(loupe, "mousemove", far)
+    assert overlay.hover_text == ""   # away from every marker: the hint comes back
+    _pointer(loupe, "mousemove", marker)
+    _pointer(loupe, "mouseleave", None, None)
+    assert overlay.hover_text == ""
+    loupe.reference_line = ""
+    channel = loupe.channel
+    _pointer(loupe, "click", marker, 0.88)          # on the marker's head
+    assert loupe.reference_line == "CO J=2-1" and loupe.channel == channel
+    loupe.reference_line = ""
+    _pointer(loupe, "click", marker, 0.3)           # on the marker's stem, low down: a channel pick
+    nearest = int(np.argmin(np.abs(_freqs(loupe) - marker)))
+    assert loupe.reference_line == "" and loupe.channel == nearest
+
+
+def test_clicks_that_end_a_range_drag_pick_no_channel(loupe):
+    f = _freqs(loupe)
+    loupe.channel = 5
+    loupe.spectrum_view.mode = "line-free"
+    _pointer(loupe, "click", f[40])
+    assert loupe.channel == 5
+    loupe.spectrum_view.mode = "go"
+    _pointer(loupe, "click", f[40] + 0.0001, 0.2)
+    assert loupe.channel == 40
+
+
 def test_velocity_axis_uses_the_chosen_convention(loupe):
     loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="core")
     loupe.axis_kind = "velocity"
