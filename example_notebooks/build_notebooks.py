@@ -348,7 +348,9 @@ for spectrum, lines, ranges in zip(spectra, in_band, line_free):
 ## 5. Both windows in the interactive suite
 
 `Loupe` takes the list of windows; the catalog overlay follows `z`, and the magnification is
-divided out of the luminosities in its measurement table.
+divided out of the luminosities in its measurement table. These two windows lie far apart, so the
+spectrum spans the window shown on the sky ("Sky shows" switches it); "Spectrum spans: all windows"
+puts both on one axis.
 """),
     code("""
 from cubeloupe.widgets import Loupe

@@ -5,7 +5,7 @@ import html
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
-from traitlets import Enum, Float, Int, Unicode, observe, validate
+from traitlets import Enum, Float, Int, List, Unicode, observe, validate
 
 from cubeloupe.analysis.display import cube_rest_frequency, display_axis
 from cubeloupe.analysis.errors import CubeloupeError
@@ -40,6 +40,8 @@ class ChannelBar(w.HBox):
     reference_label = Unicode("", help="What velocity zero is, as shown in the readout (e.g. 'CO J=2-1'); "
                                        "empty: the rest frequency in GHz")
     readout = Unicode("", help="Frequency and velocity of the selected channel, as shown")
+    other_bands = List(help="[low, high] observed GHz of the other spectral windows: velocities measured from "
+                            "a line in one of them are not shown")
     play_interval = Int(300, help="Milliseconds between channels during playback")
 
     def __init__(self, cube, **kwargs):
@@ -108,6 +110,14 @@ class ChannelBar(w.HBox):
         except CubeloupeError:
             return None
 
+    def _zero_in_other_window(self):
+        """True when velocity zero falls in one of `other_bands` rather than in this window's band."""
+        observed = (self._rest() / (1 + self.z)).to_value(u.GHz)
+        band = self._frequencies.to_value(u.GHz)
+        if float(np.min(band)) <= observed <= float(np.max(band)):
+            return False
+        return any(low <= observed <= high for low, high in self.other_bands)
+
     def velocity_reference(self):
         """What velocity zero is, in words (as the readout shows it)."""
         rest = self._rest()
@@ -121,13 +131,17 @@ class ChannelBar(w.HBox):
             name = f"rest {rest.to_value(u.GHz):.6g} GHz"
         return name + (f" at z = {self.z:g}" if self.z else "")
 
-    @observe("channel", "z", "rest_frequency", "convention", "reference_label")
+    @observe("channel", "z", "rest_frequency", "convention", "reference_label", "other_bands")
     def _show(self, change=None):
         k = self.channel
         text = f"{self._frequencies[k].to_value(u.GHz):.6f} GHz"
         v = self.channel_velocity()
         if v is not None and np.isfinite(v.value):
-            text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention}, {self.velocity_reference()})"
+            if self._zero_in_other_window():
+                # Another window's line: a velocity of -100 000 km/s helps no one.
+                text += f" · velocity zero, {self.reference_label or 'the rest frequency'}, lies in another window"
+            else:
+                text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention}, {self.velocity_reference()})"
         self.readout = text
         self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace);white-space:nowrap'>"
                             f"{html.escape(text)}</span>")

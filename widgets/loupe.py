@@ -115,6 +115,8 @@ class Loupe(w.VBox):
     sky_source = Unicode("channel", help="What the sky view shows: 'channel' or a moment map name")
     moments = Instance(object, allow_none=True, help="The last MomentMaps result (read-only)")
     measurements = List(help="Line measurements per region and window (read-only; see MeasurementTable)")
+    spectrum_span = Enum(["all", "window"], "all", help="What the spectrum's x axis spans: every window, or "
+                                                      "the window shown on the sky")
     magnification = Float(1.0, help="Lensing magnification divided out of luminosities")
     cosmology = Unicode("Planck18", help="astropy cosmology used for luminosities")
 
@@ -181,19 +183,30 @@ class Loupe(w.VBox):
         self.spectrum_view.file_rest_frequency = None if restfrq is None else float(restfrq.to_value(u.GHz))
         self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
         band = (min(f.min() for f in self._frequencies), max(f.max() for f in self._frequencies))
-        self.spectrum_view.band = band
+        self._bands = {"all": band}
+        self.channel_bar.other_bands = [list(self._window_band(i)) for i in range(1, len(self.cubes))]
+        # Windows far apart (more gap than data on the axis) would each be a sliver: show one at a time.
+        covered = sum(f.max() - f.min() for f in self._frequencies)
+        self.spectrum_span = "window" if covered < 0.5 * (band[1] - band[0]) else "all"
+        self.spectrum_view.band = band if self.spectrum_span == "all" else self._window_band(0)
         self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=self.status)
         self.moment_panel = MomentPanel(self._moment_inputs, status=self.status)
         self.measurement_table = MeasurementTable()
         self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
                                                  for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
                                         description="Sky shows",
-                                        tooltip="Which spectral window (cube) the sky view shows; the spectrum "
-                                                "view shows them all",
+                                        tooltip="Which spectral window (cube) the sky view shows",
                                         style={"description_width": "initial"},
                                         layout=w.Layout(width="440px",
                                                         display="" if len(self.cubes) > 1 else "none"))
         self.window_choice.add_class("cubeloupe-window-choice")
+        self.span_choice = w.ToggleButtons(options=[("all windows", "all"), ("this window", "window")],
+                                           value=self.spectrum_span, description="Spectrum spans",
+                                           tooltips=["The spectrum's axis covers all windows, gaps included",
+                                                     "The spectrum's axis covers the window shown on the sky"],
+                                           style={"description_width": "initial", "button_width": "120px"},
+                                           layout=w.Layout(display="" if len(self.cubes) > 1 else "none"))
+        self.span_choice.add_class("cubeloupe-span-choice")
         self.export_box = self._build_exports()
 
     def _build_exports(self):
@@ -236,7 +249,9 @@ class Loupe(w.VBox):
         self.spectrum_view.figure.layout.height = "330px"
         sky = section("Sky", [self.window_choice, self.sky_view], width=f"{SKY_COLUMN}px",
                       css_class="cubeloupe-sky-section")
-        spectrum = section("Spectrum", [self.spectrum_view, self.region_list],
+        spectrum_parts = ([self.span_choice] if len(self.cubes) > 1 else []) + [self.spectrum_view,
+                                                                                self.region_list]
+        spectrum = section("Spectrum", spectrum_parts,
                            hint="drag on it to mark ranges; pick what a click does below",
                            css_class="cubeloupe-spectrum-section")
         # The sky column keeps its width; the spectrum column takes what is left (not its content's width).
@@ -283,6 +298,7 @@ class Loupe(w.VBox):
                                       self.moment_panel, self.measurement_table, self.channel_bar)
         link((self, "window"), (sv, "window"))
         link((self, "window"), (self.window_choice, "value"))
+        link((self, "spectrum_span"), (self.span_choice, "value"))
         link((self, "channel"), (sv, "channel"))
         link((self, "channel"), (cb, "channel"))
         link((self, "sky_source"), (sv, "source"))
@@ -382,6 +398,7 @@ class Loupe(w.VBox):
     @observe("window")
     def _on_window(self, change):
         self.channel_bar.set_cube(self.cube)
+        self.channel_bar.other_bands = [list(self._window_band(i)) for i in range(len(self.cubes)) if i != self.window]
         self.region_list.wcs = self.cube.wcs
         self.sky_view.outlines = self.region_list.outlines_for(self.cube)
         if self.moment_panel.maps and self.moment_panel.window_index == self.window:
@@ -389,6 +406,18 @@ class Loupe(w.VBox):
         self._update_cursor()
         if len(self.cubes) > 1:
             self._show_header()
+
+    def _window_band(self, index):
+        f = self._frequencies[index]
+        return (float(f.min()), float(f.max()))
+
+    @observe("spectrum_span", "window")
+    def _on_span(self, change):
+        if not hasattr(self, "spectrum_view"):
+            return
+        with self.status.guard("changing the spectrum's span"):
+            self.spectrum_view.band = self._bands["all"] if self.spectrum_span == "all" else \
+                self._window_band(self.window)
 
     @observe("channel")
     def _update_cursor(self, change=None):

@@ -531,9 +531,10 @@ def test_high_z_notebook_runs_and_window_switch_changes_band(high_z):
     canvas = suite.locator(".cubeloupe-sky-figure canvas").first
     canvas.scroll_into_view_if_needed()
     wait_until(lambda: distinct_colours(canvas) > 30, "the sky image to be drawn")
-    spectrum, _, slope, intercept = spectrum_axis(suite)
 
     def cursor_frequency():
+        # The axis is read each time: with windows this far apart it spans the window shown.
+        spectrum, _, slope, intercept = spectrum_axis(suite)
         lines = drawn_lines(spectrum, CHANNEL_COLOR, dashed=True)
         return [slope * (b["left"] + b["right"]) / 2 + intercept for b in lines]
 
@@ -551,9 +552,14 @@ def test_high_z_notebook_runs_and_window_switch_changes_band(high_z):
     wait_until(lambda: (c := cursor_frequency()) and all(inside(f, bands[1]) for f in c),
                "the channel line on the spectrum to move into window 1's band")
     wait_until(lambda: canvas.screenshot(animations="disabled") != picture_before, "the sky image to change")
-    kernel = ask_kernel(lab, "[L.window, L.sky_view.window, L.channel_bar.n_channels, L.cube.shape[0]]")
+    kernel = ask_kernel(lab, "[L.window, L.sky_view.window, L.channel_bar.n_channels, L.cube.shape[0], "
+                             "L.spectrum_span, list(L.spectrum_view.x_range)]")
     assert kernel[:2] == [1, 1]
     assert kernel[2] == kernel[3]
+    # The windows lie far apart, so the spectrum spans the one shown, not the gap.
+    x0, x1 = kernel[5]
+    assert kernel[4] == "window" and x0 < bands[1][0] and x1 > bands[1][1]
+    assert x1 - x0 < 2 * (bands[1][1] - bands[1][0]) and not (x0 <= bands[0][0] <= x1)
     snapshot(lab, suite, "tools-08b-high-z-window-1")
     assert lab.error_outputs() == []
     assert lab.console_errors == []

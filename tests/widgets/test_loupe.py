@@ -593,6 +593,26 @@ def test_two_windows_share_regions_and_one_axis(cube_path, rng):
     assert loupe.window == 1 and "gap" in loupe.status.message
 
 
+def test_windows_far_apart_are_spanned_one_at_a_time(cube_path, rng):
+    low = cube_path(rng.normal(size=(20, 24, 28)), crval3=230.0e9, cdelt3=-2e6)    # 229.962-230.000 GHz
+    high = cube_path(rng.normal(size=(30, 12, 14)), crval3=232.0e9, cdelt3=1e6)    # 232.000-232.029 GHz
+    loupe = Loupe([low, high], rest_frequency=229.98 * u.GHz)
+    # 0.07 GHz of data over a 2.07 GHz span: each window would be a sliver, so one is shown at a time
+    assert loupe.spectrum_span == "window"
+    x0, x1 = loupe.spectrum_view.x_range
+    assert x0 < 229.962 and 230.0 < x1 < 231.0
+    loupe.window = 1
+    x0, x1 = loupe.spectrum_view.x_range
+    assert 231.0 < x0 < 232.0 and x1 > 232.029
+    # velocity zero (229.98 GHz) is in window 0: window 1's readout gives no velocity from it
+    assert "km/s" not in loupe.channel_bar.readout and "in another window" in loupe.channel_bar.readout
+    loupe.window = 0
+    assert "km/s" in loupe.channel_bar.readout
+    loupe.span_choice.value = "all"
+    x0, x1 = loupe.spectrum_view.x_range
+    assert x0 < 229.962 and x1 > 232.029
+
+
 def test_unreadable_cube_shows_a_message(tmp_path):
     bad = tmp_path / "not-a-cube.fits"
     bad.write_text("hello")
