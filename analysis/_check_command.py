@@ -45,7 +45,8 @@ def register(subparsers):
         help="quick-look report on delivered cubes: header, noise, continuum, lines",
         description=(
             "Check spectral-line FITS cubes right after a delivery: header summary, noise per "
-            "channel, leftover continuum, lines expected at z and lines detected. Writes "
+            "channel and across the field (primary-beam-corrected cubes are recognised), leftover "
+            "continuum, lines expected at z and lines detected in emission or absorption. Writes "
             "DIR/report.html and DIR/summary.json and prints a short table."
         ),
         epilog=(
@@ -61,7 +62,8 @@ def register(subparsers):
     parser.add_argument("--out", default=DEFAULT_OUT, metavar="DIR",
                         help=f"folder for report.html and summary.json (default: ./{DEFAULT_OUT})")
     parser.add_argument("--threshold", type=float, default=5.0, metavar="SNR",
-                        help="detection threshold in channel rms for the peak-intensity spectrum (default: 5)")
+                        help="smallest detection threshold, in channel rms, for emission and absorption "
+                             "(default: 5; raised per cube to keep pure-noise detections rare)")
     parser.add_argument("--overwrite", action="store_true",
                         help="replace a report already in DIR (by default it is kept and nothing is written)")
     parser.add_argument("--quiet", action="store_true",

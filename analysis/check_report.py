@@ -18,7 +18,8 @@ from 0 (numpy order of the data is ``(channel, y, x)``).
 Top level:
 
 ``schema``
-    ``"cubeloupe-check/1"``.
+    ``"cubeloupe-check/2"`` (version 2 added absorption detections, ``kind``,
+    and the noise's variation across the field, ``noise.spatial``).
 ``cubeloupe_version``, ``created`` (ISO 8601, UTC)
 ``z`` (given redshift or null), ``threshold_snr``
 ``skipped``
@@ -48,7 +49,20 @@ Top level:
 
     ``noise``: ``cube_rms``; ``channel_rms`` (Quantity, one value per
     channel); ``frequency_ghz`` (channel centres); ``flagged_channels``
-    (indices); ``flag_rule``.
+    (indices); ``flag_rule``; ``rms_region`` (which part of the field the
+    rms values describe, in words: the whole field, or its quietest part when
+    the noise varies across it); ``spatial`` (the noise across the field:
+    ``measured`` (false when the field is too small for a map),
+    ``varies`` (detections then judged against each pixel's own noise),
+    ``primary_beam_corrected`` (the noise rises towards every edge, as in a
+    primary-beam-corrected image), ``edge_to_centre`` (median noise along
+    the field's edge over that of its quietest part), ``highest`` (noisiest
+    pixel over the quietest part), ``quietest_position``, ``p_value``
+    (false-alarm probability of the variation for a flat field; null when
+    not measured), ``degree``, ``box_pixels``, ``n_boxes``, ``rule``,
+    ``varies_in_line_free_channels`` (when it varies: whether the same map
+    from each pixel's scatter over the line-free channels varies too; false
+    hints at line emission rather than noise; else null)).
 
     ``continuum``: ``peak`` (Quantity, the mean over line-free channels at
     the most significant pixel); ``peak_significance``; ``peak_position``;
@@ -64,17 +78,29 @@ Top level:
     the threshold applied, in the whole cube); ``expected_noise_peaks_at_threshold``
     (the same above the threshold asked for); ``noise_fwhm_pixels`` [x, y]
     (noise correlation behind those counts); ``resolution_elements``
-    (independent noise beams per channel image); ``expected`` (catalog lines in the
+    (independent noise beams per channel image; the counts cover peaks and
+    dips, both signs being searched); ``expected`` (catalog lines in the
     band at z: ``name``, ``rest_frequency_ghz``, ``observed_frequency_ghz``,
     ``detected``); ``solved_z`` (null unless solved); ``edge_level_snr``;
     ``peak_snr`` (per channel); ``peak_spectrum``
     (Quantity per channel, after removing each pixel's continuum level);
-    ``rule``; ``velocity_reference`` (what velocities are relative to, in words).
+    ``trough_snr`` and ``trough_spectrum`` (the same for the minimum over
+    pixels: absorption; ``trough_snr`` is positive for a dip);
+    ``absorption_edge_level_snr``; with a noise varying across the field the
+    spectra hold each pixel's values over its relative noise (intensities as
+    at the quietest part); ``rule``; ``velocity_reference`` (what velocities
+    are relative to, in words).
 
-    ``detections``: each ``frequency_ghz`` (centroid), ``peak_frequency_ghz``,
-    ``snr`` (peak S/N), ``peak`` (Quantity), ``width_mhz`` and ``width_kms``
+    ``detections``: emission and absorption together, strongest first; each
+    ``kind`` (``"emission"`` or ``"absorption"``), ``frequency_ghz``
+    (centroid), ``peak_frequency_ghz``, ``snr`` (S/N of the peak or of the
+    depth, positive), ``peak`` (Quantity, relative to the pixel's continuum
+    level: negative for absorption), ``peak_error`` (Quantity, its standard
+    error), ``depth`` (Quantity, ``-peak`` for absorption, null for
+    emission), ``continuum_level`` (Quantity at the position),
+    ``width_mhz`` and ``width_kms``
     (full extent of the feature's channels), ``channels`` [first, last],
-    ``position`` (brightest pixel of the peak channel), ``candidates`` (best
+    ``position`` (brightest, or deepest, pixel of the peak channel), ``candidates`` (best
     first, each ``name``, ``rest_frequency_ghz``, ``z`` (the redshift that
     puts the line at the detection, or the given/solved z),
     ``velocity_offset_kms`` (radio-convention offset from the line redshifted
@@ -123,7 +149,7 @@ __all__ = [
     "terminal_table",
 ]
 
-SCHEMA = "cubeloupe-check/1"
+SCHEMA = "cubeloupe-check/2"
 SUMMARY_NAME = "summary.json"
 REPORT_NAME = "report.html"
 
@@ -263,15 +289,38 @@ def _candidate_dict(candidate):
 
 def _feature_dict(feature):
     return {
+        "kind": feature.kind,
         "frequency_ghz": _in(feature.frequency, u.GHz),
         "peak_frequency_ghz": _in(feature.peak_frequency, u.GHz),
         "snr": _number(feature.peak_snr),
         "peak": _quantity(feature.peak),
+        "peak_error": _quantity(feature.peak_error),
+        "depth": _quantity(feature.depth),
+        "continuum_level": _quantity(feature.continuum),
         "width_mhz": _in(feature.width_frequency, u.MHz),
         "width_kms": _in(feature.width_velocity, u.km / u.s),
         "channels": [int(feature.channels.first), int(feature.channels.last)],
         "position": _position(feature.position),
         "candidates": [_candidate_dict(c) for c in feature.candidates],
+    }
+
+
+def _spatial_dict(spatial, rule, line_free):
+    if spatial is None:
+        return None
+    return {
+        "varies_in_line_free_channels": None if line_free is None else bool(line_free),
+        "measured": bool(spatial.measured),
+        "varies": bool(spatial.varies),
+        "primary_beam_corrected": bool(spatial.primary_beam_corrected),
+        "edge_to_centre": _number(spatial.edge_to_centre),
+        "highest": _number(spatial.highest),
+        "quietest_position": _position(spatial.quietest),
+        "p_value": None if spatial.p_value is None else _number(spatial.p_value),
+        "degree": int(spatial.degree),
+        "box_pixels": int(spatial.box_pixels),
+        "n_boxes": int(spatial.n_boxes),
+        "rule": rule,
     }
 
 
@@ -293,6 +342,8 @@ def cube_entry(check):
             "frequency_ghz": None if frequency is None else _in(frequency, u.GHz),
             "flagged_channels": [int(k) for k in noise.flagged],
             "flag_rule": noise.rule,
+            "rms_region": noise.rms_region,
+            "spatial": _spatial_dict(noise.spatial, noise.spatial_rule, noise.varies_in_line_free_channels),
         },
         "continuum": None,
         "lines": None,
@@ -334,6 +385,10 @@ def cube_entry(check):
             "expected_noise_peaks": _number(lines.expected_noise_peaks),
             "peak_snr": _numbers(lines.peak_snr),
             "peak_spectrum": _quantity(lines.peak_spectrum),
+            "trough_snr": None if lines.trough_snr is None else _numbers(lines.trough_snr),
+            "trough_spectrum": _quantity(lines.trough_spectrum),
+            "absorption_edge_level_snr": (None if lines.absorption_edge_level is None
+                                          else _number(lines.absorption_edge_level)),
             "rule": lines.rule,
         }
     strongest = check.strongest
@@ -479,6 +534,16 @@ def _fmt(value, spec):
     return "-" if value is None else format(value, spec)
 
 
+def _rms_where(noise):
+    """A short tag saying which part of the field the rms describes, when not the whole of it."""
+    spatial = (noise or {}).get("spatial") or {}
+    if not spatial.get("varies"):
+        return ""
+    if spatial.get("primary_beam_corrected"):
+        return f" (centre; edge x{_fmt(spatial.get('edge_to_centre'), '.2g')})"
+    return f" (quietest part; up to x{_fmt(spatial.get('highest'), '.2g')})"
+
+
 def terminal_table(summary):
     """The short table printed at the end of a run: one line per input.
 
@@ -500,10 +565,11 @@ def terminal_table(summary):
         if cube["detections"]:
             best = cube["detections"][0]
             ident = best["candidates"][0]["name"] if best["candidates"] else "unidentified"
-            strongest = f"{_fmt(best['frequency_ghz'], '.4f')} GHz S/N {_fmt(best['snr'], '.1f')} {ident}"
+            kind = " absorption" if best.get("kind") == "absorption" else ""
+            strongest = f"{_fmt(best['frequency_ghz'], '.4f')} GHz{kind} S/N {_fmt(best['snr'], '.1f')} {ident}"
         status = "ok" if not cube.get("warnings") else f"ok, {len(cube['warnings'])} warning(s)"
         rows.append([
-            name, status, f"{_fmt(rms['value'], '.3g')} {rms['unit']}",
+            name, status, f"{_fmt(rms['value'], '.3g')} {rms['unit']}{_rms_where(cube['noise'])}",
             str(len(cube["noise"]["flagged_channels"])),
             _fmt(cont.get("peak_significance"), ".1f"),
             str(len(cube["detections"])), strongest,
@@ -573,7 +639,9 @@ def _figures(check):
     else:
         fig, ax = plt.subplots(figsize=(9, 2.8), layout="constrained")
         ax.set_xlabel(xlabel)
-    ax.plot(x, noise.channel_rms.value, color="#2a6f97", lw=1, label="channel rms")
+    varies = noise.spatial is not None and noise.spatial.varies
+    ax.plot(x, noise.channel_rms.value, color="#2a6f97", lw=1,
+            label="channel rms (quietest part of the field)" if varies else "channel rms")
     ax.axhline(noise.cube_rms.value, color="#555", ls="--", lw=0.8, label="cube rms")
     if len(noise.flagged):
         ax.plot(x[noise.flagged], noise.channel_rms.value[noise.flagged], "o", color="#a4161a",
@@ -582,21 +650,39 @@ def _figures(check):
     ax.legend(loc="best", fontsize=8)
     out["noise"] = _figure_png(fig)
 
+    spatial = noise.spatial
+    if spatial is not None and spatial.measured:
+        fig, ax = plt.subplots(figsize=(5.2, 4), layout="constrained")
+        image = ax.imshow(spatial.relative, origin="lower", cmap="cividis")
+        fig.colorbar(image, ax=ax, label="noise / noise of the quietest part")
+        ax.plot(spatial.quietest[1], spatial.quietest[0], "+", color="white", ms=10)
+        ax.set_title("noise across the field (fitted map)", fontsize=9)
+        ax.set_xlabel("x (pixel)")
+        ax.set_ylabel("y (pixel)")
+        out["noise_map"] = _figure_png(fig)
+
     if lines is not None:
-        fig, ax = plt.subplots(figsize=(9, 3), layout="constrained")
-        ax.plot(x, lines.peak_snr, color="#1d232b", lw=0.9, drawstyle="steps-mid")
+        fig, ax = plt.subplots(figsize=(9, 3.4), layout="constrained")
+        ax.plot(x, lines.peak_snr, color="#1d232b", lw=0.9, drawstyle="steps-mid", label="peak S/N")
+        if lines.trough_snr is not None:
+            ax.plot(x, -np.asarray(lines.trough_snr), color="#6c757d", lw=0.9, drawstyle="steps-mid",
+                    label="trough S/N (absorption, drawn negative)")
         applied = lines.effective_threshold if lines.effective_threshold is not None else lines.threshold
         ax.axhline(applied, color="#a4161a", ls="--", lw=0.8, label=f"threshold applied {applied:.2f}")
+        if lines.trough_snr is not None:
+            ax.axhline(-applied, color="#a4161a", ls="--", lw=0.8)
         if applied > lines.threshold:
             ax.axhline(lines.threshold, color="#a4161a", ls=":", lw=0.7, label=f"threshold asked {lines.threshold:g}")
         for i, feature in enumerate(lines.features):
             ch = feature.channels
-            ax.axvspan(x[ch.first], x[ch.last], color="#f4a261", alpha=0.35)
-            ax.annotate(f"{i + 1}", (x[ch.peak], feature.peak_snr), fontsize=8, ha="center", va="bottom")
+            sign = -1 if feature.kind == "absorption" else 1
+            ax.axvspan(x[ch.first], x[ch.last], color="#f4a261" if sign > 0 else "#90be6d", alpha=0.35)
+            ax.annotate(f"{i + 1}", (x[ch.peak], sign * feature.peak_snr), fontsize=8, ha="center",
+                        va="bottom" if sign > 0 else "top")
         for expected in lines.expected:
             ax.axvline(expected.observed_frequency.to_value(u.GHz), color="#2a6f97", lw=0.7, ls=":")
         ax.set_xlabel(xlabel)
-        ax.set_ylabel("peak S/N")
+        ax.set_ylabel("S/N")
         ax.legend(loc="best", fontsize=8)
         out["lines"] = _figure_png(fig)
 
@@ -625,7 +711,9 @@ def _figures(check):
         image = axes[0].imshow(np.asarray(m0.value), origin="lower", cmap="magma")
         fig.colorbar(image, ax=axes[0], label=m0.unit.to_string())
         axes[0].plot(strongest.position[1], strongest.position[0], "+", color="cyan", ms=10)
-        axes[0].set_title("moment 0 of the strongest feature", fontsize=9)
+        kind = check.lines.features[0].kind if check.lines is not None and check.lines.features else "emission"
+        axes[0].set_title("moment 0 of the strongest feature" + (" (absorption: negative)" if kind == "absorption"
+                                                                 else ""), fontsize=9)
         axes[0].set_xlabel("x (pixel)")
         axes[0].set_ylabel("y (pixel)")
         spectrum = strongest.spectrum
@@ -656,6 +744,24 @@ def _table(rows, head=None, *, escape=True):
 
 def _q(q, spec=".4g"):
     return "-" if q is None or q.get("value") is None else f"{q['value']:{spec}} {q['unit']}"
+
+
+def _spatial_sentence(spatial):
+    """The noise across the field in one sentence."""
+    if not spatial["measured"]:
+        return "Noise across the field: not measured (too few pixels for a noise map)."
+    ratio = (f"edge/centre noise ratio {_fmt(spatial['edge_to_centre'], '.3g')}, highest "
+             f"{_fmt(spatial['highest'], '.3g')} times the quietest part")
+    if spatial["primary_beam_corrected"]:
+        return (f"Noise across the field: {ratio}. The noise rises towards every edge: the cube looks "
+                "primary-beam corrected. Detections are judged against each pixel's own noise; the rms "
+                "above is that of the centre.")
+    if spatial["varies"]:
+        where = spatial["quietest_position"]
+        return (f"Noise across the field: {ratio} (quietest around x={where['x']}, y={where['y']}). "
+                "Detections are judged against each pixel's own noise; the rms above is that of the "
+                "quietest part.")
+    return f"Noise across the field: uniform within the measurement ({ratio})."
 
 
 def cube_section(entry, check=None):
@@ -707,12 +813,19 @@ def cube_section(entry, check=None):
     parts.append("<h3>Header</h3>" + _table(rows))
     noise = entry["noise"]
     parts.append("<h3>Noise</h3>")
-    parts.append(f"<p>Robust rms over the cube: <b>{esc(_q(noise['cube_rms']))}</b>; "
-                 f"{len(noise['flagged_channels'])} flagged channel(s)"
+    region = noise.get("rms_region", "the whole field")
+    parts.append(f"<p>Robust rms over the cube: <b>{esc(_q(noise['cube_rms']))}</b>"
+                 + ("" if region == "the whole field" else f", that of {esc(region)}")
+                 + f"; {len(noise['flagged_channels'])} flagged channel(s)"
                  + (f": {esc(', '.join(map(str, noise['flagged_channels'][:40])))}" if noise["flagged_channels"] else "")
                  + "</p>")
     parts.append(f'<p class="rule">{esc(noise["flag_rule"])}</p>')
     parts.append(figures.get("noise", ""))
+    spatial = noise.get("spatial")
+    if spatial is not None:
+        parts.append(f"<p>{esc(_spatial_sentence(spatial))}</p>")
+        parts.append(f'<p class="rule">{esc(spatial["rule"])}</p>')
+        parts.append(figures.get("noise_map", ""))
     cont = entry["continuum"]
     parts.append("<h3>Leftover continuum</h3>")
     if cont is None:
@@ -738,8 +851,9 @@ def cube_section(entry, check=None):
             parts.append(f"<p>Redshift solved from the detections: z = {lines['solved_z']:.5f}</p>")
         parts.append(
             f"<p>Detection threshold applied: <b>{lines['effective_threshold_snr']:.2f} sigma</b> "
-            f"(asked: {lines['threshold_snr']:g}); about {lines['expected_noise_peaks']:.2g} pure-noise peak(s) "
-            f"are expected above it in the whole cube ({lines['expected_noise_peaks_at_threshold']:.2g} above "
+            f"(asked: {lines['threshold_snr']:g}), for emission and absorption alike; about "
+            f"{lines['expected_noise_peaks']:.2g} pure-noise peak(s) or dip(s) "
+            f"are expected beyond it in the whole cube ({lines['expected_noise_peaks_at_threshold']:.2g} beyond "
             f"{lines['threshold_snr']:g} sigma), for about {lines['resolution_elements']:.3g} independent noise "
             "beams per channel.</p>")
         parts.append(f'<p class="rule">{esc(lines["rule"])}</p>')
@@ -753,10 +867,15 @@ def cube_section(entry, check=None):
                 f"{c['name']} (z={c['z']:.4f}"
                 + (f", {c['velocity_offset_kms']:+.0f} km/s" if c["velocity_offset_kms"] is not None else "") + ")"
                 for c in d["candidates"][:4]) or "-"
-            rows.append((i + 1, f"{d['frequency_ghz']:.5f}", f"{d['snr']:.1f}", f"{d['width_mhz']:.3g}",
-                         f"{d['width_kms']:.4g}", f"{d['channels'][0]}-{d['channels'][1]}", cands))
-        parts.append(_table(rows, ["#", "frequency (GHz)", "peak S/N", "width (MHz)", "width (km/s)",
-                                   "channels", "tentative identifications, best first"]))
+            kind = d.get("kind", "emission")
+            size = d["depth"] if kind == "absorption" else d["peak"]
+            error = d.get("peak_error")
+            measure = _q(size, ".3g") + ("" if error is None else f" +/- {_q(error, '.2g')}")
+            rows.append((i + 1, kind, f"{d['frequency_ghz']:.5f}", f"{d['snr']:.1f}", measure,
+                         f"{d['width_mhz']:.3g}", f"{d['width_kms']:.4g}", f"{d['channels'][0]}-{d['channels'][1]}",
+                         cands))
+        parts.append(_table(rows, ["#", "kind", "frequency (GHz)", "S/N", "peak or depth", "width (MHz)",
+                                   "width (km/s)", "channels", "tentative identifications, best first"]))
     else:
         parts.append("<p>No detection.</p>")
     if entry["strongest"] is not None:

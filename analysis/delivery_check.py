@@ -12,15 +12,23 @@ it over many files and ``check_report`` writes the report.
 The check reads the cube in two full passes plus a small one:
 
 1. `continuum_free_peaks`: per pixel, the continuum level (median over a
-   channel subsample) and noise; per channel, the peak of the data minus
-   that level, and the valid fraction; per pixel, sums over all channels for
-   the line-free mean (`noise.PixelSums`); over the channel subsample, the
-   correlation of neighbouring pixels (the noise FWHM, `noise_fwhm_from_lags`).
-2. `noise.channel_statistics` over every k-th image row (without pixels
-   with significant continuum when it is extended), using every k-th pixel
-   of those rows (`noise_grid`): the robust rms per channel.
+   channel subsample), its noise and its channel-to-channel noise; per
+   channel, the highest and lowest values of the data minus that level
+   (peak and trough spectra), and the valid fraction; per pixel, sums over
+   all channels for the line-free mean (`noise.PixelSums`); over the channel
+   subsample, the correlation of neighbouring pixels (the noise FWHM,
+   `noise_fwhm_from_lags`). From the channel-to-channel noise,
+   `spatial_noise` makes a smooth map of the noise across the field.
+2. When the noise is uniform: `noise.channel_statistics` over every k-th
+   image row (without pixels with significant continuum when it is
+   extended), using every k-th pixel of those rows (`noise_grid`): the robust
+   rms per channel. When it varies across the field (a primary-beam-corrected
+   cube): `noise_scaled_extremes` over every channel image, each pixel's
+   data less its level divided by its relative noise: the peak and trough
+   spectra in those units and the rms of the quietest part of the field.
 3. The channels excluded from the line-free set are read again to take them
-   out of the sums of pass 1 (`noise.PixelSums.without_channels`); then
+   out of the sums of pass 1 (`noise.PixelSums.without_channels`); the
+   spectrum at each absorption candidate is read to confirm it; then
    `moments.moment_maps` over the strongest detection.
 
 The rules the check applies, stated once here and repeated in the report:
@@ -40,13 +48,30 @@ Detections
     S/N reaches the threshold; runs one channel apart are merged, and a run
     is a detection when its highest channel reaches the threshold. See
     `group_features`.
+Noise across the field
+    Each pixel's noise from the differences of neighbouring channels (at
+    the channel subsample); the median of its log in boxes; a 2-D
+    polynomial in log(noise) through the boxes (`spatial_noise`). When the
+    variation is significant and at least ``NOISE_VARIATION`` (5 %),
+    detections are judged against each pixel's own noise and the channel
+    rms is that of the quietest part of the field (the centre of a
+    primary-beam-corrected image); the edge-to-centre ratio is reported, and
+    the cube is said to look primary-beam corrected when the noise rises
+    towards every edge.
+Absorption
+    The same rules on the trough S/N spectrum (the minimum over pixels,
+    negated): a dip is kept when, on the spectrum of its pixel, it lies by
+    the threshold below the continuum given by the channels free of
+    features on both sides of it (`_confirmed_absorption`); its depth and
+    S/N are measured there.
 Detection threshold
     The larger of the threshold asked for (5 by default) and the level
-    above which ``FALSE_ALARMS`` (0.05) pure-noise peaks are expected over
-    the whole cube (`false_alarm_threshold`). The maximum of N values of
-    Gaussian noise grows like sqrt(2 ln N): a plain 5 sigma gives a 1 GB cube
-    (512 x 512 x 1000, 5-pixel beam) about 40 noise detections, so the
-    threshold there is about 6 sigma. The count is the expected Euler
+    above which ``FALSE_ALARMS`` (0.05) pure-noise peaks or dips are
+    expected over the whole cube, half of them on each side, as both signs
+    are searched (`false_alarm_threshold` for ``FALSE_ALARMS / 2``). The
+    maximum of N values of Gaussian noise grows like sqrt(2 ln N): a plain
+    5 sigma gives a 1 GB cube (512 x 512 x 1000, 5-pixel beam) about 40
+    noise detections, so the threshold there is about 6 sigma. The count is the expected Euler
     characteristic of a Gaussian random field (Worsley et al. 1996, Human
     Brain Mapping 4, 58), capped by the Bonferroni bound ``n_pixels Q(t)``,
     per channel image, channels independent; the noise correlation is the
@@ -75,6 +100,7 @@ Examples
 <Quantity 0.0015... Jy / beam>
 """
 
+import warnings
 from dataclasses import dataclass, field
 
 import astropy.units as u
@@ -82,8 +108,22 @@ import numpy as np
 from astropy import constants
 from astropy.wcs.utils import proj_plane_pixel_scales
 
-from .errors import BeamError, CubeloupeError, SpectralAxisError
+from .errors import BeamError, CubeloupeError, SpectralAxisError, SpectralRangeError
 from .noise import MAD_TO_SIGMA, pixel_sums
+from .noise_map import (
+    DEGREE_P_VALUE,
+    MIN_BOX_PIXELS,
+    NOISE_BOXES,
+    NOISE_MAP_DEGREE,
+    NOISE_VARIATION,
+    NOISE_VARIATION_P_VALUE,
+    PBCOR_EDGE_RISE,
+    NoiseScaledExtremes,
+    SpatialNoise,
+    noise_scaled_extremes,
+    spatial_noise,
+)
+from .row_statistics import row_extremes, row_medians
 
 __all__ = [
     "FLAG_SIGMAS",
@@ -563,20 +603,45 @@ class NoiseSummary:
         Robust rms per channel (1.4826 x median absolute deviation over the
         channel's pixels, leaving out pixels with significant continuum; for
         large images over a regular grid of about 65536 of them), in the
-        cube's unit; NaN for wholly blanked channels.
+        cube's unit; NaN for wholly blanked channels. When the noise varies
+        across the field (``spatial.varies``) it is the rms of the quietest
+        part of the field (the centre of a primary-beam-corrected image),
+        measured over the whole field with each pixel's values divided by its
+        relative noise; see ``rms_region``.
     cube_rms : Quantity
         Robust rms of the cube: the median of the channel rms values
-        (`noise.cube_noise`).
+        (`noise.cube_noise`), of the same part of the field.
     flagged : ndarray of int
         Channels that stand out (see `flag_channels`).
     rule : str
         The flagging rule in words.
+    spatial : SpatialNoise or None
+        How the noise varies across the field (`spatial_noise`).
+    rms_region : str
+        Which part of the field ``channel_rms`` and ``cube_rms`` describe, in words.
+    spatial_rule : str
+        The rules of the noise map in words.
+    varies_in_line_free_channels : bool or None
+        When the noise varies: whether the same map made from each pixel's
+        standard deviation over the line-free channels varies too (a check
+        that the variation is not line emission); None otherwise.
     """
 
     channel_rms: u.Quantity
     cube_rms: u.Quantity
     flagged: np.ndarray
     rule: str
+    spatial: object = None
+    rms_region: str = "the whole field"
+    spatial_rule: str = ""
+    varies_in_line_free_channels: object = None
+
+    @property
+    def noise_map(self):
+        """Typical noise of each pixel: ``cube_rms`` times the relative noise map (None without a map)."""
+        if self.spatial is None:
+            return None
+        return self.cube_rms * self.spatial.relative
 
 
 @dataclass(frozen=True)
@@ -638,24 +703,40 @@ class Candidate:
 
 @dataclass(frozen=True)
 class Feature:
-    """One detected feature of the peak S/N spectrum.
+    """One detected feature: emission in the peak S/N spectrum or absorption in the trough S/N spectrum.
 
     Attributes
     ----------
     channels : FeatureChannels
     frequency : Quantity [GHz]
-        Centroid of the peak spectrum over the feature's channels.
+        Centroid of the peak (or trough) spectrum over the feature's channels.
     peak_frequency : Quantity [GHz]
         Frequency of the channel of highest S/N.
     width_frequency, width_velocity : Quantity [MHz], [km/s]
         Full extent of the feature's channels (velocity: ``c dnu / nu``).
     peak : Quantity
-        Peak intensity, in the cube's unit.
+        Intensity at ``position`` in the channel of highest S/N relative to
+        the pixel's continuum level, in the cube's unit: positive for
+        emission, negative for absorption (its depth is ``-peak``).
     peak_snr : float
+        ``|peak|`` over the noise at that pixel and channel (positive for
+        both kinds).
     position : tuple of int
-        ``(y, x)`` of the brightest pixel in the peak channel.
+        ``(y, x)`` of the brightest (emission) or deepest (absorption) pixel
+        of the peak channel, each pixel judged against its own noise.
     candidates : tuple of Candidate
         Best first.
+    kind : str
+        ``'emission'`` or ``'absorption'``.
+    peak_error : Quantity or None
+        Standard error of ``peak``: the channel's rms at that pixel (times
+        the relative noise there when the noise varies across the field),
+        widened by the scatter of the continuum level.
+    continuum : Quantity or None
+        The continuum level at ``position``: for emission the pixel's median
+        over the channel subsample, for absorption the local continuum on
+        both sides of it; an absorption's depth over it is the fraction
+        absorbed.
     """
 
     channels: FeatureChannels
@@ -667,6 +748,14 @@ class Feature:
     peak_snr: float
     position: tuple
     candidates: tuple = ()
+    kind: str = "emission"
+    peak_error: object = None
+    continuum: object = None
+
+    @property
+    def depth(self):
+        """Depth of an absorption below the continuum level (``-peak``); None for emission."""
+        return -self.peak if self.kind == "absorption" else None
 
 
 @dataclass(frozen=True)
@@ -722,6 +811,19 @@ class LinesSummary:
         Independent noise beams per channel image behind the counts.
     velocity_reference : str
         What the velocities of the detections are relative to.
+    trough_spectrum : Quantity, shape (n_channels,) or None
+        Minimum over pixels of each channel after removing each pixel's
+        continuum level: absorption shows as a dip.
+    trough_snr : ndarray, shape (n_channels,) or None
+        ``-trough_spectrum / channel_rms``: positive for a dip.
+    absorption_edge_level : float or None
+        Smoothed trough S/N bounding the absorption features.
+
+    With a noise varying across the field (`NoiseSummary` ``spatial``),
+    ``peak_spectrum`` and ``trough_spectrum`` hold the extremes of each
+    pixel's values divided by its relative noise: intensities as they would
+    be at the quietest part of the field, where ``channel_rms`` applies.
+    Expected counts of pure-noise peaks cover both signs.
     """
 
     threshold: float
@@ -740,6 +842,9 @@ class LinesSummary:
     noise_fwhm_pixels: object = None
     resolution_elements: float = None
     velocity_reference: str = ""
+    trough_spectrum: object = None
+    trough_snr: object = None
+    absorption_edge_level: object = None
 
 
 @dataclass(frozen=True)
@@ -751,9 +856,10 @@ class StrongestFeature:
     window : Quantity [GHz], shape (2,)
         Frequency window of the moment map.
     moment0 : spectral_cube Projection
-        Linear baseline per pixel on the line-free channels near the feature.
+        Linear baseline per pixel on the line-free channels near the feature
+        (negative over an absorption).
     position : tuple of int
-        ``(y, x)`` of the moment-0 peak.
+        ``(y, x)`` of the moment-0 peak (its minimum for an absorption).
     spectrum : spectral_cube OneDSpectrum
         The cube's spectrum at that pixel.
     """
@@ -942,6 +1048,19 @@ class ContinuumFreePeaks:
         (`noise_fwhm_from_lags`); 0 for uncorrelated noise.
     pixel_sums : noise.PixelSums
         Per-pixel sums over every channel about ``continuum_level``.
+    troughs : Quantity, shape (n_channels,)
+        Minimum over pixels of the data minus each pixel's continuum level
+        (absorption shows here); NaN for wholly blank channels.
+    trough_positions : ndarray of int, shape (n_channels, 2)
+        ``(y, x)`` of each channel's minimum; -1 for blank channels.
+    step_noise : Quantity, shape (ny, nx)
+        Each pixel's noise from the differences between each channel of the
+        subsample and the next channel (1.4826 x the median absolute
+        difference / sqrt(2)): continuum, its slope and lines broader than a
+        few channels hardly change it. For noise correlated between
+        neighbouring channels it is lower than the noise itself by the same
+        factor at every pixel, so its variation across the field is that of
+        the noise (see `spatial_noise`).
     """
 
     peaks: u.Quantity
@@ -952,6 +1071,9 @@ class ContinuumFreePeaks:
     n_sample: int
     noise_fwhm_pixels: object = None
     pixel_sums: object = field(default=None, repr=False)  # noise.PixelSums about continuum_level
+    troughs: object = None
+    trough_positions: object = None
+    step_noise: object = None
 
     def line_free_mean(self, cube, line_free, *, client=None, progress=None, cancel=None):
         """Mean over line-free channels per pixel, its standard error and significance.
@@ -972,14 +1094,16 @@ class ContinuumFreePeaks:
         unit = self.peaks.unit
         return u.Quantity(mean, unit), u.Quantity(error, unit), significance
 
-    def continuum_pixels(self, sigmas=3.0):
+    def continuum_pixels(self, sigmas=3.0, *, local=False):
         """Pixels whose continuum level exceeds ``sigmas`` times its own noise.
 
         The median of ``n`` Gaussian values scatters by ``1.2533 sigma /
         sqrt(n)`` (the median's asymptotic efficiency, common practice); the
-        noise is the median over pixels of ``pixel_noise``.
+        noise is the median over pixels of ``pixel_noise``, or with
+        ``local=True`` (a noise varying across the field) each pixel's own.
         """
-        noise = np.nanmedian(self.pixel_noise.value) * 1.2533 / np.sqrt(max(1, self.n_sample))
+        spread = self.pixel_noise.value if local else np.nanmedian(self.pixel_noise.value)
+        noise = spread * 1.2533 / np.sqrt(max(1, self.n_sample))
         with np.errstate(invalid="ignore"):
             return np.abs(np.nan_to_num(self.continuum_level.value)) > sigmas * noise
 
@@ -1050,47 +1174,83 @@ def noise_fwhm_from_lags(lags):
 
 @dataclass(frozen=True)
 class _ContinuumFreePeaks:
-    """Block kernel: per-pixel median and MAD over a channel subsample; per-channel peak of data minus median."""
+    """Block kernel: per-pixel median, MAD and channel-step noise over a channel subsample; per-channel extremes."""
 
     step: int
 
     def __call__(self, data):
-        import warnings
-
         n_chan = data.shape[0]
         flat = data.reshape(n_chan, -1)
         # pixels along the rows so that each pixel's channels are contiguous for the partition
         sample = np.ascontiguousarray(flat[::self.step].T)
-        if np.isfinite(sample).all():
-            middle = sample.shape[1] // 2
-            level = np.partition(sample, middle, axis=1)[:, middle]
-            spread = np.partition(np.abs(sample - level[:, None]), middle, axis=1)[:, middle]
+        # differences of each sampled channel and the next one: continuum, its slope and lines
+        # broader than a few channels cancel (across the subsample's wider steps, broad
+        # emission would lift the noise where it lies, as measured on the demo disk galaxy)
+        following = flat[1::self.step]
+        steps = np.subtract(following, flat[::self.step][:following.shape[0]])
+        steps = np.ascontiguousarray(np.abs(steps, out=steps).T)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN pixels: no estimate
+            level = row_medians(sample)
+            spread = row_medians(np.abs(sample - level[:, None]), upper=True)
+            step_spread = row_medians(steps, upper=True)
+        filled_level = np.nan_to_num(level)
+        lags = _lag_sums((sample.T - filled_level).reshape((sample.shape[1], *data.shape[1:])))
+        # Spectra blank in every channel (outside a primary-beam cutoff, say) are set aside, so
+        # that the sums and extremes below run on data without NaN, on their fast paths.
+        kept = _pixels_with_data(flat, level)
+        if kept is None:
+            # The block is this kernel's own copy (see blocks.run_blocks): subtract in place.
+            residual = np.subtract(flat, filled_level, out=flat)
         else:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN pixels: no estimate
-                level = np.nanmedian(sample, axis=1)
-                spread = np.nanmedian(np.abs(sample - level[:, None]), axis=1)
-        # The block is this kernel's own copy (see blocks.run_blocks): subtract in place.
-        residual = np.subtract(flat, np.nan_to_num(level), out=flat)
+            residual = _take_columns(flat, kept)
+            np.subtract(residual, filled_level[kept], out=residual)
         # the sums of noise.leftover_continuum, about the pixel's own level
-        count, sum1, sum2 = pixel_sums(residual)
-        lags = _lag_sums(residual.reshape(data.shape)[::self.step])
-        where = residual.argmax(axis=1)
-        peak = residual[np.arange(n_chan), where]
-        valid = np.full(n_chan, flat.shape[1])
-        # argmax stops at the first NaN, so only channels whose peak came out NaN hold
-        # blank pixels; just those are searched again without them.
-        blank_rows = np.flatnonzero(np.isnan(peak))
-        for k in blank_rows:
-            finite = np.isfinite(residual[k])
-            valid[k] = int(finite.sum())
-            if valid[k]:
-                where[k] = np.flatnonzero(finite)[np.argmax(residual[k][finite])]
-                peak[k] = residual[k, where[k]]
-            else:
-                peak[k] = -np.inf
-        return {"peak": peak, "where": where, "level": level, "noise": MAD_TO_SIGMA * spread, "valid": valid,
-                "count": count, "sum1": sum1, "sum2": sum2, "lags": lags}
+        sums = pixel_sums(residual)
+        peak, where, trough, where_low, valid = row_extremes(residual)
+        if kept is not None:
+            sums = [_scatter(values, kept, flat.shape[1]) for values in sums]
+            where, where_low = kept[where], kept[where_low]
+        count, sum1, sum2 = sums
+        return {"peak": peak, "where": where, "trough": trough, "where_low": where_low, "level": level,
+                "noise": MAD_TO_SIGMA * spread, "step_noise": MAD_TO_SIGMA / np.sqrt(2) * step_spread,
+                "valid": valid, "count": count, "sum1": sum1, "sum2": sum2, "lags": lags}
+
+
+def _pixels_with_data(flat, level):
+    """Indices of the pixels of ``flat`` (channels, pixels) with data, when the others are blank throughout.
+
+    None when every pixel has data, or when no pixel does, or when a pixel
+    without data in the channel subsample (NaN ``level``) holds data in
+    some other channel (then every pixel is kept, on the slower NaN-aware paths).
+    """
+    blank = np.isnan(level)
+    if not blank.any() or blank.all() or not np.isnan(flat[:, blank]).all():
+        return None
+    return np.flatnonzero(~blank)
+
+
+def _take_columns(values, columns):
+    """A C-ordered copy of ``values[:, columns]`` (``columns`` increasing).
+
+    Plain fancy indexing along the second axis returns a Fortran-ordered
+    array here, on which the per-channel reductions run many times slower.
+    The pixels with data usually form a few runs (one per image row), which
+    are copied as slices.
+    """
+    breaks = np.flatnonzero(np.diff(columns) != 1)
+    if breaks.size >= 16:
+        return np.take(values, columns, axis=1)
+    starts = np.r_[columns[0], columns[breaks + 1]]
+    stops = np.r_[columns[breaks], columns[-1]] + 1
+    return np.concatenate([values[:, a:b] for a, b in zip(starts, stops)], axis=1)
+
+
+def _scatter(values, kept, size):
+    """``values`` of the pixels ``kept`` placed in a zero array of ``size`` pixels."""
+    out = np.zeros(size, dtype=values.dtype)
+    out[kept] = values
+    return out
 
 
 def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
@@ -1129,8 +1289,11 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
     step = max(1, -(-n_chan // CONTINUUM_SAMPLE_CHANNELS))
     best = np.full(n_chan, -np.inf)
     positions = np.full((n_chan, 2), -1, dtype=int)
+    lowest = np.full(n_chan, np.inf)
+    low_positions = np.full((n_chan, 2), -1, dtype=int)
     level = np.full((ny, nx), np.nan)
     noise = np.full((ny, nx), np.nan)
+    step_noise = np.full((ny, nx), np.nan)
     valid = np.zeros(n_chan)
     sums = np.zeros((3, ny, nx))
     lags = np.zeros((6, len(range(0, n_chan, step))))
@@ -1143,19 +1306,22 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
             sums[i, rows, columns] = result[name].reshape(shape)
         level[rows, columns] = result["level"].reshape(shape)
         noise[rows, columns] = result["noise"].reshape(shape)
+        step_noise[rows, columns] = result["step_noise"].reshape(shape)
         valid[:] += result["valid"]
         lags[:] += result["lags"]
-        better = result["peak"] > best
-        if better.any():
-            where = result["where"][better]
-            best[better] = result["peak"][better]
-            positions[better, 0] = rows.start + where // width
-            positions[better, 1] = columns.start + where % width
+        for extreme, place, value, where, better in (
+                (best, positions, result["peak"], result["where"], result["peak"] > best),
+                (lowest, low_positions, result["trough"], result["where_low"], result["trough"] < lowest)):
+            if better.any():
+                extreme[better] = value[better]
+                place[better, 0] = rows.start + where[better] // width
+                place[better, 1] = columns.start + where[better] % width
 
     blocks = spectra_blocks(cube.shape, itemsize=4)
     run_blocks(cube, _ContinuumFreePeaks(step), blocks, consume, dtype=np.float32, client=client,
                progress=progress, cancel=cancel)
     best[~np.isfinite(best)] = np.nan
+    lowest[~np.isfinite(lowest)] = np.nan
     unit = u.Unit(cube.unit)
     sums = PixelSums(level=np.nan_to_num(level), count=sums[0], sum1=sums[1], sum2=sums[2],
                      channels=np.ones(n_chan, dtype=bool))
@@ -1163,10 +1329,8 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
         peaks=u.Quantity(best, unit), positions=positions, continuum_level=u.Quantity(level, unit),
         pixel_noise=u.Quantity(noise, unit), valid_fraction=valid / float(ny * nx),
         n_sample=len(range(0, n_chan, step)), noise_fwhm_pixels=noise_fwhm_from_lags(lags), pixel_sums=sums,
+        troughs=u.Quantity(lowest, unit), trough_positions=low_positions, step_noise=u.Quantity(step_noise, unit),
     )
-
-
-# --------------------------------------------------------------------------- the check
 
 
 def _stage(progress, start, stop):
@@ -1266,26 +1430,45 @@ _CONTINUUM_RULE = (
 )
 
 
-def _lines_rule(threshold, effective, false_alarms):
+def _lines_rule(threshold, effective, false_alarms, per_pixel=False):
     if false_alarms is None:
         level = f"the threshold, {threshold:g} sigma as asked (no false-alarm control)"
     else:
         level = (
             f"the threshold, {effective:.2f} sigma: the larger of the {threshold:g} asked and the level above "
-            f"which {false_alarms:g} pure-noise peaks are expected over the whole cube (expected Euler "
+            f"which {false_alarms:g} pure-noise peaks or dips are expected over the whole cube, half on each side "
+            f"(both signs are searched: twice the trials; expected Euler "
             f"characteristic of Gaussian noise correlated over the beam or the measured noise correlation, "
             f"whichever gives more independent beams, capped by the Bonferroni bound; Worsley et al. 1996, "
             f"Human Brain Mapping 4, 58)"
         )
+    units = ("each pixel's values divided by its relative noise (the noise map), over the channel's rms at the "
+             "quietest part of the field" if per_pixel else "over the channel's robust rms")
     return (
         f"Detections: peak-intensity spectrum (maximum over pixels per channel of the data minus each "
-        f"pixel's median over channels, i.e. without continuum) over the channel's "
-        f"robust rms; runs of adjacent channels whose 3-channel smoothed S/N is above the edge level "
+        f"pixel's median over channels, i.e. without continuum), {units}; absorption likewise from the "
+        f"minimum over pixels (the trough spectrum), negated; runs of adjacent channels whose 3-channel "
+        f"smoothed S/N is above the edge level "
         f"(median + 3 robust scatters of the channels below the threshold) or whose own S/N reaches "
         f"the threshold, gaps of one channel bridged, kept when the highest channel reaches {level}. "
         f"Identifications: catalog lines within half the feature "
         f"width + {IDENTIFY_TOLERANCE.to_value(_KMS):g} km/s at z."
     )
+
+
+_SPATIAL_RULE = (
+    "Noise across the field: each pixel's noise from the differences of neighbouring channels, at the channel "
+    f"subsample (1.4826 x median absolute difference / sqrt 2); the median of its log in boxes of about 1/"
+    f"{NOISE_BOXES} of the field (at least {MIN_BOX_PIXELS} pixels and two beams); a 2-D Legendre polynomial "
+    f"in log(noise) of degree up to {NOISE_MAP_DEGREE} through the boxes (weighted least squares, boxes beyond "
+    f"4 robust scatters left out, the lowest degree no higher one beats at p = {DEGREE_P_VALUE:g}; the mesh of "
+    "boxes as for the background maps of Bertin & Arnouts 1996, A&AS 117, 393), relative to its lowest value. "
+    f"The noise varies when a flat field is rejected at p < {NOISE_VARIATION_P_VALUE:g} (F test) and the "
+    f"noisiest pixel is at least {NOISE_VARIATION:.0%} above the quietest; it looks primary-beam corrected when "
+    f"the median along the field's edge is at least {PBCOR_EDGE_RISE:g} times the quietest and 95 % of the edge "
+    f"lies above {1 + (PBCOR_EDGE_RISE - 1) / 2:g}. Edge/centre: the median of the map along the edge (the "
+    "outermost pixels with data) over the quietest part."
+)
 
 
 def _velocity_reference(frame):
@@ -1348,10 +1531,10 @@ def noise_grid(shape, max_pixels=None):
     return stride, max(1, -(-read // stride))
 
 
-def _feature(cube, channels, frequency, peak_spectrum, peak_position, candidates=()):
-    """Measure one feature's frequency, width and peak from the peak spectrum."""
+def _feature(channels, frequency, spectrum, *, kind, peak, peak_error, position, continuum):
+    """Measure one feature's frequency and width from its (peak or negated trough) spectrum."""
     run = slice(channels.first, channels.last + 1)
-    values = peak_spectrum.value
+    values = np.asarray(spectrum, dtype=float)
     floor = np.nanmedian(values)
     weights = np.clip(np.nan_to_num(values[run] - floor), 0, None)
     f = frequency.to(u.GHz)
@@ -1364,8 +1547,8 @@ def _feature(cube, channels, frequency, peak_spectrum, peak_position, candidates
     return Feature(
         channels=channels, frequency=centre.to(u.GHz), peak_frequency=f[channels.peak],
         width_frequency=width, width_velocity=(_C_KMS * width / centre).decompose() * _KMS,
-        peak=peak_spectrum[channels.peak], peak_snr=channels.peak_snr,
-        position=tuple(int(p) for p in peak_position), candidates=tuple(candidates),
+        peak=peak, peak_snr=channels.peak_snr, position=tuple(int(p) for p in position), kind=kind,
+        peak_error=peak_error, continuum=continuum,
     )
 
 
@@ -1382,11 +1565,13 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
         identifies detections at that z. Without it, two or more detections
         are used to solve for z.
     threshold : float
-        Smallest detection threshold for the peak S/N spectrum (default 5).
+        Smallest detection threshold for the peak and trough S/N spectra
+        (default 5).
     false_alarms : float or None
-        Expected number of pure-noise detections allowed over the whole cube
-        (default 0.05): the threshold applied is the larger of ``threshold``
-        and `false_alarm_threshold` for the cube's size and noise
+        Expected number of pure-noise detections, emission and absorption
+        together, allowed over the whole cube (default 0.05): the threshold
+        applied is the larger of ``threshold`` and `false_alarm_threshold`
+        for half of it (each sign gets half) at the cube's size and noise
         correlation (``lines.effective_threshold``). None applies
         ``threshold`` as it is.
     client : None, "default" or distributed.Client
@@ -1436,32 +1621,102 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
     nchan, ny, nx = header.shape
     frequency = header.frequency
 
-    # Pass 1: the peak spectrum with each pixel's continuum level removed (so
-    # that continuum left in the cube is not taken for a line), each pixel's
+    # Pass 1: the peak and trough spectra with each pixel's continuum level removed
+    # (so that continuum left in the cube is not taken for a line), each pixel's
     # continuum level and noise, and the valid fraction of every channel.
     spectra = continuum_free_peaks(cube, client=client, progress=_stage(report, 0.0, 0.3), cancel=cancel)
     blanked = 1.0 - spectra.valid_fraction
-    # Pass 2 (noise.py): robust rms per channel. When continuum covers more
-    # than CONTINUUM_MASK_FRACTION of the image it would inflate the MAD of
-    # every channel, so those pixels are left out; below that the bias is at
-    # most a few per cent and the faster unmasked pass is used.
-    continuum_pixels = spectra.continuum_pixels()
-    covered = float(continuum_pixels.mean())
-    noise_cube = cube
-    if CONTINUUM_MASK_FRACTION < covered <= 0.5:
-        noise_cube = cube.with_mask(~continuum_pixels)
-    elif covered > 0.5:
-        notes.append(f"continuum covers {covered:.0%} of the image: the channel rms is "
-                     "measured over every pixel and may be overestimated")
-    stride, max_pixels = noise_grid(header.shape)
-    if stride > 1:
-        noise_cube = noise_cube[:, ::stride, :]
-    stats = channel_statistics(noise_cube, max_pixels=max_pixels, client=client,
-                               progress=_stage(report, 0.3, 0.55), cancel=cancel)
-    channel_rms = stats.rms
-    total_rms = cube_noise(noise_cube, statistics=stats)
-    peak_values, peak_positions = spectra.peaks, spectra.positions
     header = replace(header, blanked_fraction=blanked)
+
+    # The detection threshold, which holds the expected number of pure-noise peaks and dips
+    # over the whole cube at false_alarms (half on each side: searching both signs doubles the trials).
+    filled = spectra.valid_fraction[spectra.valid_fraction > 0]
+    n_filled = int(filled.size)
+    finite_pixels = ny * nx * float(filled.mean()) if n_filled else 0.0
+    fwhm = _noise_fwhm(header, spectra.noise_fwhm_pixels)
+    # The S/N spectra are of data less each pixel's level, the median of n_sample channels,
+    # whose own scatter (1.2533 sigma / sqrt(n), the median's efficiency, common practice)
+    # widens their noise by sqrt(1 + pi / (2 n)).
+    widening = float(np.sqrt(1 + np.pi / (2 * max(1, spectra.n_sample))))
+    effective = float(threshold)
+    if false_alarms is not None:
+        effective = max(effective, widening * false_alarm_threshold(n_filled, finite_pixels, fwhm,
+                                                                    false_alarms=false_alarms / 2))
+    noise_peaks = 2 * _expected_noise_peaks(n_filled, finite_pixels, fwhm, effective / widening)
+    at_requested = 2 * _expected_noise_peaks(n_filled, finite_pixels, fwhm, threshold / widening)
+    resels = finite_pixels / (fwhm[0] * fwhm[1]) if fwhm is not None and min(fwhm) > 0 else finite_pixels
+    resels = min(resels, finite_pixels)
+
+    # The noise across the field, from each pixel's channel-to-channel noise (pass 1).
+    beam_pixels = (float((header.beam_major / header.pixel_size.min()).decompose())
+                   if header.beam_major is not None else None)
+    spatial = spatial_noise(spectra.step_noise, beam_pixels=beam_pixels)
+    scale = None
+    if spatial.varies:
+        # Pass 2 with a noise map: every pixel's data over its own relative noise; the
+        # extremes per channel, and the rms of the whole field in the units of its quietest
+        # part. The map's own error e (a fraction) widens the S/N of a pixel by about
+        # sqrt(1 + (t e)^2) at a level t (first-order error propagation, common practice), so
+        # the map is widened by that much where it is uncertain, at the threshold applied.
+        relative = spatial.relative
+        scale = relative * np.sqrt(1 + (effective * spatial.relative_error) ** 2)
+        stride, _ = noise_grid(header.shape)
+        # As for uniform noise, pixels with significant continuum are left out of the rms when
+        # they are more than a few; here each pixel's level is judged against its own noise.
+        continuum_pixels = spectra.continuum_pixels(local=True)
+        covered = float(continuum_pixels.mean())
+        rms_pixels = ~continuum_pixels if CONTINUUM_MASK_FRACTION < covered <= 0.5 else None
+        if covered > 0.5:
+            notes.append(f"continuum covers {covered:.0%} of the image: the channel rms is "
+                         "measured over every pixel and may be overestimated")
+        extremes = noise_scaled_extremes(cube, spectra.continuum_level, relative, scale=scale,
+                                         rms_pixels=rms_pixels, stride=stride, client=client,
+                                         progress=_stage(report, 0.3, 0.55), cancel=cancel)
+        channel_rms = extremes.rms
+        finite_rms = channel_rms[np.isfinite(channel_rms)]
+        if finite_rms.size == 0:
+            raise SpectralRangeError("every channel of the cube is blank (NaN or masked); there is no noise "
+                                     "to measure")
+        total_rms = np.median(finite_rms)
+        peak_values, peak_positions = extremes.peaks, extremes.positions
+        trough_values, trough_positions = extremes.troughs, extremes.trough_positions
+        where = "the centre of the field" if spatial.primary_beam_corrected else "the quietest part of the field"
+        rms_region = (f"{where} (around pixel x={spatial.quietest[1]}, y={spatial.quietest[0]}), measured over "
+                      "the whole field with each pixel's values divided by its relative noise")
+        if spatial.primary_beam_corrected:
+            notes.append(
+                f"the noise rises towards the edge of the field to {spatial.edge_to_centre:.2g} times that of "
+                f"the centre (median along the edge; up to {spatial.highest:.2g} times), as in a "
+                "primary-beam-corrected image: detections are judged against each pixel's own noise, and the "
+                "channel rms given is that of the centre")
+        else:
+            notes.append(
+                f"the noise varies across the field (up to {spatial.highest:.2g} times that of the quietest "
+                f"part, around pixel x={spatial.quietest[1]}, y={spatial.quietest[0]}): detections are judged "
+                "against each pixel's own noise, and the channel rms given is that of the quietest part")
+    else:
+        # Pass 2 (noise.py): robust rms per channel. When continuum covers more
+        # than CONTINUUM_MASK_FRACTION of the image it would inflate the MAD of
+        # every channel, so those pixels are left out; below that the bias is at
+        # most a few per cent and the faster unmasked pass is used.
+        continuum_pixels = spectra.continuum_pixels()
+        covered = float(continuum_pixels.mean())
+        noise_cube = cube
+        if CONTINUUM_MASK_FRACTION < covered <= 0.5:
+            noise_cube = cube.with_mask(~continuum_pixels)
+        elif covered > 0.5:
+            notes.append(f"continuum covers {covered:.0%} of the image: the channel rms is "
+                         "measured over every pixel and may be overestimated")
+        stride, max_pixels = noise_grid(header.shape)
+        if stride > 1:
+            noise_cube = noise_cube[:, ::stride, :]
+        stats = channel_statistics(noise_cube, max_pixels=max_pixels, client=client,
+                                   progress=_stage(report, 0.3, 0.55), cancel=cancel)
+        channel_rms = stats.rms
+        total_rms = cube_noise(noise_cube, statistics=stats)
+        peak_values, peak_positions = spectra.peaks, spectra.positions
+        trough_values, trough_positions = spectra.troughs, spectra.trough_positions
+        rms_region = "the whole field"
     flagged = flag_channels(channel_rms)
     if len(flagged):
         notes.append(f"{len(flagged)} channel(s) with noise that stands out (see the noise section)")
@@ -1469,47 +1724,63 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
         n_blank = int(np.sum(blanked >= 1))
         notes.append(f"blanked (NaN) pixels: up to {np.nanmax(blanked):.1%} of a channel"
                      + (f"; {n_blank} channel(s) wholly blanked" if n_blank else ""))
-    noise_summary = NoiseSummary(channel_rms=channel_rms, cube_rms=total_rms, flagged=flagged, rule=_FLAG_RULE)
+    noise_summary = NoiseSummary(channel_rms=channel_rms, cube_rms=total_rms, flagged=flagged, rule=_FLAG_RULE,
+                                 spatial=spatial, rms_region=rms_region, spatial_rule=_SPATIAL_RULE)
 
-    # Detections in the peak S/N spectrum, above a threshold that holds the
-    # expected number of pure-noise detections over the whole cube at false_alarms.
+    # Detections in the peak and trough S/N spectra (emission and absorption).
     with np.errstate(invalid="ignore", divide="ignore"):
         snr = (peak_values / channel_rms).to_value(u.dimensionless_unscaled)
-    filled = spectra.valid_fraction[spectra.valid_fraction > 0]
-    n_filled = int(filled.size)
-    finite_pixels = ny * nx * float(filled.mean()) if n_filled else 0.0
-    fwhm = _noise_fwhm(header, spectra.noise_fwhm_pixels)
-    # The peak spectrum is of data less each pixel's level, the median of n_sample channels,
-    # whose own scatter (1.2533 sigma / sqrt(n), the median's efficiency, common practice)
-    # widens the noise of the S/N spectrum by sqrt(1 + pi / (2 n)).
-    widening = float(np.sqrt(1 + np.pi / (2 * max(1, spectra.n_sample))))
-    effective = float(threshold)
-    if false_alarms is not None:
-        effective = max(effective, widening * false_alarm_threshold(n_filled, finite_pixels, fwhm,
-                                                                    false_alarms=false_alarms))
-    noise_peaks = _expected_noise_peaks(n_filled, finite_pixels, fwhm, effective / widening)
-    at_requested = _expected_noise_peaks(n_filled, finite_pixels, fwhm, threshold / widening)
-    resels = finite_pixels / (fwhm[0] * fwhm[1]) if fwhm is not None and min(fwhm) > 0 else finite_pixels
-    resels = min(resels, finite_pixels)
-    feature_channels = group_features(snr, threshold=effective)
+        trough_snr = (-trough_values / channel_rms).to_value(u.dimensionless_unscaled)
+    emission = group_features(snr, threshold=effective)
+    dips = group_features(trough_snr, threshold=effective)
+    absorption, confirmed = _confirmed_absorption(
+        cube, dips, emission, trough_positions, channel_rms, flagged, threshold=effective,
+        scale=scale, relative=spatial.relative if scale is not None else None)
+    if len(absorption) < len(dips):
+        notes.append(
+            f"{len(dips) - len(absorption)} dip(s) of the trough spectrum not kept as absorption: on the "
+            "spectrum of their pixel, the channels free of features on both sides of them do not stand above "
+            "them by the threshold (the pixel's median level is lifted by emission filling much of the band "
+            "there, or the dip has no such channels on one side, at the end of the band)")
+    tagged = sorted([(ch, "emission") for ch in emission] + [(ch, "absorption") for ch in absorption],
+                    key=lambda pair: -pair[0].peak_snr)
+    feature_channels = [ch for ch, _ in tagged]
     edge = _floor_edge(_boxcar3(snr), effective) if np.isfinite(snr).any() else None
+    absorption_edge = _floor_edge(_boxcar3(trough_snr), effective) if np.isfinite(trough_snr).any() else None
     if effective > threshold:
         notes.append(
             f"detection threshold raised from {threshold:g} to {effective:.2f} sigma: at {threshold:g} sigma "
-            f"about {at_requested:.2g} pure-noise peak(s) would be expected in this cube ({n_filled} channels "
-            f"of about {resels:.3g} independent noise beams each); features whose peak S/N lies between "
-            f"{threshold:g} and {effective:.2f} are not reported"
+            f"about {at_requested:.2g} pure-noise peak(s) or dip(s) would be expected in this cube ({n_filled} "
+            f"channels of about {resels:.3g} independent noise beams each, both signs searched); features whose "
+            f"peak S/N lies between {threshold:g} and {effective:.2f} are not reported"
         )
     elif noise_peaks > 0.5:
         notes.append(
-            f"about {noise_peaks:.1f} pure-noise peaks are expected above {threshold:g} sigma in a cube of "
-            f"this size and beam (Gaussian random-field count); treat detections of one or two channels "
-            f"with care, or raise the threshold"
+            f"about {noise_peaks:.1f} pure-noise peaks or dips are expected beyond {threshold:g} sigma in a cube of "
+            f"this size and beam (Gaussian random-field count, both signs); treat detections of one or two "
+            f"channels with care, or raise the threshold"
         )
+
+    def measured(channels, kind):
+        """The feature of ``channels`` in the emission or absorption spectrum, with its intensity and error."""
+        k = channels.peak
+        if kind == "absorption":
+            depth, error, level = confirmed[(channels.first, channels.last)]
+            return _feature(channels, frequency, -trough_values.value, kind=kind, peak=-depth, peak_error=error,
+                            position=tuple(trough_positions[k]), continuum=level)
+        values, positions = ((peak_values, peak_positions) if kind == "emission"
+                             else (trough_values, trough_positions))
+        y, x = (int(i) for i in positions[k])
+        # the S/N spectra were divided by scale: back to the pixel's own intensity and noise
+        at_scale = 1.0 if scale is None else float(scale[y, x])
+        at_relative = 1.0 if scale is None else float(spatial.relative[y, x])
+        return _feature(channels, frequency, values.value if kind == "emission" else -trough_values.value,
+                        kind=kind, peak=values[k] * at_scale, peak_error=channel_rms[k] * at_relative * widening,
+                        position=(y, x), continuum=spectra.continuum_level[y, x])
 
     features, solved_z, expected = (), None, ()
     if frequency is not None and feature_channels:
-        built = [_feature(cube, ch, frequency, peak_values, peak_positions[ch.peak]) for ch in feature_channels]
+        built = [measured(ch, kind) for ch, kind in tagged]
         try:
             candidates, solved_z = _identify([f.frequency for f in built], [f.width_velocity for f in built], z,
                                              header.channel_width_velocity)
@@ -1535,10 +1806,11 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
         threshold=float(threshold), peak_spectrum=peak_values, peak_snr=snr, edge_level=edge,
         features=features if features else tuple(),
         z=z, expected=expected, solved_z=solved_z, expected_noise_peaks=noise_peaks,
-        rule=_lines_rule(threshold, effective, false_alarms),
+        rule=_lines_rule(threshold, effective, false_alarms, per_pixel=scale is not None),
         effective_threshold=effective, false_alarms=false_alarms, expected_noise_peaks_at_threshold=at_requested,
         noise_fwhm_pixels=fwhm, resolution_elements=float(resels),
         velocity_reference=_velocity_reference(header.spectral_frame),
+        trough_spectrum=trough_values, trough_snr=trough_snr, absorption_edge_level=absorption_edge,
     )
     report(0.62)
 
@@ -1565,6 +1837,16 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
                 f"leftover continuum: {abs(peak_sig):.1f} sigma at pixel x={where[1]}, y={where[0]} "
                 f"({n_sig} pixel(s) at 5 sigma or more); subtract it before measuring lines"
             )
+        if spatial.varies:
+            # A check on the noise map, now that the line channels are known: the same map from
+            # each pixel's standard deviation over the line-free channels (from the same sums).
+            line_free_field = spatial_noise(error * np.sqrt(int(free.sum())), beam_pixels=beam_pixels)
+            noise_summary = replace(noise_summary, varies_in_line_free_channels=line_free_field.varies)
+            if not line_free_field.varies:
+                notes.append(
+                    "the noise map from the line-free channels alone is flat: the variation found at first "
+                    "may come from line emission spread over the field, where detections are then judged "
+                    "against too high a noise; check the noise map")
     else:
         notes.append(f"only {int(free.sum())} line-free channel(s): leftover continuum not measured")
     report(0.8)
@@ -1577,6 +1859,69 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
     report(1.0)
     return CubeCheck(path=path, header=header, noise=noise_summary, continuum=continuum, lines=lines,
                      strongest=strongest, warnings=tuple(dict.fromkeys(notes)))
+
+
+# An absorption is measured against the channels free of features on both sides of it at its
+# pixel: at least MIN_SIDE_CHANNELS on each side, the nearest SIDE_WIDTHS dip widths (and at
+# least MIN_LEVEL_CHANNELS) of them on each side; the median of 5 values scatters by 0.56
+# sigma (1.2533 sigma / sqrt(n), common practice), which the S/N takes into account.
+MIN_SIDE_CHANNELS = 5
+MIN_LEVEL_CHANNELS = 10
+SIDE_WIDTHS = 2
+
+
+def _confirmed_absorption(cube, dips, emission, positions, channel_rms, flagged, *, threshold, scale=None,
+                          relative=None):
+    """The dips of the trough S/N spectrum that stand below the continuum on both sides of them at their pixel.
+
+    A dip of the trough spectrum is measured against each pixel's median
+    over a channel subsample. Where emission fills half the band or more at
+    a pixel, that median sits in the emission and the line-free channels
+    there show as broad "dips", often at the ends of the band. So each dip
+    is measured again on the spectrum of its pixel, against a straight line
+    through the medians of the nearest channels free of every feature
+    (emission and dips alike, padded as for the line-free channels, not
+    flagged) on each side of it (see ``MIN_SIDE_CHANNELS``): a local
+    continuum, which follows its slope. It is kept when it has such channels
+    on both sides and its depth there reaches ``threshold`` times the
+    pixel's noise, widened by the scatter of that continuum. This only
+    removes dips, so the false-alarm control of the search holds.
+
+    Returns
+    -------
+    kept : list of FeatureChannels
+        ``peak_snr`` is the S/N measured on the pixel's spectrum.
+    measured : dict
+        ``(first, last) -> (depth, error, level)`` Quantities for each kept dip.
+    """
+    from dataclasses import replace
+
+    n_chan = cube.shape[0]
+    free = line_free_channels(n_chan, [*emission, *dips], flagged)
+    kept, measured = [], {}
+    for dip in dips:
+        y, x = (int(i) for i in positions[dip.peak])
+        spectrum = cube.filled_data[:, y, x]
+        around = np.flatnonzero(free & np.isfinite(spectrum.value))
+        width = max(MIN_LEVEL_CHANNELS, SIDE_WIDTHS * dip.n_channels)
+        sides = [around[around < dip.first][-width:], around[around > dip.last][:width]]
+        if min(len(side) for side in sides) < MIN_SIDE_CHANNELS:
+            continue
+        levels = u.Quantity([np.median(spectrum[side]) for side in sides])
+        centres = [float(np.mean(side)) for side in sides]
+        # the continuum at the dip's peak channel, interpolated between the two sides
+        weight = (dip.peak - centres[0]) / (centres[1] - centres[0])
+        level = (1 - weight) * levels[0] + weight * levels[1]
+        # the median of n values scatters by 1.2533 sigma / sqrt(n) (common practice)
+        spread = np.hypot((1 - weight) * 1.2533 / np.sqrt(len(sides[0])), weight * 1.2533 / np.sqrt(len(sides[1])))
+        depth = level - spectrum[dip.peak]
+        noise = channel_rms[dip.peak] * np.sqrt(1 + spread**2)
+        snr = float((depth / (noise * (1.0 if scale is None else scale[y, x]))).decompose())
+        if not snr >= threshold:
+            continue
+        kept.append(replace(dip, peak_snr=snr))
+        measured[(dip.first, dip.last)] = (depth, noise * (1.0 if relative is None else relative[y, x]), level)
+    return kept, measured
 
 
 def _strongest(cube, feature, frequency, free, *, client, progress, cancel, notes):
@@ -1623,6 +1968,7 @@ def _strongest(cube, feature, frequency, free, *, client, progress, cancel, note
     if not np.isfinite(values).any():
         notes.append("the moment-0 map of the strongest feature is blank")
         return None
-    position = np.unravel_index(np.nanargmax(values), values.shape)
+    pick = np.nanargmin if feature.kind == "absorption" else np.nanargmax
+    position = np.unravel_index(pick(values), values.shape)
     spectrum = cube[:, int(position[0]), int(position[1])]
     return StrongestFeature(window=window, moment0=m0, position=tuple(int(p) for p in position), spectrum=spectrum)

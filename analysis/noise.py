@@ -43,6 +43,7 @@ from .blocks import DEFAULT_BLOCK_BYTES, plane_blocks, run_blocks, spectra_block
 from .errors import SpectralRangeError
 from .moments import _beam as _map_beam
 from .spectral import channel_mask
+from .row_statistics import median_rows
 
 __all__ = [
     "MAD_TO_SIGMA",
@@ -145,24 +146,6 @@ class ContinuumMap:
     n_channels: int
 
 
-def _median_rows(values):
-    """Median of each row of a 2-D array, reordering the rows in place (the result of ``np.median(axis=1)``).
-
-    Hand-written around `numpy.ndarray.partition` because `np.median` of an
-    even number of values partitions around both middle elements at once,
-    which numpy 2.4 runs about 8 times slower than around one (measured on
-    16 rows of 16384 float32 values: 5.7 ms against 0.7 ms); the lower
-    middle element is then the largest value left of the upper one.
-    """
-    n = values.shape[1]
-    half = n // 2
-    values.partition(half, axis=1)
-    upper = values[:, half].astype(np.float64)
-    if n % 2:
-        return upper
-    return 0.5 * (values[:, :half].max(axis=1) + upper)
-
-
 @dataclass(frozen=True)
 class _PlaneStatistics:
     """Kernel over whole channel images: count, peak and where, median and MAD."""
@@ -171,9 +154,9 @@ class _PlaneStatistics:
 
     def _median_and_mad(self, values):
         """Median and MAD of each row of ``values`` (a copy this kernel owns), over every ``step``-th value."""
-        median = _median_rows(values)
+        median = median_rows(values)
         deviation = np.abs(values - median[:, None])
-        return median, _median_rows(deviation)
+        return median, median_rows(deviation)
 
     def __call__(self, data):
         n_chan = data.shape[0]

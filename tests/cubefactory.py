@@ -155,3 +155,17 @@ def correlated_noise(shape, *, rng, fwhm_pixels, rms=1.0):
         plane = gaussian_filter(rng.standard_normal(shape[1:]), sigma, mode="wrap")
         out[k] = plane * np.sqrt(4 * np.pi) * sigma * rms
     return out
+
+
+def primary_beam(image_shape, fwhm_pixels, centre=None):
+    """A circular Gaussian primary-beam response of ``fwhm_pixels`` over an image (ny, nx), 1 at ``centre``.
+
+    Dividing flat noise by it gives the noise of a primary-beam-corrected
+    image, rising towards the edge (common practice); the Gaussian stands for
+    the main lobe of a dish's response (FWHM about 1.13 lambda / D for a
+    tapered illumination, from memory). ``centre`` (y, x) defaults to the middle.
+    """
+    ny, nx = image_shape
+    cy, cx = ((ny - 1) / 2, (nx - 1) / 2) if centre is None else centre
+    y, x = np.mgrid[0:ny, 0:nx]
+    return np.exp(-4 * np.log(2) * ((y - cy) ** 2 + (x - cx) ** 2) / fwhm_pixels**2)

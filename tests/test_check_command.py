@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from astropy.io import fits
 
-from cubefactory import file_digest, line_cube_data, make_header, write_cube
+from cubefactory import file_digest, line_cube_data, make_header, primary_beam, write_cube
 from cubeloupe.analysis._check_command import EXIT_CUBE_FAILED, EXIT_NO_REPORT, EXIT_OK, collect_inputs
 
 # CO J=2-1 at 230.538 GHz (CDMS catalogue, Mueller et al. 2005), the default
@@ -240,3 +240,25 @@ def test_ctrl_c_stops_cleanly_without_a_report(tmp_path, rng, monkeypatch, capsy
     assert _run([str(good), "--out", str(out)]) == 130
     assert "interrupted" in capsys.readouterr().err
     assert not (out / "summary.json").exists() and not (out / "report.html").exists()
+
+
+def test_primary_beam_corrected_cube_is_recognised_in_the_summary_and_the_table(tmp_path, rng, capsys):
+    """Noise rising to 5 times the centre's at the 20 %-response edge: reported, and no edge noise taken for lines."""
+    shape = (80, 64, 64)
+    # Gaussian primary beam falling to 0.2 at 32 pixels from the centre; pbcor noise = flat noise / response
+    # (common practice), blanked below 0.2
+    beam = primary_beam(shape[1:], 32 * np.sqrt(4 * np.log(2) / np.log(5)))
+    data = rng.normal(0, 1e-3, shape) / beam
+    data[:, beam < 0.2] = np.nan
+    cube = write_cube(tmp_path / "pbcor.fits", data)
+    out = tmp_path / "out"
+    assert _run([str(cube), "--out", str(out)]) == EXIT_OK
+    entry = _summary(out)["cubes"][0]
+    assert entry["detections"] == []
+    spatial = entry["noise"]["spatial"]
+    assert spatial["primary_beam_corrected"] and 4.0 < spatial["edge_to_centre"] < 5.5
+    assert "centre" in entry["noise"]["rms_region"]
+    # the rms is the centre's, the injected 1 mJy/beam
+    assert entry["rms"]["value"] == pytest.approx(1e-3, rel=0.1)
+    assert "primary-beam corrected" in (out / "report.html").read_text()
+    assert "(centre; edge x" in capsys.readouterr().out
