@@ -337,8 +337,6 @@ class SkyView(w.VBox):
         """
         if self.source == "channel":
             # One plane from the memory map; spectral-cube's unmasked_data slices lazily.
-            # Announced first, a plane not in memory arrives in a few large reads.
-            prefetch_channels(self.cube, [self.channel])
             plane = self.cube.unmasked_data[self.channel, :, :]
             return np.asarray(plane.value), plane.unit
         projection = self.maps[self.source]

@@ -79,6 +79,15 @@ def test_channel_change_sends_the_analysis_display_image(loupe, line_cube):
     assert "230.479000 GHz" in loupe.channel_bar.readout  # 230.538 GHz - 59 x 1 MHz (the cube's header)
 
 
+def test_channel_change_announces_the_neighbouring_channels(loupe, monkeypatch):
+    import cubeloupe.widgets.sky_view as sky_view_module
+
+    announced = []
+    monkeypatch.setattr(sky_view_module, "prefetch_channels", lambda cube, channels: announced.append(list(channels)))
+    loupe.channel = 17
+    assert announced == [[16, 18]]   # stepping either way next reads from memory
+
+
 def test_stretch_and_fixed_limits(loupe):
     sky = loupe.sky_view
     sky.vmin, sky.vmax = 0.0, 0.5
