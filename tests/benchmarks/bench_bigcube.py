@@ -7,7 +7,7 @@ disk has less free space than the cube plus 10 %. Printed, in one run:
 
 * the disk's sequential read throughput on the cube file (its pages dropped from the cache first);
 * ``open_cube`` time;
-* one channel image (cold and warm) through spectral-cube's ``cube[k]`` and the memory map;
+* one channel image (cold and warm) from the memory map, and spectral-cube's ``cube[k]`` for comparison;
 * the Loupe: opening, a cold channel change, a step to the next channel, a new region's spectrum;
 * a 20 x 20-pixel region spectrum (``region_spectrum`` when available, else slicing), cold at
   three places (median) and warm;
@@ -154,15 +154,16 @@ def main():
             rows.append(("open_cube (cold)", time.perf_counter() - start, "target < 1 s"))
 
             k = nchan // 3
+            # What the suite reads: one plane of the memory map, to native float32.
             start = time.perf_counter()
-            plane = cube[k, :, :]
-            rows.append(("channel image cube[k] (cold)", time.perf_counter() - start, "target < 50 ms"))
+            plane = np.array(cube._data[k], dtype=np.float32)
+            rows.append(("channel image from the memory map (cold)", time.perf_counter() - start, "target < 50 ms"))
             start = time.perf_counter()
-            plane = cube[k, :, :]
-            rows.append(("channel image cube[k] (warm)", time.perf_counter() - start, ""))
+            plane = np.array(cube._data[k], dtype=np.float32)
+            rows.append(("channel image from the memory map (warm)", time.perf_counter() - start, ""))
             start = time.perf_counter()
-            plane = np.asarray(cube._data[k + 1])
-            rows.append(("channel image from the memory map (cold)", time.perf_counter() - start, ""))
+            plane = cube[k + 1, :, :]
+            rows.append(("spectral-cube's cube[k] (cold), for comparison", time.perf_counter() - start, ""))
             del plane
 
             try:
@@ -185,11 +186,13 @@ def main():
                     how = "slicing"
                 colds.append(time.perf_counter() - start)
             # A cold read cannot beat the disk: every channel holds 20 rows of the
-            # box, each in its own page (rows are IMAGE * 4 bytes apart).
+            # box, each in its own page (rows are IMAGE * 4 bytes apart). Read page by
+            # page the disk is bound by requests; read as one span per channel, by bytes.
             floor = nchan * 20 * mmap.PAGESIZE / disk
+            span = nchan * 20 * IMAGE * 4 / disk
             rows.append((f"20x20 region spectrum, {how} (cold, median of 3)", float(np.median(colds)),
-                         f"target < 100 ms; each {', '.join(f'{c * 1e3:.0f}' for c in colds)} ms; "
-                         f"disk floor {floor * 1e3:.0f} ms for the pages it spans"))
+                         f"target < 100 ms; each {', '.join(f'{c * 1e3:.0f}' for c in colds)} ms; disk floor "
+                         f"{floor * 1e3:.0f} ms for its pages, {span * 1e3:.0f} ms for one span per channel"))
             start = time.perf_counter()
             spectrum = region_spectrum(cube, region) if region_spectrum is not None else spectrum
             rows.append((f"20x20 region spectrum, {how} (warm)", time.perf_counter() - start, "target < 100 ms"))
