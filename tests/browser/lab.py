@@ -326,20 +326,7 @@ def x_axis_calibration(figure):
 
 def scatter_label_positions(figure):
     """Page x of every labelled scatter point in a bqplot figure: {label: x}."""
-    return figure.evaluate(
-        """(figure) => {
-          const out = {};
-          for (const group of figure.querySelectorAll('g.object_grp')) {
-            const label = group.querySelector('text.dot_text');
-            const dot = group.querySelector('path.dot');
-            if (!label || !dot || !label.textContent.trim()) continue;
-            if (label.getAttribute('display') === 'none') continue;
-            const box = dot.getBoundingClientRect();
-            out[label.textContent.trim()] = box.left + box.width / 2;
-          }
-          return out;
-        }"""
-    )
+    return {label: x for label, (x, _) in scatter_label_points(figure).items()}
 
 
 def spectrum_curves(spectrum_figure, min_points=10):
