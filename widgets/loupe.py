@@ -183,12 +183,11 @@ class Loupe(w.VBox):
         self.spectrum_view.file_rest_frequency = None if restfrq is None else float(restfrq.to_value(u.GHz))
         self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
         band = (min(f.min() for f in self._frequencies), max(f.max() for f in self._frequencies))
-        self._bands = {"all": band}
-        self.channel_bar.other_bands = [list(self._window_band(i)) for i in range(1, len(self.cubes))]
+        self._all_band = band
         # Windows far apart (more gap than data on the axis) would each be a sliver: show one at a time.
         covered = sum(f.max() - f.min() for f in self._frequencies)
         self.spectrum_span = "window" if covered < 0.5 * (band[1] - band[0]) else "all"
-        self.spectrum_view.band = band if self.spectrum_span == "all" else self._window_band(0)
+        self._show_span()
         self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=self.status)
         self.moment_panel = MomentPanel(self._moment_inputs, status=self.status)
         self.measurement_table = MeasurementTable()
@@ -398,7 +397,6 @@ class Loupe(w.VBox):
     @observe("window")
     def _on_window(self, change):
         self.channel_bar.set_cube(self.cube)
-        self.channel_bar.other_bands = [list(self._window_band(i)) for i in range(len(self.cubes)) if i != self.window]
         self.region_list.wcs = self.cube.wcs
         self.sky_view.outlines = self.region_list.outlines_for(self.cube)
         if self.moment_panel.maps and self.moment_panel.window_index == self.window:
@@ -413,11 +411,14 @@ class Loupe(w.VBox):
 
     @observe("spectrum_span", "window")
     def _on_span(self, change):
-        if not hasattr(self, "spectrum_view"):
-            return
-        with self.status.guard("changing the spectrum's span"):
-            self.spectrum_view.band = self._bands["all"] if self.spectrum_span == "all" else \
-                self._window_band(self.window)
+        if hasattr(self, "_all_band"):
+            with self.status.guard("changing the spectrum's span"):
+                self._show_span()
+
+    def _show_span(self):
+        """The spectrum's axis over all windows or the current one; the readout learns the other windows."""
+        self.spectrum_view.band = self._all_band if self.spectrum_span == "all" else self._window_band(self.window)
+        self.channel_bar.other_bands = [list(self._window_band(i)) for i in range(len(self.cubes)) if i != self.window]
 
     @observe("channel")
     def _update_cursor(self, change=None):
