@@ -22,15 +22,14 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
-from astropy.constants import c
 
-from .catalog import _bundled, _selection_mask
+from .catalog import select_lines
 from .errors import RedshiftError, UnitMismatchError
-from .spectral import Z_MAX, check_redshift
+from .spectral import SPEED_OF_LIGHT, Z_MAX, check_redshift
 
 __all__ = ["RedshiftCandidate", "redshift_candidates"]
 
-_C_KMS = c.to_value(u.km / u.s)
+_C_KMS = SPEED_OF_LIGHT.value
 _KMS = u.km / u.s
 
 
@@ -177,11 +176,10 @@ def redshift_candidates(peak_frequencies, catalog=None, *, tolerance=150 * _KMS,
     if int(max_candidates) < 1:
         raise RedshiftError(f"max_candidates must be >= 1; got {max_candidates}")
 
-    catalog = _bundled() if catalog is None else catalog
-    mask = _selection_mask(catalog, species, spin_isomer, max_E_up)
-    nu = np.asarray(catalog["rest_frequency"], dtype=float)[mask]
-    names = np.asarray(catalog["name"])[mask]
-    e_up = np.nan_to_num(np.asarray(catalog["E_up"], dtype=float)[mask], nan=1e4)
+    chosen = select_lines(catalog, species=species, spin_isomer=spin_isomer, max_E_up=max_E_up)
+    nu = u.Quantity(chosen["rest_frequency"], u.GHz).value
+    names = np.asarray(chosen["name"])
+    e_up = np.nan_to_num(np.asarray(chosen["E_up"], dtype=float), nan=1e4)
     order = np.argsort(nu)
     nu, names, e_up = nu[order], names[order], e_up[order]
     if nu.size == 0:

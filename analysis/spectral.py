@@ -25,11 +25,13 @@ import numbers
 
 import astropy.units as u
 import numpy as np
+from astropy import constants
 
 from .errors import RedshiftError, SpectralAxisError, SpectralRangeError, UnitMismatchError
 
 __all__ = [
     "CONVENTIONS",
+    "SPEED_OF_LIGHT",
     "Z_MAX",
     "check_convention",
     "check_redshift",
@@ -53,6 +55,10 @@ CONVENTIONS = {
 Z_MAX = 20.0
 
 _KMS = u.km / u.s
+
+#: The speed of light in km/s, from astropy.constants (CODATA); the one copy
+#: every velocity calculation in cubeloupe uses.
+SPEED_OF_LIGHT = constants.c.to(_KMS)
 
 
 def check_convention(convention):
