@@ -18,7 +18,7 @@ from .spectral import (
     observed_frequency,
     velocity,
 )
-from .cubes import open_cube
+from .cubes import cube_source, open_cube, source_name
 from .demo import DEMO_CUBES, demo_names, demo_path, demo_truth
 from .catalog import find_line, lines_in_band, load_catalog, read_line_list, select_lines
 from .redshift_solver import RedshiftCandidate, redshift_candidates
@@ -27,6 +27,7 @@ from .luminosity import (
 )
 from .beams import (
     beam_area_pixels,
+    map_beam,
     convert_brightness,
     cube_beam,
     jy_per_beam_to_kelvin,
@@ -51,12 +52,12 @@ __all__ = [
     "brightness_unit", "is_per_beam", "is_temperature",
     "CONVENTIONS", "axis_in", "channel_mask", "check_redshift", "check_rest_frequency",
     "frequency_axis", "frequency_from_velocity", "observed_frequency", "velocity",
-    "open_cube",
+    "open_cube", "cube_source", "source_name",
     "DEMO_CUBES", "demo_names", "demo_path", "demo_truth",
     "find_line", "lines_in_band", "load_catalog", "read_line_list", "select_lines",
     "RedshiftCandidate", "redshift_candidates",
     "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
-    "beam_area_pixels", "convert_brightness", "cube_beam", "jy_per_beam_to_kelvin",
+    "beam_area_pixels", "map_beam", "convert_brightness", "cube_beam", "jy_per_beam_to_kelvin",
     "kelvin_to_jy_per_beam", "pixel_solid_angle",
     "region_spectrum", "BaselineFit", "fit_baseline", "LineMeasurement", "measure_line",
     "MomentMaps", "moment_maps",

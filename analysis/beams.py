@@ -23,10 +23,12 @@ import astropy.units as u
 import numpy as np
 from astropy.wcs.utils import proj_plane_pixel_area
 
+from .cubes import source_name
 from .errors import BeamError
 
 __all__ = [
     "cube_beam",
+    "map_beam",
     "pixel_solid_angle",
     "beam_area_pixels",
     "jy_per_beam_to_kelvin",
@@ -39,11 +41,6 @@ _HOW_TO_PASS_A_BEAM = (
     "pa=30*u.deg), raise_error_jybm=False) with `from radio_beam import Beam`, or add BMAJ/BMIN/BPA "
     "(degrees) to a copy of the file"
 )
-
-
-def _describe(cube):
-    source = getattr(cube, "meta", {}).get("cubeloupe_source", {}) if hasattr(cube, "meta") else {}
-    return source.get("path", "the cube")
 
 
 def cube_beam(cube):
@@ -75,8 +72,46 @@ def cube_beam(cube):
     if beam is None:
         beam = getattr(cube, "meta", {}).get("beam") if hasattr(cube, "meta") else None
     if beam is None:
-        raise BeamError(f"{_describe(cube)} has no beam; {_HOW_TO_PASS_A_BEAM}")
+        raise BeamError(f"{source_name(cube)} has no beam; {_HOW_TO_PASS_A_BEAM}")
     return beam
+
+
+def map_beam(cube, channels=slice(None)):
+    """The beam of a map made from ``channels`` of ``cube``, or None for a cube without a beam.
+
+    A cube with one beam gives that beam; a cube with a beam per channel gives
+    the smallest beam enclosing the chosen channels' beams (radio-beam's
+    `~radio_beam.Beams.common_beam`), or their largest beam where radio-beam
+    cannot find a common one.
+
+    Parameters
+    ----------
+    cube : SpectralCube
+    channels : slice or array of int or bool, optional
+        The channels that went into the map; all by default.
+
+    Returns
+    -------
+    `~radio_beam.Beam` or None
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_path, open_cube
+    >>> cube = open_cube(demo_path("varying_beams"))
+    >>> bool(map_beam(cube, slice(0, 10)).major >= cube.beams[:10].major.max())
+    True
+    """
+    beams = getattr(cube, "beams", None)
+    if beams is not None:
+        chosen = beams[channels]
+        try:
+            return chosen.common_beam()
+        except Exception:  # radio-beam fails on some beam sets; the largest beam is a safe stand-in
+            return chosen.largest_beam()
+    try:
+        return cube.beam
+    except Exception:  # no beam (K or Jy/pixel cubes): spectral-cube raises NoBeamError
+        return None
 
 
 def _beam_solid_angle(beam, *, argname="beam"):

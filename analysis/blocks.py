@@ -52,6 +52,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .cubes import cube_source
 from .errors import CancelledComputation, ClusterError, CubeFileError
 from .prefetch import BlockReadAhead
 
@@ -301,7 +302,7 @@ def file_view(cube):
     -------
     FileView or None
     """
-    source = (getattr(cube, "meta", None) or {}).get("cubeloupe_source")
+    source = cube_source(cube)
     data = cube_array(cube)
     if not source or data is None:
         return None

@@ -20,12 +20,42 @@ from astropy.wcs import FITSFixedWarning
 from .errors import CubeFileError, CubeShapeError, SpectralAxisError
 from .units import brightness_unit
 
-__all__ = ["open_cube", "SPECTRAL_CTYPES"]
+__all__ = ["open_cube", "cube_source", "source_name", "SPECTRAL_CTYPES"]
 
 # Spectral axis types of FITS WCS Paper III (Greisen et al. 2006, A&A 446, 747)
 # plus the legacy AIPS velocity types that wcslib translates (VELO-xxx, FELO-xxx).
 SPECTRAL_CTYPES = ("FREQ", "VRAD", "VOPT", "VELO", "FELO", "WAVE", "AWAV", "ZOPT", "BETA", "ENER", "WAVN", "VELOCITY")
 _CELESTIAL_PREFIXES = ("RA", "DEC", "GLON", "GLAT", "ELON", "ELAT", "SLON", "SLAT", "OFFRA", "OFFDEC")
+
+
+def cube_source(cube):
+    """Where ``cube`` was read from: ``{"path", "hdu", "shape"}`` as recorded by `open_cube`, or None.
+
+    The one place that reads ``cube.meta["cubeloupe_source"]``; cubes made in
+    memory (or by other readers) have no source.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_path
+    >>> cube_source(open_cube(demo_path("disk")))["hdu"]
+    0
+    """
+    meta = getattr(cube, "meta", None) or {}
+    source = meta.get("cubeloupe_source")
+    return dict(source) if source else None
+
+
+def source_name(cube, default="the cube"):
+    """The path ``cube`` was read from, for messages; ``default`` for cubes made in memory.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_path
+    >>> source_name(open_cube(demo_path("disk"))).endswith("disk.fits")
+    True
+    """
+    source = cube_source(cube)
+    return str(source["path"]) if source else default
 
 
 def _axis_types(header, naxis):

@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
+from .beams import map_beam
 from .blocks import run_blocks, spectra_blocks
 from .errors import SpectralRangeError
 from .polybaseline import BaselineBasis, check_order
@@ -266,21 +267,6 @@ def _check_clip(clip, line_free):
     return float(clip)
 
 
-def _beam(cube, channels):
-    """The beam of a map made from ``channels``: the cube's, or the common beam of per-channel beams."""
-    beams = getattr(cube, "beams", None)
-    if beams is not None:
-        chosen = beams[channels]
-        try:
-            return chosen.common_beam()
-        except Exception:  # radio-beam fails on some beam sets; the largest beam is a safe stand-in
-            return chosen.largest_beam()
-    try:
-        return cube.beam
-    except Exception:  # no beam (K or Jy/pixel cubes): spectral-cube raises NoBeamError
-        return None
-
-
 def _projection(values, unit, cube, beam, what):
     from spectral_cube import Projection
 
@@ -405,7 +391,7 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
             f"the window {window} holds no valid data in any pixel (all blank or masked); "
             "choose a window over channels with data"
         )
-    beam = _beam(cube, in_window)
+    beam = map_beam(cube, in_window)
     unit = u.Unit(cube.unit)
     noise = n_free > 0
     return MomentMaps(

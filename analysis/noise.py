@@ -39,9 +39,9 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
+from .beams import map_beam
 from .blocks import DEFAULT_BLOCK_BYTES, plane_blocks, run_blocks, spectra_blocks
 from .errors import SpectralRangeError
-from .moments import _beam as _map_beam
 from .spectral import channel_mask
 from .row_statistics import median_rows
 
@@ -447,7 +447,7 @@ class PixelSums:
         mean, error, significance = self.statistics()
         unit = u.Unit(cube.unit)
         celestial = cube.wcs.celestial
-        beam = _map_beam(cube, self.channels)
+        beam = map_beam(cube, self.channels)
         make = lambda values, unit_, what: Projection(values, unit=unit_, wcs=celestial, beam=beam,  # noqa: E731
                                                       meta={"cubeloupe_map": what}, copy=False)
         return ContinuumMap(

@@ -28,6 +28,7 @@ import astropy.units as u
 import numpy as np
 
 from .beams import beam_area_pixels, pixel_solid_angle
+from .cubes import cube_source, source_name
 from .errors import BlankedDataWarning, PartialRegionWarning, RegionError, UnitMismatchError
 from .prefetch import prefetch_if_cold
 from .spectral import frequency_axis
@@ -36,10 +37,6 @@ from .units import is_per_beam, is_temperature
 __all__ = ["STATISTICS", "region_spectrum", "region_pixels"]
 
 STATISTICS = ("flux", "mean", "sum", "median", "max")
-
-
-def _source_name(cube):
-    return cube.meta.get("cubeloupe_source", {}).get("path", "the cube")
 
 
 def _region_text(region):
@@ -99,7 +96,7 @@ def region_pixels(cube, region):
     ((slice(4, 8, None), slice(4, 8, None)), 16, 0)
     """
     ny, nx = cube.shape[1:]
-    where = _source_name(cube)
+    where = source_name(cube)
     if isinstance(region, np.ndarray) or (isinstance(region, (list, tuple)) and np.ndim(region) == 2):
         mask = np.asarray(region)
         if mask.dtype != bool:
@@ -264,7 +261,7 @@ def region_spectrum(cube, region, statistic=None):
         statistic = _default_statistic(unit)
     if statistic not in STATISTICS:
         raise RegionError(f"unknown statistic {statistic!r}; choose from {list(STATISTICS)}")
-    where = _source_name(cube)
+    where = source_name(cube)
 
     # Check everything the flux needs before reading data.
     flux_scale = None
@@ -331,7 +328,7 @@ def region_spectrum(cube, region, statistic=None):
         "statistic": statistic,
         "region": description,
     }
-    source = cube.meta.get("cubeloupe_source")
+    source = cube_source(cube)
     if source is not None:
         meta["cubeloupe_source"] = source
     spectral_wcs = cube.wcs.sub(["spectral"])
