@@ -45,26 +45,21 @@ Examples
 """
 
 import concurrent.futures
-import functools
-import mmap
 import os
 from dataclasses import dataclass
 
 import numpy as np
 
-from .cubes import cube_source
+from .cube_file import cube_array, custom_mask, file_view
 from .errors import CancelledComputation, ClusterError, CubeFileError
 from .prefetch import BlockReadAhead
 
 __all__ = [
     "DEFAULT_BLOCK_BYTES",
     "Block",
-    "FileView",
     "channel_runs",
     "spectra_blocks",
     "plane_blocks",
-    "file_view",
-    "cube_array",
     "resolve_client",
     "run_blocks",
 ]
@@ -206,146 +201,6 @@ def plane_blocks(shape, *, channels=None, itemsize=4, block_bytes=DEFAULT_BLOCK_
     return blocks
 
 
-@dataclass(frozen=True)
-class FileView:
-    """Where a cube's data sit inside its FITS file: enough for a worker to map them itself.
-
-    Attributes
-    ----------
-    path : str
-    hdu : int
-    offset : int
-        Byte offset of the first element of the cube (numpy order) in the file.
-    shape, strides : tuple of int
-        The cube's numpy layout (channel, y, x) over the file's bytes.
-    dtype : str
-        e.g. ``'>f4'``.
-    size, mtime_ns : int
-        The file's size and modification time when the cube was opened; a
-        worker refuses a file that has changed since.
-    """
-
-    path: str
-    hdu: int
-    offset: int
-    shape: tuple
-    strides: tuple
-    dtype: str
-    size: int
-    mtime_ns: int
-
-    def array(self):
-        """The cube as a read-only array over this process' memory map of the file."""
-        mapped = _mapped_file(self.path, self.size, self.mtime_ns)
-        return np.ndarray(self.shape, dtype=np.dtype(self.dtype), buffer=mapped, offset=self.offset,
-                          strides=self.strides)
-
-
-@functools.lru_cache(maxsize=8)
-def _mapped_file(path, size, mtime_ns):
-    try:
-        stat = os.stat(path)
-    except OSError as exc:
-        raise CubeFileError(f"{path} cannot be read on this machine ({exc}); workers need the cube "
-                            "at the same path, on a shared file system") from None
-    if stat.st_size != size or stat.st_mtime_ns != mtime_ns:
-        raise CubeFileError(f"{path} has changed since the cube was opened (size or modification time "
-                            "differ); open the cube again")
-    return np.memmap(path, dtype=np.uint8, mode="r")
-
-
-def _address(array):
-    return array.__array_interface__["data"][0]
-
-
-def cube_array(cube):
-    """The cube's data as a numpy array if it has one without computing anything, else None.
-
-    For a cube from `open_cube` this is the memory-mapped array of the file
-    (channel, y, x); for a dask cube straight from the file, the array under
-    its graph; for anything computed lazily, None.
-
-    Examples
-    --------
-    >>> from cubeloupe.analysis import demo_names, demo_path, open_cube
-    >>> cube_array(open_cube(demo_path(demo_names()[0]))).ndim
-    3
-    """
-    data = cube._data
-    if isinstance(data, np.ndarray):
-        return data
-    dask_graph = getattr(data, "dask", None)
-    if dask_graph is None:
-        return None
-    # A dask cube straight from the reader is a from_array over the (wrapped)
-    # memory-mapped array: layers "original-<name>" and "<name>" only; anything
-    # derived lazily (slicing, arithmetic, Stokes selection) adds layers.
-    layers = set(getattr(dask_graph, "layers", {}))
-    if not layers or not layers <= {data.name, "original-" + data.name}:
-        return None
-    for value in dict(dask_graph).values():
-        inner = getattr(value, "_array", value)
-        if isinstance(inner, np.ndarray) and inner.shape == data.shape and inner.dtype == data.dtype:
-            return inner
-    return None
-
-
-def file_view(cube):
-    """Describe where ``cube``'s data lie in its file, or None if they are not a view of it.
-
-    Uses ``cube.meta["cubeloupe_source"]`` (set by `open_cube`) and checks that
-    the cube's array really is a view of that file's memory map, so that
-    cubes computed in memory (arithmetic, filled copies) are never mistaken
-    for the file.
-
-    Returns
-    -------
-    FileView or None
-    """
-    source = cube_source(cube)
-    data = cube_array(cube)
-    if not source or data is None:
-        return None
-    base = data
-    while isinstance(base, np.ndarray):
-        base = base.base
-    path = source["path"]
-    try:
-        stat = os.stat(path)
-    except OSError:
-        return None
-    if isinstance(base, np.memmap) or not isinstance(base, mmap.mmap) or len(base) != stat.st_size:
-        return None
-    start = _address(np.frombuffer(base, dtype=np.uint8))
-    offset = _address(data) - start
-    if offset < 0 or offset >= stat.st_size:
-        return None
-    return FileView(path=path, hdu=int(source.get("hdu", 0)), offset=int(offset), shape=tuple(data.shape),
-                    strides=tuple(data.strides), dtype=data.dtype.str, size=int(stat.st_size),
-                    mtime_ns=int(stat.st_mtime_ns))
-
-
-def _custom_mask(cube, data):
-    """The cube's mask as a callable ``view -> bool array``, or None when it is only ``isfinite``."""
-    mask = getattr(cube, "_mask", None)
-    if mask is None:
-        return None
-    from spectral_cube.masks import LazyMask
-
-    if isinstance(mask, LazyMask) and mask._function is np.isfinite:
-        own = mask._data
-        if own is cube._data:
-            return None
-        if isinstance(own, np.ndarray) and isinstance(data, np.ndarray) and own.shape == data.shape \
-                and own.strides == data.strides and _address(own) == _address(data):
-            return None
-
-    def include(view):
-        return np.asarray(mask.include(view=view), dtype=bool)
-
-    return include
-
-
 def _read_block(array, block, dtype, mask=None):
     """Copy ``block`` out of ``array`` into native ``dtype``; masked voxels become NaN."""
     out = np.empty(block.shape, dtype=dtype)
@@ -473,7 +328,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     data = cube_array(cube)
     if data is None:
         data = cube._data
-    mask = _custom_mask(cube, data)
+    mask = custom_mask(cube, data)
     total = len(blocks)
     threads = default_threads() if threads is None else max(1, int(threads))
     ahead = BlockReadAhead(data, blocks) if isinstance(data, np.ndarray) else None
@@ -525,7 +380,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
 def _run_distributed(cube, kernel, blocks, consume, view, dtype, client, progress, cancel):
     import distributed
 
-    mask = _custom_mask(cube, cube_array(cube))
+    mask = custom_mask(cube, cube_array(cube))
     total = len(blocks)
     try:
         slots = max(4, 2 * sum(client.nthreads().values()))

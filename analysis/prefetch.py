@@ -23,6 +23,8 @@ import time
 
 import numpy as np
 
+from .cube_file import cube_array
+
 __all__ = ["prefetch", "prefetch_if_cold", "prefetch_channels", "BlockReadAhead"]
 
 # A channel's worth of a small box copies in microseconds from the page cache;
@@ -166,8 +168,6 @@ def prefetch_channels(cube, channels):
     >>> prefetch_channels(np.zeros((4, 8, 8)), [0, 1])   # in memory: nothing to do
     0
     """
-    from .blocks import cube_array
-
     data = cube if isinstance(cube, np.ndarray) else cube_array(cube)
     if data is None or data.ndim != 3 or _mapping(data) is None:
         return 0

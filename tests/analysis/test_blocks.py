@@ -11,7 +11,6 @@ from cubefactory import gaussian_profile, velocity_axis_kms
 from cubeloupe.analysis import CancelledComputation, ClusterError, open_cube
 from cubeloupe.analysis.blocks import (
     channel_runs,
-    file_view,
     plane_blocks,
     run_blocks,
     spectra_blocks,
@@ -86,20 +85,6 @@ def test_block_kernels_equal_spectral_cube(cube_path, rng, shape):
     run_blocks(cube, lambda data: np.nanmax(data.reshape(len(data), -1), axis=1), blocks, consume, threads=2)
     assert seen == set(range(len(blocks)))
     assert_allclose(peak, cube.max(axis=(1, 2)).value)
-
-
-def test_file_view_finds_the_data_in_the_file(cube_path, rng):
-    data = noisy_cube(rng)
-    cube = open_cube(cube_path(data, stokes=True, crpix3=CENTRE))
-    view = file_view(cube)
-    assert view is not None and view.shape == data.shape
-    assert_array_equal(view.array(), cube.unmasked_data[:].value)
-    slab = cube.spectral_slab(cube.spectral_axis[10], cube.spectral_axis[30])
-    assert_array_equal(file_view(slab).array(), slab.unmasked_data[:].value)
-    # arithmetic gives an in-memory cube that still carries the source in meta: not the file
-    assert file_view(cube * 2) is None
-    plain_path = cube_path(data)
-    assert file_view(open_cube(plain_path, use_dask=True)) == file_view(open_cube(plain_path))
 
 
 def test_masked_voxels_reach_the_kernel_as_nan(cube_path, rng):
@@ -180,8 +165,8 @@ def test_local_cluster_reproduces_the_in_process_maps(cube_path, rng, cluster_cl
         assert_array_equal(getattr(there, name).value, getattr(here, name).value)
     assert seen[-1] == 1.0
     # the workers mapped the file themselves: each opened it through its own cache
-    opened = cluster_client.run(lambda: __import__("cubeloupe.analysis.blocks", fromlist=["_"])
-                                ._mapped_file.cache_info().misses)
+    opened = cluster_client.run(lambda: __import__("cubeloupe.analysis.cube_file", fromlist=["_"])
+                                .mapped_file.cache_info().misses)
     assert sum(opened.values()) >= 1
     # a user mask travels with the blocks; a dask-backed cube goes through the same call
     masked = cube.with_mask(cube > 0.05 * u.Jy / u.beam)
