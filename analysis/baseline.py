@@ -32,7 +32,7 @@ from .errors import SpectralAxisError, SpectralRangeError, UnitMismatchError
 from .polybaseline import BaselineBasis, check_order
 from .spectral import channel_mask, check_convention, check_redshift, check_rest_frequency
 
-__all__ = ["BaselineFit", "fit_baseline", "as_spectrum"]
+__all__ = ["BaselineFit", "fit_baseline", "as_spectrum", "line_free_mask", "CachedAxis"]
 
 
 def _linear_spectral_wcs(axis):
@@ -110,7 +110,7 @@ def as_spectrum(spectrum, spectral_axis=None):
     return OneDSpectrum(values.value, unit=values.unit, wcs=_linear_spectral_wcs(axis))
 
 
-class _AxisOnce:
+class CachedAxis:
     """A spectrum's spectral axis computed once.
 
     OneDSpectrum recomputes ``spectral_axis`` from its WCS (parsing the unit)
@@ -218,7 +218,20 @@ class BaselineFit:
         return self.polynomial(x) * self.coefficients.unit
 
 
-def _line_free_mask(spectrum, line_free, rest_frequency, z, convention):
+def line_free_mask(spectrum, line_free, rest_frequency=None, z=0.0, convention="radio"):
+    """The channels of ``spectrum`` inside the ``line_free`` ranges (or the given channel mask), as bool.
+
+    Parameters are those of `fit_baseline`; at least one channel must be selected.
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> from regions import CirclePixelRegion, PixCoord
+    >>> from cubeloupe.analysis import demo_path, open_cube, region_spectrum
+    >>> spec = region_spectrum(open_cube(demo_path("disk")), CirclePixelRegion(PixCoord(35.5, 35.5), radius=6))
+    >>> int(line_free_mask(spec, (1165, 1230) * u.km / u.s, rest_frequency=230.538 * u.GHz).sum()) > 0
+    True
+    """
     n_channels = len(spectrum.spectral_axis)
     if isinstance(line_free, np.ndarray) and line_free.dtype == bool:
         if line_free.shape != (n_channels,):
@@ -287,8 +300,8 @@ def fit_baseline(spectrum, line_free, order=1, *, rest_frequency=None, z=0.0, co
     values = u.Quantity(spectrum)
     unit = values.unit
     y = np.asarray(values.value, dtype=float)
-    axis_source = _AxisOnce(spectrum)
-    in_ranges = _line_free_mask(axis_source, line_free, rest_frequency, z, convention)
+    axis_source = CachedAxis(spectrum)
+    in_ranges = line_free_mask(axis_source, line_free, rest_frequency, z, convention)
     finite = np.isfinite(y)
     free = in_ranges & finite
     if free.sum() < order + 1:

@@ -41,7 +41,7 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
-from .baseline import BaselineFit, _AxisOnce, _line_free_mask, as_spectrum, fit_baseline
+from .baseline import BaselineFit, CachedAxis, as_spectrum, fit_baseline, line_free_mask
 from .errors import BlankedDataWarning, FitError
 from .polybaseline import check_order
 from .spectral import axis_in, channel_mask, check_convention, check_redshift, check_rest_frequency
@@ -256,7 +256,7 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
         rest_frequency = check_rest_frequency(rest_frequency, func="measure_line")
     spectrum = as_spectrum(spectrum, spectral_axis)
     frame = dict(rest_frequency=rest_frequency, z=z, convention=convention)
-    axis_source = _AxisOnce(spectrum)
+    axis_source = CachedAxis(spectrum)
     in_window = channel_mask(axis_source, window, what="window", **frame)
     v = axis_in(axis_source, _KMS, **frame).to_value(_KMS)
     values = u.Quantity(spectrum)
@@ -280,7 +280,7 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
 
     baseline = None
     if line_free is not None:
-        free_mask = _line_free_mask(axis_source, line_free, rest_frequency, z, convention)
+        free_mask = line_free_mask(axis_source, line_free, rest_frequency, z, convention)
         baseline = fit_baseline(spectrum, free_mask & ~in_window, order, **frame)
         signal = np.where(finite, baseline.subtracted.value, 0.0)
         rms = baseline.rms.to_value(unit)
