@@ -9,6 +9,8 @@ from .errors import __all__ as _errors_all
 from .units import brightness_unit, is_per_beam, is_temperature
 from .spectral import (
     CONVENTIONS,
+    SPEED_OF_LIGHT,
+    Z_MAX,
     axis_in,
     channel_mask,
     check_redshift,
@@ -21,9 +23,10 @@ from .spectral import (
 from .cubes import cube_source, open_cube, source_name
 from .demo import DEMO_CUBES, demo_names, demo_path, demo_truth
 from .catalog import find_line, lines_in_band, load_catalog, read_line_list, select_lines
+from .band_lines import BandLines
 from .redshift_solver import RedshiftCandidate, redshift_candidates
 from .luminosity import (
-    CosmologySummary, LineLuminosity, get_cosmology, line_luminosity, redshift_summary,
+    DEFAULT_COSMOLOGY, CosmologySummary, LineLuminosity, get_cosmology, line_luminosity, redshift_summary,
 )
 from .beams import (
     beam_area_pixels,
@@ -35,8 +38,11 @@ from .beams import (
     pixel_solid_angle,
 )
 from .spectra import region_spectrum
-from .baseline import BaselineFit, fit_baseline
+from .polybaseline import MAX_ORDER, check_order
+from .baseline import BaselineFit, fit_baseline, line_free_mask
 from .lines import LineMeasurement, measure_line
+from .line_table import MEASUREMENT_COLUMNS, measurement_table
+from .velocity_reference import VelocityReference, catalog_line_at, choose_velocity_reference
 from .moments import MomentMaps, moment_maps
 from .noise import (
     ChannelStatistics, ContinuumMap, PeakSpectrum, channel_noise, channel_statistics, cube_noise,
@@ -44,26 +50,35 @@ from .noise import (
 )
 from .delivery_check import CubeCheck, check_cube
 
-from .display import display_image, display_limits, display_axis, marker_positions
-from .export import write_map, write_maps, write_spectra, write_table
+from .display import (
+    AXIS_KINDS, STRETCHES, beam_outline, channel_at, contour_paths, cube_rest_frequency, display_axis,
+    display_image, display_limits, marker_positions, sky_position, stretched, to_observed_frequency,
+)
+from .prefetch import prefetch_channels
+from .export import check_output_path, write_map, write_maps, write_spectra, write_table
 
 __all__ = [
     *_errors_all,
     "brightness_unit", "is_per_beam", "is_temperature",
-    "CONVENTIONS", "axis_in", "channel_mask", "check_redshift", "check_rest_frequency",
+    "CONVENTIONS", "SPEED_OF_LIGHT", "Z_MAX", "axis_in", "channel_mask", "check_redshift", "check_rest_frequency",
     "frequency_axis", "frequency_from_velocity", "observed_frequency", "velocity",
     "open_cube", "cube_source", "source_name",
     "DEMO_CUBES", "demo_names", "demo_path", "demo_truth",
     "find_line", "lines_in_band", "load_catalog", "read_line_list", "select_lines",
-    "RedshiftCandidate", "redshift_candidates",
-    "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
+    "BandLines", "RedshiftCandidate", "redshift_candidates",
+    "DEFAULT_COSMOLOGY", "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
     "beam_area_pixels", "map_beam", "convert_brightness", "cube_beam", "jy_per_beam_to_kelvin",
     "kelvin_to_jy_per_beam", "pixel_solid_angle",
-    "region_spectrum", "BaselineFit", "fit_baseline", "LineMeasurement", "measure_line",
+    "region_spectrum", "MAX_ORDER", "check_order", "BaselineFit", "fit_baseline", "line_free_mask",
+    "LineMeasurement", "measure_line", "MEASUREMENT_COLUMNS", "measurement_table",
+    "VelocityReference", "catalog_line_at", "choose_velocity_reference",
     "MomentMaps", "moment_maps",
     "ChannelStatistics", "ContinuumMap", "PeakSpectrum", "channel_noise", "channel_statistics", "cube_noise",
     "leftover_continuum", "peak_spectrum",
     "CubeCheck", "check_cube",
-    "display_image", "display_limits", "display_axis", "marker_positions",
-    "write_map", "write_maps", "write_spectra", "write_table",
+    "AXIS_KINDS", "STRETCHES", "beam_outline", "channel_at", "contour_paths", "cube_rest_frequency",
+    "display_axis", "display_image", "display_limits", "marker_positions", "sky_position", "stretched",
+    "to_observed_frequency",
+    "prefetch_channels",
+    "check_output_path", "write_map", "write_maps", "write_spectra", "write_table",
 ]

@@ -27,6 +27,9 @@ from dataclasses import dataclass, field
 
 import astropy.units as u
 import numpy as np
+from astropy.wcs import WCS
+from numpy.polynomial import Legendre
+from spectral_cube.lower_dimensional_structures import OneDSpectrum
 
 from .errors import SpectralAxisError, SpectralRangeError, UnitMismatchError
 from .polybaseline import BaselineBasis, check_order
@@ -37,8 +40,6 @@ __all__ = ["BaselineFit", "fit_baseline", "as_spectrum", "line_free_mask", "Cach
 
 def _linear_spectral_wcs(axis):
     """A 1-D FITS WCS for an evenly spaced spectral axis (frequency, wavelength or velocity)."""
-    from astropy.wcs import WCS
-
     axis = u.Quantity(axis)
     if axis.ndim != 1 or axis.size < 2:
         raise SpectralAxisError(f"spectral_axis must be a 1-D Quantity of at least 2 channels; got shape {axis.shape}")
@@ -89,8 +90,6 @@ def as_spectrum(spectrum, spectral_axis=None):
     >>> spec.spectral_axis.unit
     Unit("m / s")
     """
-    from spectral_cube.lower_dimensional_structures import OneDSpectrum
-
     # Look the attribute up on the type: on a OneDSpectrum, reading spectral_axis recomputes it.
     if hasattr(type(spectrum), "spectral_axis") and spectral_axis is None:
         if len(np.shape(spectrum)) != 1:
@@ -128,8 +127,6 @@ class CachedAxis:
 
 def _same_kind_spectrum(template, values, unit):
     """A OneDSpectrum with ``template``'s axis, WCS, beam and meta and new values."""
-    from spectral_cube.lower_dimensional_structures import OneDSpectrum
-
     if isinstance(template, OneDSpectrum):
         return template._new_spectrum_with(data=np.asarray(values), unit=unit)
     return OneDSpectrum(np.asarray(values), unit=unit, wcs=_linear_spectral_wcs(template.spectral_axis))
@@ -193,8 +190,6 @@ class BaselineFit:
         >>> round(float(fit.polynomial(230.7e9)), 6)
         0.22
         """
-        from numpy.polynomial import Legendre
-
         return Legendre(self.coefficients.value, domain=list(self.domain))
 
     def baseline_at(self, spectral_coordinates):

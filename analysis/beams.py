@@ -24,7 +24,7 @@ import numpy as np
 from astropy.wcs.utils import proj_plane_pixel_area
 
 from .cubes import source_name
-from .errors import BeamError
+from .errors import BeamError, UnitMismatchError
 
 __all__ = [
     "cube_beam",
@@ -199,8 +199,6 @@ def _frequency(frequency):
     try:
         return u.Quantity(frequency).to(u.GHz, equivalencies=u.spectral())
     except (u.UnitsError, TypeError):
-        from .errors import UnitMismatchError
-
         raise UnitMismatchError(
             f"frequency must be a Quantity with a spectral unit (e.g. 230.538*u.GHz); got {frequency!r}"
         ) from None
@@ -291,8 +289,6 @@ def convert_brightness(values, unit, frequency, beam):
     >>> round(float(t.to_value(u.K)), 3)
     0.23
     """
-    from .errors import UnitMismatchError
-
     unit = u.Unit(unit)
     values = u.Quantity(values)
     area = _beam_solid_angle(beam)

@@ -49,6 +49,7 @@ import os
 from dataclasses import dataclass
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from .cube_file import cube_array, custom_mask, file_view
 from .errors import CancelledComputation, ClusterError, CubeFileError
@@ -345,8 +346,6 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
                 progress(done / total)
             _check_cancel(cancel, done, total)
         return
-
-    from threadpoolctl import threadpool_limits
 
     pending = {}
     queue = iter(blocks)

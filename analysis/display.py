@@ -24,7 +24,16 @@ Examples
 import math
 
 import astropy.units as u
+import contourpy
 import numpy as np
+from astropy.visualization import (
+    AsymmetricPercentileInterval,
+    AsinhStretch,
+    LinearStretch,
+    LogStretch,
+    SqrtStretch,
+    SquaredStretch,
+)
 
 from .errors import SpectralAxisError, UnitMismatchError
 from .spectral import (
@@ -150,8 +159,6 @@ def display_limits(image, lower=0.5, upper=99.5, *, vmin=None, vmax=None, max_sa
     >>> display_limits(np.arange(101.0), 5, 95)
     (5.0, 95.0)
     """
-    from astropy.visualization import AsymmetricPercentileInterval
-
     if not (0 <= lower < upper <= 100):
         raise ValueError(f"percentiles must satisfy 0 <= lower < upper <= 100; got {lower}, {upper}")
     if vmin is not None and vmax is not None and not vmin < vmax:
@@ -177,14 +184,6 @@ def display_limits(image, lower=0.5, upper=99.5, *, vmin=None, vmax=None, max_sa
 
 
 def _stretch(name):
-    from astropy.visualization import (
-        AsinhStretch,
-        LinearStretch,
-        LogStretch,
-        SqrtStretch,
-        SquaredStretch,
-    )
-
     table = {
         "linear": LinearStretch,
         "sqrt": SqrtStretch,
@@ -352,8 +351,6 @@ def contour_paths(image, levels, x_scale=1.0, y_scale=1.0):
     >>> bool(np.nanmax(x) <= 15.01 and np.nanmin(x) >= 4.99)
     True
     """
-    import contourpy
-
     data = np.asarray(image, dtype=float)
     mask = ~np.isfinite(data)
     generator = contourpy.contour_generator(z=np.ma.masked_array(np.where(mask, 0, data), mask),

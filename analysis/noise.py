@@ -38,6 +38,8 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
+from astropy.wcs import WCSSUB_SPECTRAL
+from spectral_cube import OneDSpectrum, Projection
 
 from .beams import map_beam
 from .blocks import DEFAULT_BLOCK_BYTES, plane_blocks, run_blocks, spectra_blocks
@@ -116,8 +118,6 @@ class PeakSpectrum:
 
     def to_spectrum(self):
         """The peaks as a spectral_cube `OneDSpectrum` on the cube's spectral WCS."""
-        from spectral_cube import OneDSpectrum
-
         return OneDSpectrum(self.values.value, unit=self.values.unit, wcs=self.wcs,
                             meta={"peak_positions": self.positions})
 
@@ -349,8 +349,6 @@ def peak_spectrum(cube, *, statistics=None, **kwargs):
     >>> peaks = peak_spectrum(open_cube(demo_path("disk")))
     >>> y, x = peaks.positions[np.nanargmax(peaks.values)]
     """
-    from astropy.wcs import WCSSUB_SPECTRAL
-
     stats = statistics if statistics is not None else channel_statistics(cube, **kwargs)
     return PeakSpectrum(spectral_axis=stats.spectral_axis, values=stats.peak, positions=stats.peak_pixel,
                         wcs=cube.wcs.sub([WCSSUB_SPECTRAL]))
@@ -442,8 +440,6 @@ class PixelSums:
 
     def continuum_map(self, cube):
         """The `ContinuumMap` of these sums, with the WCS, beam and unit of ``cube``."""
-        from spectral_cube import Projection
-
         mean, error, significance = self.statistics()
         unit = u.Unit(cube.unit)
         celestial = cube.wcs.celestial

@@ -4,6 +4,10 @@ Colour ramps and region colours were picked for this project: a deep-ink to
 warm-sand ramp for images and a set of region colours that stay apart on it.
 """
 
+import html
+
+import ipywidgets as w
+
 # Image colour ramps (dark to light); each is a list of CSS colours for bqplot's ColorScale.
 RAMPS = {
     "ink to sand": ["#0b1026", "#22305e", "#2f6f8f", "#58a89a", "#b9d88a", "#f3e7b3", "#fffdf4"],
@@ -36,8 +40,6 @@ _TITLE_STYLE = ("font-size:12px;font-weight:600;letter-spacing:0.04em;text-trans
 
 def section_title(text, hint=""):
     """A small section heading (HTML string) with an optional grey hint after it."""
-    import html
-
     extra = (f" <span style='font-weight:400;text-transform:none;letter-spacing:0;color:#829ab1'>"
              f"{html.escape(hint)}</span>") if hint else ""
     return f"<div style='{_TITLE_STYLE}'>{html.escape(text)}{extra}</div>"
@@ -45,8 +47,6 @@ def section_title(text, hint=""):
 
 def section(title, children, hint="", width=None, css_class=None):
     """A titled group of controls (an ipywidgets VBox)."""
-    import ipywidgets as w
-
     box = w.VBox([w.HTML(section_title(title, hint)), *children],
                  layout=w.Layout(width=width or "auto", margin="0 0 4px 0"))
     if css_class:
@@ -56,8 +56,6 @@ def section(title, children, hint="", width=None, css_class=None):
 
 def row(children, **layout):
     """Controls side by side, vertically centred, without wrapping."""
-    import ipywidgets as w
-
     layout.setdefault("align_items", "center")
     return w.HBox(list(children), layout=w.Layout(**layout))
 

@@ -7,9 +7,7 @@ import ipywidgets as w
 import numpy as np
 from traitlets import Enum, Float, Int, List, Unicode, observe, validate
 
-from cubeloupe.analysis.display import cube_rest_frequency, display_axis
-from cubeloupe.analysis.errors import CubeloupeError
-from cubeloupe.analysis.spectral import CONVENTIONS, velocity
+from cubeloupe.analysis import CONVENTIONS, cube_rest_frequency, CubeloupeError, display_axis, velocity
 
 __all__ = ["ChannelBar"]
 

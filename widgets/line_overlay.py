@@ -1,36 +1,33 @@
 """LineOverlay: catalog transitions in the band at the current redshift, drawn on the spectrum view.
 
-Which lines fall in the band comes from `cubeloupe.analysis.lines_in_band`;
-where they sit on the current x axis from
-`cubeloupe.analysis.display.marker_positions`; redshift candidates for marked
-peaks from `cubeloupe.analysis.redshift_solver.redshift_candidates`; the
-distances shown beside the redshift from `luminosity.redshift_summary`.
+Which lines fall in the band comes from `cubeloupe.analysis.BandLines` (the
+tables of `lines_in_band`, re-placed quickly as z changes); where they sit on
+the current x axis from `cubeloupe.analysis.marker_positions`; redshift
+candidates for marked peaks from `cubeloupe.analysis.redshift_candidates`; the
+distances shown beside the redshift from `cubeloupe.analysis.redshift_summary`.
 """
 
+import contextlib
 import html
 import logging
 import threading
 import time
 
-import astropy.constants as const
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
 from bqplot import Lines, Scatter
 from traitlets import Enum, Float, Instance, List, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis.catalog import lines_in_band, load_catalog, select_lines
-from cubeloupe.analysis.display import marker_positions
-from cubeloupe.analysis.errors import CubeloupeError
-from cubeloupe.analysis.luminosity import redshift_summary
-from cubeloupe.analysis.redshift_solver import redshift_candidates
-from cubeloupe.analysis.spectral import Z_MAX, check_redshift, observed_frequency
+from cubeloupe.analysis import (
+    SPEED_OF_LIGHT, Z_MAX, BandLines, CubeloupeError, check_redshift, load_catalog, marker_positions,
+    redshift_candidates, redshift_summary,
+)
 
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
 
 __all__ = ["LineOverlay"]
 
-_C_KMS = const.c.to_value(u.km / u.s)
 
 log = logging.getLogger("cubeloupe.widgets")
 
@@ -88,8 +85,7 @@ class LineOverlay(w.VBox):
         self.catalog = load_catalog() if catalog is None else catalog
         self.marker_x = np.array([])
         self.shown_markers = np.array([], dtype=int)
-        self._filtered_rest = None
-        self._lines_key = None
+        self._band_lines = None
         self._quiet_reference = False
         self._summary_worker = _SummaryWorker(self._show_summary)
         self._build()
@@ -248,7 +244,7 @@ class LineOverlay(w.VBox):
             self._render_species_note()
         if change.name == "max_E_up" and self.eup_input.value != format_optional_number(self.max_E_up):
             self.eup_input.value = format_optional_number(self.max_E_up)
-        self._filtered_rest = None
+        self._band_lines = None
         self._refresh_lines()
 
     @observe("velocity_range")
@@ -282,6 +278,15 @@ class LineOverlay(w.VBox):
         if len(rows):
             self.view.rest_frequency = float(u.Quantity(rows["rest_frequency"], u.GHz)[0].to_value(u.GHz))
 
+    @contextlib.contextmanager
+    def keeping_rest_frequency(self):
+        """Within this block, clearing the reference line keeps the view's rest frequency as it is."""
+        self._quiet_reference = True
+        try:
+            yield
+        finally:
+            self._quiet_reference = False
+
     def refresh_reference_options(self):
         """Rebuild the 'Velocity zero' choices (e.g. after the cube's rest frequency became known)."""
         names = list(self.lines["name"]) if self.lines is not None else []
@@ -292,42 +297,20 @@ class LineOverlay(w.VBox):
             self.reference_choice.options = options
 
     # --------------------------------------------------------------- markers
-    def _lines_needed(self, lo, hi):
-        """Which filtered catalog rows lines_in_band would return now (indices), or None to ask it.
-
-        The filters are applied once (`select_lines`); on a z change only the rest-frame band test
-        is repeated, with the same arithmetic as `lines_in_band`, and the table is asked for again
-        only when the set of lines changes.
-        """
-        if self._filtered_rest is None:
-            filtered = select_lines(self.catalog, species=self.species or None,
-                                    spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
-                                    max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
-            self._filtered_rest = np.asarray(u.Quantity(filtered["rest_frequency"], u.GHz).value)
-            self._lines_key = None
-        rest = self._filtered_rest
-        inside = (rest >= lo * (1 + self.z)) & (rest <= hi * (1 + self.z))
-        return tuple(np.flatnonzero(inside))
-
     def _refresh_lines(self):
         with self.status.guard("finding catalog lines in the band"):
+            if self._band_lines is None:
+                self._band_lines = BandLines(
+                    self.catalog, species=self.species or None,
+                    spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
+                    max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
             lo, hi = self.band
             # Widen by the slider's range so lines shifted into the band by the offset are kept.
-            pad = 1 + self.velocity_range / _C_KMS
-            lo, hi = lo / pad, hi * pad
-            key = self._lines_needed(lo, hi)
-            if key != self._lines_key or self.lines is None:
-                self.lines = lines_in_band(lo * u.GHz, hi * u.GHz, self.z, self.catalog,
-                                           species=self.species or None,
-                                           spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
-                                           max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
-                self._lines_key = key
+            pad = 1 + self.velocity_range / SPEED_OF_LIGHT.value
+            previous = self.lines
+            self.lines = self._band_lines.in_band(lo / pad * u.GHz, hi * pad * u.GHz, self.z)
+            if self.lines is not previous:
                 self.refresh_reference_options()
-            elif len(self.lines):
-                # Same lines, new z: only their observed frequencies change (rest / (1 + z)).
-                self.lines["observed_frequency"] = observed_frequency(
-                    u.Quantity(self.lines["rest_frequency"], u.GHz), self.z)
-                self.lines.meta["z"] = self.z
             self._place_markers()
 
     def _place_markers(self):

@@ -20,23 +20,19 @@ import os
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
+from astropy.table import Table
 from traitlets import Bool, Enum, Float, Instance, Int, List, TraitError, Unicode, link, observe, validate
 
-from cubeloupe.analysis.beams import cube_beam
-from cubeloupe.analysis.catalog import load_catalog
-from cubeloupe.analysis.cubes import open_cube
-from cubeloupe.analysis.display import AXIS_KINDS, channel_at, cube_rest_frequency, display_axis
-from cubeloupe.analysis.errors import BeamError, CubeloupeError, RegionError, SpectralAxisError
-from cubeloupe.analysis.export import write_maps, write_spectra
-from cubeloupe.analysis.lines import measure_line
-from cubeloupe.analysis.luminosity import line_luminosity
-from cubeloupe.analysis.spectra import region_spectrum
-from cubeloupe.analysis.spectral import CONVENTIONS
+from cubeloupe.analysis import (
+    AXIS_KINDS, CONVENTIONS, BeamError, CubeloupeError, RegionError, SpectralAxisError, catalog_line_at,
+    channel_at, choose_velocity_reference, cube_beam, cube_rest_frequency, display_axis, load_catalog,
+    measurement_table, open_cube, region_spectrum, source_name, write_maps, write_spectra,
+)
 
 from ._look import section
 from .channel_bar import ChannelBar
 from .line_overlay import LineOverlay
-from .measurement_table import MeasurementTable, row_from
+from .measurement_table import MeasurementTable, rows_from_table
 from .moment_panel import MomentPanel
 from .region_list import RegionList
 from .sky_view import SkyView
@@ -54,7 +50,7 @@ _TITLE = ("<div style='display:flex;align-items:baseline;gap:10px;border-bottom:
 
 
 def _source_name(cube, index):
-    path = cube.meta.get("cubeloupe_source", {}).get("path")
+    path = source_name(cube, default="")
     return os.path.basename(path) if path else f"window {index}"
 
 
@@ -165,8 +161,6 @@ class Loupe(w.VBox):
 
     # ------------------------------------------------------------- building
     def _load_catalog(self, catalog):
-        from astropy.table import Table
-
         if isinstance(catalog, Table):
             return catalog
         result = None
@@ -318,30 +312,16 @@ class Loupe(w.VBox):
         mp.observe(self._on_moments, names=["maps"])
 
     def _choose_rest_frequency(self, rest_frequency):
-        """Velocity zero: the given rest frequency, else the cube's RESTFRQ, else a catalog line (z > 0)."""
-        if rest_frequency is not None:
-            value = float(u.Quantity(rest_frequency).to_value(u.GHz, equivalencies=u.spectral()))
-            self.rest_frequency = value
-            name = self._catalog_name_of(value)
-            if name:
-                self.reference_line = name
-            return
-        restfrq = self.spectrum_view.file_rest_frequency
-        if restfrq:
-            # The cube's own rest frequency, as spectral.axis_in uses it when no line is given.
-            self.rest_frequency = restfrq
-            return
-        lines = self.line_overlay.lines
-        if self.z != 0 and lines is not None and len(lines):
-            # The lowest-energy line in the band is the usual first guess of what is seen.
-            first = int(np.argmin(np.nan_to_num(np.asarray(lines["E_up"], dtype=float), nan=np.inf)))
-            self.reference_line = str(lines["name"][first])
+        """Velocity zero by `choose_velocity_reference`: the given line, the cube's RESTFRQ, or a catalog line."""
+        choice = choose_velocity_reference(self.cubes[0], self.z, rest_frequency=rest_frequency,
+                                           catalog=self.catalog, band=u.Quantity(self._all_band, u.GHz))
+        if choice.origin in ("given", "file"):
+            self.rest_frequency = float(choice.rest_frequency.to_value(u.GHz))
+        if choice.line and choice.origin in ("given", "catalog"):
+            self.reference_line = choice.line
 
     def _catalog_name_of(self, rest_ghz):
-        """The name of the one catalog line at this rest frequency (within 1 kHz), or ''."""
-        rest = np.asarray(u.Quantity(self.catalog["rest_frequency"], u.GHz).value)
-        hits = np.flatnonzero(np.abs(rest - rest_ghz) < 1e-6)
-        return str(self.catalog["name"][hits[0]]) if len(hits) == 1 else ""
+        return catalog_line_at(rest_ghz * u.GHz, self.catalog)
 
     @observe("reference_line", "rest_frequency")
     def _describe_reference(self, change=None):
@@ -350,11 +330,8 @@ class Loupe(w.VBox):
         if change is not None and change.name == "rest_frequency" and self.reference_line:
             # A rest frequency set by hand that is not the chosen line's: the line no longer applies.
             if self._catalog_name_of(self.rest_frequency) != self.reference_line:
-                self.line_overlay._quiet_reference = True
-                try:
+                with self.line_overlay.keeping_rest_frequency():
                     self.reference_line = ""
-                finally:
-                    self.line_overlay._quiet_reference = False
         rest = self.rest_frequency
         restfrq = self.spectrum_view.file_rest_frequency
         if self.reference_line:
@@ -378,7 +355,7 @@ class Loupe(w.VBox):
     # ----------------------------------------------------------- validation
     @validate("window")
     def _valid_window(self, proposal):
-        return self.sky_view._valid_window(proposal) if self.cubes else 0
+        return self.sky_view.check_window(proposal["value"]) if self.cubes else 0
 
     @validate("channel")
     def _valid_channel(self, proposal):
@@ -536,22 +513,12 @@ class Loupe(w.VBox):
             if self.z != 0 and self._rest() is None:
                 raise SpectralAxisError("velocities need a line: pick it under 'Velocity zero' (or set "
                                         "rest_frequency) before measuring")
-            window = u.Quantity(self.line_window, u.GHz)
-            for name, spectra in self.spectra.items():
-                for index, spectrum in enumerate(spectra):
-                    if spectrum is None or not self._ranges_in(index, [self.line_window]):
-                        continue
-                    free = self._ranges_in(index, self.line_free)
-                    m = measure_line(spectrum, window, line_free=u.Quantity(free, u.GHz) if free else None,
-                                     order=self.baseline_order, rest_frequency=self._rest(), z=self.z,
-                                     convention=self.convention)
-                    lum = err = None
-                    if self.z > 0 and self._rest() is not None and m.flux.unit.is_equivalent(u.Jy * u.km / u.s):
-                        lum = line_luminosity(m.flux, self.z, self._rest(), cosmology=self.cosmology,
-                                              magnification=self.magnification)
-                        err = line_luminosity(m.flux_error, self.z, self._rest(), cosmology=self.cosmology,
-                                              magnification=self.magnification)
-                    rows.append(row_from(name, index, self._line_label(), m, lum, err))
+            table = measurement_table(
+                self.spectra, u.Quantity(self.line_window, u.GHz),
+                line_free=u.Quantity(self.line_free, u.GHz) if self.line_free else None,
+                order=self.baseline_order, rest_frequency=self._rest(), z=self.z, convention=self.convention,
+                line=self._line_label(), cosmology=self.cosmology, magnification=self.magnification)
+            rows = rows_from_table(table)
         self.measurements = rows
         self.measurement_table.rows = rows
 

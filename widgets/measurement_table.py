@@ -1,7 +1,7 @@
 """MeasurementTable: line measurements per region and spectral window, with L'_line, exportable as ECSV.
 
 Rows are filled from `cubeloupe.analysis.measure_line` and
-`cubeloupe.analysis.luminosity.line_luminosity` results (see `row_from`);
+`cubeloupe.analysis.measurement_table` (see `rows_from_table`);
 the widget only formats them.
 """
 
@@ -13,8 +13,7 @@ import numpy as np
 from astropy.table import Table
 from traitlets import Float, List, TraitError, Unicode, validate
 
-from cubeloupe.analysis.export import write_table
-from cubeloupe.analysis.luminosity import get_cosmology
+from cubeloupe.analysis import get_cosmology, write_table
 
 __all__ = ["MeasurementTable", "COLUMNS"]
 
@@ -35,26 +34,24 @@ COLUMNS = {
 }
 
 
-def row_from(region, window, line, measurement, luminosity=None, luminosity_error=None):
-    """A table row (dict of plain values) from a LineMeasurement and optional LineLuminosity results."""
-    row = {
-        "region": str(region),
-        "window": int(window),
-        "line": str(line),
-        "flux": float(measurement.flux.value),
-        "flux_error": float(measurement.flux_error.value),
-        "flux_unit": measurement.flux.unit.to_string(),
-        "centroid": float(measurement.centroid.to_value(_KMS)),
-        "fwhm": float(measurement.fwhm.to_value(_KMS)),
-        "snr": float(measurement.snr),
-        "l_prime": np.nan,
-        "l_prime_error": np.nan,
-    }
-    if luminosity is not None:
-        row["l_prime"] = float(luminosity.l_prime.to_value(u.K * _KMS * u.pc**2))
-    if luminosity_error is not None:
-        row["l_prime_error"] = float(luminosity_error.l_prime.to_value(u.K * _KMS * u.pc**2))
-    return row
+def rows_from_table(table):
+    """The table's rows as dicts of plain values (units in the column names' conventions) for display."""
+    rows = []
+    for r in table:
+        rows.append({
+            "region": str(r["region"]),
+            "window": int(r["window"]),
+            "line": str(r["line"]),
+            "flux": float(r["flux"].value),
+            "flux_error": float(r["flux_error"].value),
+            "flux_unit": r["flux"].unit.to_string(),
+            "centroid": float(r["centroid"].to_value(_KMS)),
+            "fwhm": float(r["fwhm"].to_value(_KMS)),
+            "snr": float(r["snr"]),
+            "l_prime": float(r["l_prime"].to_value(u.K * _KMS * u.pc**2)),
+            "l_prime_error": float(r["l_prime_error"].to_value(u.K * _KMS * u.pc**2)),
+        })
+    return rows
 
 
 class MeasurementTable(w.VBox):
@@ -63,7 +60,7 @@ class MeasurementTable(w.VBox):
     Attributes
     ----------
     rows : list of dict
-        One dict per region, window and line (see `row_from`).
+        One dict per region, window and line (see `rows_from_table`).
     cosmology : str
         Name of the astropy cosmology used for luminosities.
     magnification : float

@@ -10,8 +10,7 @@ import threading
 import ipywidgets as w
 from traitlets import Bool, Dict, Float, Instance, Int, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis.errors import CancelledComputation
-from cubeloupe.analysis.moments import moment_maps
+from cubeloupe.analysis import CancelledComputation, moment_maps
 
 from ._look import format_optional_number, parse_optional_number, row
 from .status import StatusLine

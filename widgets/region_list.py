@@ -26,7 +26,7 @@ from regions import (
 )
 from traitlets import Bool, List, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis.errors import RegionError
+from cubeloupe.analysis import RegionError
 
 from ._look import REGION_COLORS, section_title
 

@@ -16,18 +16,10 @@ from bqplot_image_gl import ImageGL
 from bqplot_image_gl.interacts import BrushEllipseSelector, BrushRectangleSelector, MouseInteraction
 from traitlets import Bool, Dict, Enum, Float, Int, List, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis.beams import cube_beam
-from cubeloupe.analysis.display import (
-    STRETCHES,
-    beam_outline,
-    contour_paths,
-    display_image,
-    display_limits,
-    sky_position,
-    stretched,
+from cubeloupe.analysis import (
+    STRETCHES, beam_outline, BeamError, contour_paths, cube_beam, display_image, display_limits,
+    prefetch_channels, sky_position, stretched,
 )
-from cubeloupe.analysis.errors import BeamError
-from cubeloupe.analysis.prefetch import prefetch_channels
 
 from ._look import RAMPS, row
 from .status import StatusLine
@@ -128,12 +120,12 @@ class SkyView(w.VBox):
         self.figure.add_class("cubeloupe-sky-figure")
         # Colour bar: the ramp drawn against data values, so its ticks read in data units.
         self._bar_scale = LinearScale(allow_padding=False)
-        self._bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
+        self.bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
                                   scales={"x": LinearScale(min=0, max=1), "y": self._bar_scale,
                                           "image": self.color_scale}, x=(0, 1))
         self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="54px",
                               grid_lines="none")
-        self.colorbar = Figure(marks=[self._bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
+        self.colorbar = Figure(marks=[self.bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
                                fig_margin={"top": 10, "bottom": 40, "left": 4, "right": 72},
                                layout=w.Layout(width="96px", height="364px"))
         self.colorbar.add_class("cubeloupe-colorbar")
@@ -215,7 +207,10 @@ class SkyView(w.VBox):
 
     @validate("window")
     def _valid_window(self, proposal):
-        value = proposal["value"]
+        return self.check_window(proposal["value"])
+
+    def check_window(self, value):
+        """Return ``value`` if it numbers one of the cubes, else raise TraitError saying which exist."""
         if not 0 <= value < len(self.cubes):
             raise TraitError(f"window {value} does not exist; there are {len(self.cubes)} window(s), "
                              f"numbered 0 to {len(self.cubes) - 1}")
@@ -353,8 +348,8 @@ class SkyView(w.VBox):
             ramp = stretched(np.linspace(lo, hi, 256, dtype=np.float32)[:, None], lo, hi, self.stretch)
             with self.figure.hold_sync(), self.colorbar.hold_sync():
                 self.image.image = colour
-                self._bar_image.image = ramp
-                self._bar_image.y = (lo, hi)
+                self.bar_image.image = ramp
+                self.bar_image.y = (lo, hi)
                 self._bar_scale.min, self._bar_scale.max = lo, hi
                 self._bar_axis.label = str(unit) if str(unit) else "value"
             with self.hold_trait_notifications():

@@ -8,15 +8,17 @@ scripts, tests and CI.
 """
 
 import numpy as np
+from matplotlib.colors import LinearSegmentedColormap
+from matplotlib.figure import Figure
 
-from cubeloupe.analysis.export import check_output_path
+from cubeloupe.analysis import check_output_path
+
+from ._look import RAMPS
 
 __all__ = ["render_sky", "render_spectrum"]
 
 
 def _figure():
-    from matplotlib.figure import Figure
-
     return Figure(figsize=(6, 5), dpi=110)
 
 
@@ -25,10 +27,6 @@ def render_sky(sky_view, path, *, overwrite=False):
 
     The format follows the file name's extension (``.png``, ``.svg``, ``.pdf``).
     """
-    from matplotlib.colors import LinearSegmentedColormap
-
-    from ._look import RAMPS
-
     path = check_output_path(path, overwrite)
     fig = _figure()
     ax = fig.add_subplot()
@@ -40,7 +38,7 @@ def render_sky(sky_view, path, *, overwrite=False):
     bar = fig.colorbar(shown, ax=ax)
     ticks = np.linspace(0, 1, 5)
     bar.set_ticks(ticks)
-    bar.set_ticklabels([f"{v:.3g}" for v in np.interp(ticks, np.asarray(sky_view._bar_image.image)[:, 0],
+    bar.set_ticklabels([f"{v:.3g}" for v in np.interp(ticks, np.asarray(sky_view.bar_image.image)[:, 0],
                                                        np.linspace(lo, hi, 256))])
     bar.set_label(sky_view._bar_axis.label)
     for mark in (sky_view.contour_mark,):

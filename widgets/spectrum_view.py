@@ -14,11 +14,10 @@ from bqplot.interacts import BrushIntervalSelector
 from bqplot_image_gl.interacts import MouseInteraction
 from traitlets import Bool, Enum, Float, Int, List, TraitError, observe, validate
 
-from cubeloupe.analysis.baseline import fit_baseline
-from cubeloupe.analysis.display import AXIS_KINDS, display_axis, to_observed_frequency
-from cubeloupe.analysis.errors import CubeloupeError, FitError, SpectralRangeError
-from cubeloupe.analysis.polybaseline import MAX_ORDER, check_order
-from cubeloupe.analysis.spectral import CONVENTIONS
+from cubeloupe.analysis import (
+    AXIS_KINDS, CONVENTIONS, MAX_ORDER, check_order, CubeloupeError, display_axis, fit_baseline, FitError,
+    SpectralRangeError, to_observed_frequency,
+)
 
 from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
 from .status import StatusLine

@@ -17,7 +17,7 @@ import warnings
 import ipywidgets as w
 from traitlets import Enum, Int, List, Unicode, observe
 
-from cubeloupe.analysis.errors import CubeloupeError, CubeloupeWarning
+from cubeloupe.analysis import CubeloupeError, CubeloupeWarning
 
 __all__ = ["StatusLine"]
 
