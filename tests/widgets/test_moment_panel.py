@@ -1,0 +1,88 @@
+"""MomentPanel: moment maps made in the background, equal to moment_maps; stop; clusters.
+
+No browser: traits are set directly, or messages are fed to the interaction
+widgets in the form the bqplot front end sends them.
+"""
+
+import astropy.units as u
+import pytest
+from numpy.testing import assert_allclose
+
+from cubeloupe.analysis import open_cube
+from cubeloupe.analysis.display import display_image, display_limits, stretched
+from cubeloupe.analysis.moments import moment_maps
+from cubeloupe.widgets import Loupe
+
+from suite_driver import mark_ranges
+
+
+def test_moment_action_equals_moment_maps(loupe, line_cube):
+    mark_ranges(loupe)
+    loupe.clip = 3.0
+    loupe.make_moments(wait=True)
+    assert loupe.moment_panel.state == "done" and loupe.moment_panel.progress == pytest.approx(1.0)
+    expected = moment_maps(open_cube(line_cube), u.Quantity(loupe.line_window, u.GHz),
+                           line_free=u.Quantity(loupe.line_free, u.GHz), order=1,
+                           rest_frequency=230.538 * u.GHz, clip=3.0)
+    for key in ("m0", "m1", "m2", "m0_error"):
+        assert_allclose(getattr(loupe.moments, key).value, getattr(expected, key).value, rtol=1e-6, equal_nan=True)
+    loupe.sky_source = "moment 1"
+    image, _ = display_image(expected.m1.value, loupe.sky_view.max_display_size)
+    lo, hi = display_limits(image)
+    assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi), rtol=1e-5, equal_nan=True)
+    loupe.sky_view.contour_source = "moment 0"
+    assert len(loupe.sky_view.contour_mark.x) > 0
+
+
+@pytest.mark.slow
+def test_moments_on_a_cluster_equal_those_in_the_kernel(line_cube):
+    """The same suite on a dask.distributed cluster gives the same maps (issue #7)."""
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster, distributed.Client(cluster) as client:
+        on_cluster = Loupe(line_cube, client=client)
+        mark_ranges(on_cluster)
+        on_cluster.make_moments(wait=True)
+        assert on_cluster.moment_panel.state == "done", on_cluster.status.message
+    in_kernel = Loupe(line_cube)
+    mark_ranges(in_kernel)
+    in_kernel.make_moments(wait=True)
+    for key in ("m0", "m1", "m2", "m0_error"):
+        assert_allclose(getattr(on_cluster.moments, key).value, getattr(in_kernel.moments, key).value,
+                        rtol=1e-12, equal_nan=True)
+
+
+def test_a_missing_cluster_is_reported_in_the_status_line(line_cube):
+    loupe = Loupe(line_cube, client="default")
+    mark_ranges(loupe)
+    loupe.make_moments(wait=True)
+    assert loupe.moment_panel.state == "failed"
+    assert loupe.status.level == "error" and "no dask.distributed Client is running" in loupe.status.message
+
+
+def test_moments_without_a_window_say_so(loupe):
+    assert loupe.make_moments(wait=True) is None
+    assert loupe.status.level == "error" and "line window" in loupe.status.message
+    assert not loupe.moment_panel.running
+
+
+def test_moments_can_be_stopped(loupe):
+    mark_ranges(loupe)
+    panel = loupe.moment_panel
+    panel._cancel = None
+    import threading
+
+    gate = threading.Event()
+    original = panel._report_progress
+
+    def slow_progress(fraction):
+        original(fraction)
+        gate.wait(2)
+
+    panel._report_progress = slow_progress
+    panel.start()
+    panel.stop()
+    gate.set()
+    assert panel.wait(30)
+    assert panel.state in ("stopped", "done")  # a tiny cube may finish in its first block
+    assert not panel.running
