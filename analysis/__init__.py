@@ -48,7 +48,7 @@ from .noise import (
     ChannelStatistics, ContinuumMap, PeakSpectrum, channel_noise, channel_statistics, cube_noise,
     leftover_continuum, peak_spectrum,
 )
-from .delivery_check import CubeCheck, check_cube
+from .check import CubeCheck, check_cube
 
 from .display import (
     AXIS_KINDS, STRETCHES, beam_outline, channel_at, contour_paths, cube_rest_frequency, display_axis,

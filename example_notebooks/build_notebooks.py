@@ -52,7 +52,7 @@ from cubeloupe.analysis import (
     channel_noise, demo_path, find_line, fit_baseline, leftover_continuum, lines_in_band,
     measure_line, moment_maps, open_cube, region_spectrum,
 )
-from cubeloupe.analysis.delivery_check import check_cube
+from cubeloupe.analysis.check import check_cube
 from cubeloupe.analysis.export import write_maps, write_spectra
 
 kms = u.km / u.s
@@ -232,7 +232,7 @@ from cubeloupe.analysis import (
     demo_path, demo_truth, find_line, fit_baseline, line_luminosity, lines_in_band, measure_line, open_cube,
     redshift_candidates, redshift_summary, region_spectrum, velocity,
 )
-from cubeloupe.analysis.delivery_check import check_cube
+from cubeloupe.analysis.check import check_cube
 
 kms = u.km / u.s
 paths = [demo_path("lensed_spw1"), demo_path("lensed_spw2")]

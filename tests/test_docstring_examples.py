@@ -14,7 +14,8 @@ import cubeloupe.analysis as analysis
 
 MODULES = sorted(
     name
-    for _, name, _ in pkgutil.iter_modules(analysis.__path__, prefix="cubeloupe.analysis.")
+    # subpackages too (the delivery check, the commands)
+    for _, name, _ in pkgutil.walk_packages(analysis.__path__, prefix="cubeloupe.analysis.")
     if not name.rsplit(".", 1)[-1].startswith("__")
 )
 

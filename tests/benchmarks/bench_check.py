@@ -116,8 +116,8 @@ def main():
     args = parser.parse_args()
 
     from cubeloupe.analysis import open_cube
-    from cubeloupe.analysis import delivery_check as dc
-    from cubeloupe.analysis.check_report import cube_entry, cube_section
+    from cubeloupe.analysis import check as dc
+    from cubeloupe.analysis.check import cube_entry, cube_section
     from cubeloupe.analysis.moments import moment_maps
     from cubeloupe.analysis.noise import channel_statistics, leftover_continuum
 

@@ -10,7 +10,7 @@ import pytest
 from astropy.io import fits
 
 from cubefactory import file_digest, line_cube_data, make_header, primary_beam, write_cube
-from cubeloupe.analysis._check_command import EXIT_CUBE_FAILED, EXIT_NO_REPORT, EXIT_OK, collect_inputs
+from cubeloupe.analysis.commands.check_command import EXIT_CUBE_FAILED, EXIT_NO_REPORT, EXIT_OK, collect_inputs
 
 # CO J=2-1 at 230.538 GHz (CDMS catalogue, Mueller et al. 2005), the default
 # rest frequency of the test factory's axis: a line at z = 0 lies in its band.
@@ -20,7 +20,7 @@ SHAPE = (64, 24, 24)
 
 def _run(argv):
     """Run the command in this process, as the console script does; return its exit status."""
-    from cubeloupe.analysis._cli import main
+    from cubeloupe.analysis.commands.cli import main
 
     return main(["check", *argv])
 
@@ -202,7 +202,7 @@ def test_console_script_runs_and_returns_the_status(tmp_path, rng):
     _good_cube(delivery / "good.fits", rng)
     _truncated(delivery / "bad.fits", rng)
     out = tmp_path / "out"
-    done = subprocess.run([sys.executable, "-m", "cubeloupe.analysis._cli", "check", str(delivery),
+    done = subprocess.run([sys.executable, "-m", "cubeloupe.analysis.commands.cli", "check", str(delivery),
                            "--out", str(out), "--quiet"], capture_output=True, text=True, timeout=300)
     assert done.returncode == EXIT_CUBE_FAILED, done.stderr
     assert "bad.fits" in done.stderr and "truncated" in done.stderr
@@ -227,14 +227,14 @@ def test_whole_demo_delivery(tmp_path, capsys):
 
 
 def test_ctrl_c_stops_cleanly_without_a_report(tmp_path, rng, monkeypatch, capsys):
-    from cubeloupe.analysis import _check_command
+    from cubeloupe.analysis.commands import check_command
 
     good = _good_cube(tmp_path / "good.fits", rng)
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(_check_command, "_check_one", interrupted)
+    monkeypatch.setattr(check_command, "_check_one", interrupted)
     out = tmp_path / "out"
     # 128 + SIGINT is the shell's status for a command stopped by Ctrl-C (common practice)
     assert _run([str(good), "--out", str(out)]) == 130

@@ -1,4 +1,4 @@
-"""Tests of the delivery check of one cube (issue 8)."""
+"""Tests of the whole delivery check of one cube (analysis/check/cube_check.py; issue 8)."""
 
 import json
 
@@ -9,18 +9,8 @@ from astropy.tests.helper import assert_quantity_allclose
 
 from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube
 from cubeloupe.analysis import open_cube
-from cubeloupe.analysis.check_report import cube_entry, summary_dict
-from cubeloupe.analysis.delivery_check import (
-    FALSE_ALARMS,
-    FeatureChannels,
-    check_cube,
-    continuum_free_peaks,
-    false_alarm_threshold,
-    flag_channels,
-    group_features,
-    header_summary,
-    line_free_channels,
-)
+from cubeloupe.analysis.check import cube_entry, summary_dict
+from cubeloupe.analysis.check import FALSE_ALARMS, check_cube
 from cubeloupe.analysis.errors import MissingUnitWarning
 
 # Rest frequencies from the CDMS catalogue (Mueller et al. 2005), as in the
@@ -35,6 +25,8 @@ CDELT3 = -8.0e6
 NCHAN = 250
 
 
+
+
 def _line_cube(tmp_path, rng, *, lines=(), name="lines.fits", noise=1e-3, shape=(NCHAN, 32, 32), **kw):
     data = line_cube_data(shape, rng=rng, noise_rms=noise, lines=lines, crval3=CRVAL3, cdelt3=CDELT3, **kw)
     return write_cube(tmp_path / name, data, crval3=CRVAL3, cdelt3=CDELT3, restfrq=CO76 / (1 + Z))
@@ -43,113 +35,6 @@ def _line_cube(tmp_path, rng, *, lines=(), name="lines.fits", noise=1e-3, shape=
 def _two_lines(noise=1e-3, snr=(12.0, 8.0)):
     """CO 7-6 and [CI] 2-1 at z=2, peaks ``snr`` times the noise, sigma 40 MHz (about 45 km/s)."""
     return [(CO76 / (1 + Z), snr[0] * noise, 40e6), (CI21 / (1 + Z), snr[1] * noise, 40e6)]
-
-
-# --------------------------------------------------------------------------- rules
-
-
-def test_flag_channels_finds_a_noisy_and_a_blank_channel(rng):
-    rms = 1.0 + 0.01 * rng.normal(size=200)
-    rms[17] = 1.5
-    rms[120] = np.nan
-    assert list(flag_channels(rms)) == [17, 120]
-
-
-def test_flag_channels_flags_nothing_in_even_noise(rng):
-    # per-channel rms of Gaussian noise scatter by about 1/sqrt(2N) (common practice)
-    rms = 1.0 + rng.normal(scale=1 / np.sqrt(2 * 1024), size=500)
-    assert flag_channels(rms).size == 0
-
-
-def test_group_features_merges_one_channel_gaps_and_sorts_by_strength():
-    snr = np.ones(60)
-    snr[10:13] = [4, 7, 4]          # one feature
-    snr[30:36] = [4, 6, 1.0, 5, 9, 4]  # a 1-channel dip inside one feature
-    snr[50] = 4.5                   # below threshold: not a feature
-    features = group_features(snr, threshold=5)
-    # by hand: the floor is 1 with no scatter, so the edge is 1; the 3-channel means at 9 and 13
-    # ((1 + 1 + 4) / 3 = 2) lie above it, those at 8 and 14 do not; likewise 29 and 36
-    assert [(f.first, f.last, f.peak) for f in features] == [(29, 36, 34), (9, 13, 11)]
-
-
-def test_group_features_breaks_runs_at_blanked_channels():
-    snr = np.ones(20)
-    snr[5:12] = 8.0
-    snr[8] = np.nan
-    # smoothing widens each run by one channel on its outer side, never across the blank channel
-    assert [(f.first, f.last) for f in group_features(snr)] == [(4, 7), (9, 12)]
-
-
-def test_group_features_keeps_a_broad_faint_line_in_one_piece(rng):
-    snr = 3.0 + 0.4 * rng.normal(size=200)
-    # a 15-channel line whose peak S/N wavers around the threshold
-    snr[90:105] += np.array([1.0, 1.5, 2.0, 2.4, 1.2, 2.6, 0.8, 2.2, 1.0, 2.5, 1.1, 2.0, 1.5, 1.0, 0.8])
-    snr[95] = 6.0
-    features = group_features(snr)
-    assert len(features) == 1
-    assert features[0].first <= 91 and features[0].last >= 103
-
-
-def test_group_features_threshold_is_inclusive():
-    snr = np.ones(10)
-    snr[4] = 5.0
-    assert len(group_features(snr, threshold=5.0)) == 1
-    assert group_features(snr, threshold=5.01) == []
-
-
-def test_line_free_channels_pads_each_feature_by_a_quarter_of_its_width():
-    wide = FeatureChannels(first=20, last=29, peak=25, peak_snr=9.0, edge_level=3.0)  # 10 channels: pad 3
-    narrow = FeatureChannels(first=50, last=50, peak=50, peak_snr=6.0, edge_level=3.0)  # 1 channel: pad 2
-    free = line_free_channels(60, [wide, narrow], flagged=[0])
-    assert list(np.flatnonzero(~free)) == [0, *range(17, 33), *range(48, 53)]
-
-
-# --------------------------------------------------------------------------- header
-
-
-def test_header_summary_channel_width_band_and_beam_sampling(tmp_path, rng):
-    path = write_cube(tmp_path / "h.fits", rng.normal(size=(10, 12, 16)), beam=(1.0, 0.8, 30.0), pixel=0.25)
-    summary = header_summary(open_cube(path))
-    assert summary.shape == (10, 12, 16)
-    assert [a.ctype for a in summary.axes] == ["RA---SIN", "DEC--SIN", "FREQ"]
-    assert [a.length for a in summary.axes] == [16, 12, 10]
-    # radio convention: dv = c df / f (Greisen et al. 2006, A&A 446, 747)
-    assert_quantity_allclose(summary.channel_width_frequency, 1 * u.MHz)
-    assert_quantity_allclose(summary.channel_width_velocity, C_KMS * 1e6 / np.median(frequency_axis_hz(10))
-                             * u.km / u.s, rtol=1e-6)
-    # 10 channels from 230.538 GHz down in 1 MHz steps: outer edges half a channel beyond
-    assert_quantity_allclose(summary.band, [230.5285, 230.5385] * u.GHz, rtol=1e-12)
-    assert_quantity_allclose(summary.pixel_size, [0.25, 0.25] * u.arcsec, rtol=1e-9)
-    assert summary.pixels_per_beam == pytest.approx(0.8 / 0.25)
-    # Gaussian beam solid angle pi bmaj bmin / (4 ln 2) (Wilson, Rohlfs & Huettemeister, Tools of Radio Astronomy)
-    assert summary.beam_area_pixels == pytest.approx(np.pi * 1.0 * 0.8 / (4 * np.log(2)) / 0.25**2, rel=1e-6)
-    assert summary.unit == u.Jy / u.beam
-    assert summary.warnings == ()
-
-
-def test_header_summary_warns_under_three_pixels_per_beam(tmp_path, rng):
-    path = write_cube(tmp_path / "coarse.fits", rng.normal(size=(5, 8, 8)), beam=(1.0, 0.6, 0.0), pixel=0.3)
-    summary = header_summary(open_cube(path))
-    assert summary.pixels_per_beam == pytest.approx(2.0)
-    assert any("undersampled" in note for note in summary.warnings)
-
-
-def test_header_summary_per_channel_beams_give_a_range(tmp_path, rng):
-    beams = [(1.0 + 0.05 * k, 0.8 + 0.01 * k, 10.0) for k in range(6)]
-    path = write_cube(tmp_path / "varying.fits", rng.normal(size=(6, 8, 8)), beams=beams)
-    summary = header_summary(open_cube(path))
-    assert_quantity_allclose(summary.beam_major_range, [1.0, 1.25] * u.arcsec, rtol=1e-6)
-    assert_quantity_allclose(summary.beam_minor_range, [0.8, 0.85] * u.arcsec, rtol=1e-6)
-
-
-def test_header_summary_without_beam_says_so(tmp_path, rng):
-    path = write_cube(tmp_path / "nobeam.fits", rng.normal(size=(5, 8, 8)), beam=None)
-    summary = header_summary(open_cube(path))
-    assert summary.beam_major is None and summary.pixels_per_beam is None
-    assert any("no beam" in note for note in summary.warnings)
-
-
-# --------------------------------------------------------------------------- the whole check
 
 
 @pytest.fixture(scope="module")
@@ -278,8 +163,7 @@ def test_json_entry_is_plain_json_with_the_issue_keys(two_line_check):
     assert cube["detections"][0]["frequency_ghz"] == pytest.approx(CO76 / (1 + Z) / 1e9, abs=0.008)
 
 
-# --------------------------------------------------------------------------- demo cubes
-
+# the speed of light in km/s (CODATA 2018, through astropy)
 C = C_KMS * u.km / u.s
 
 
@@ -354,91 +238,6 @@ def test_demo_cube_with_continuum_reports_it(demo_checks):
     assert result.continuum.peak > 0 * u.Jy / u.beam
 
 
-def test_line_free_mean_from_sums_agrees_with_noise_leftover_continuum(tmp_path, rng):
-    """Two strategies, one answer: the check's one-pass sums against noise.leftover_continuum."""
-    from cubeloupe.analysis.delivery_check import continuum_free_peaks
-    from cubeloupe.analysis.noise import leftover_continuum
-
-    data = line_cube_data((80, 20, 24), rng=rng, noise_rms=1e-3, lines=[(230.498e9, 20e-3, 3e6)],
-                          continuum=2e-3)
-    data[5, 3:6, :] = np.nan
-    data[:, 0, 0] = np.nan
-    cube = open_cube(write_cube(tmp_path / "sums.fits", data))
-    free = np.ones(80, dtype=bool)
-    free[30:50] = False
-    mean, error, significance = continuum_free_peaks(cube).line_free_mean(cube, free)
-    reference = leftover_continuum(cube, free)
-    # float32 sums about each pixel's level: agreement to 1e-5 of the noise (1 mJy/beam)
-    tiny = 1e-8 * u.Jy / u.beam
-    assert_quantity_allclose(mean, u.Quantity(reference.mean), rtol=1e-5, atol=tiny)
-    assert_quantity_allclose(error, u.Quantity(reference.error), rtol=1e-4, atol=tiny)
-    np.testing.assert_allclose(significance, reference.significance.value, rtol=1e-4, atol=1e-4)
-    assert np.isnan(mean[0, 0])
-
-
-def test_expected_noise_peaks_follows_gaussian_random_fields(rng):
-    """The warning's count of pure-noise peaks against a simulation of beam-smoothed noise."""
-    from scipy.ndimage import gaussian_filter
-
-    from cubeloupe.analysis.delivery_check import _expected_noise_peaks
-
-    fwhm, n_planes, u_level = 4.0, 1500, 4.0
-    sigma = fwhm / np.sqrt(8 * np.log(2))
-    # white noise through a unit-sum Gaussian has variance 1 / (4 pi sigma^2) (common practice)
-    planes = (gaussian_filter(rng.standard_normal((64, 64)), sigma, mode="wrap") * np.sqrt(4 * np.pi) * sigma
-              for _ in range(n_planes))
-    observed = sum(plane.max() >= u_level for plane in planes)
-    expected = _expected_noise_peaks(n_planes, 64 * 64, (fwhm, fwhm), u_level)
-    # The Euler characteristic (Worsley et al. 1996) overestimates a little on a pixel grid
-    # of 4 pixels per FWHM (peaks fall between pixels); one value per beam area would
-    # underestimate about 6-fold.
-    assert 0.55 * expected < observed < 1.1 * expected
-    naive = n_planes * 64 * 64 / (np.pi / (4 * np.log(2)) * fwhm**2) * 3.167e-5  # P(X > 4) = 3.167e-5
-    assert observed > 3 * naive
-
-
-# --------------------------------------------------------------------------- false alarms over the whole cube
-
-
-def test_false_alarm_threshold_of_independent_pixels_is_the_bonferroni_level():
-    from scipy.stats import norm
-
-    # n independent Gaussian values exceed t about n Q(t) times: Q(t) = alpha / n (Bonferroni, common practice)
-    for n_channels, n_pixels in ((250, 32 * 32), (1000, 512 * 512)):
-        expected = norm.isf(FALSE_ALARMS / (n_channels * n_pixels))
-        assert false_alarm_threshold(n_channels, n_pixels) == pytest.approx(expected, abs=1e-5)
-        # noise correlated over less than a pixel cannot have more peaks than pixels: the same level
-        assert false_alarm_threshold(n_channels, n_pixels, (0.5, 0.5)) == pytest.approx(expected, abs=1e-5)
-
-
-def test_false_alarm_threshold_rises_with_cube_size_and_falls_with_beam_size():
-    from cubeloupe.analysis.delivery_check import _expected_noise_peaks
-
-    small = false_alarm_threshold(100, 64 * 64, (4.0, 4.0))
-    big = false_alarm_threshold(1000, 512 * 512, (5.0, 4.0))
-    assert 4.0 < small < big
-    assert false_alarm_threshold(1000, 512 * 512, (10.0, 10.0)) < big < false_alarm_threshold(1000, 512 * 512)
-    # the problem being solved: a plain 5 sigma on a 1 GB cube with a 5 x 4 pixel beam expects
-    # dozens of noise detections; at the raised threshold the expected count is the one asked for
-    assert _expected_noise_peaks(1000, 512 * 512, (5.0, 4.0), 5.0) > 10
-    assert _expected_noise_peaks(1000, 512 * 512, (5.0, 4.0), big) == pytest.approx(FALSE_ALARMS, rel=1e-4)
-    assert 5.5 < big < 6.5
-
-
-@pytest.mark.parametrize("fwhm", [0.0, 3.0, 5.0])
-def test_noise_correlation_is_measured_from_the_data(tmp_path, fwhm):
-    """The lag-one smoothness estimate recovers the FWHM the noise was smoothed with."""
-    rng = np.random.default_rng(11)
-    shape = (64, 96, 96)
-    data = correlated_noise(shape, rng=rng, fwhm_pixels=fwhm) if fwhm else rng.standard_normal(shape)
-    measured = continuum_free_peaks(open_cube(write_cube(tmp_path / "n.fits", data))).noise_fwhm_pixels
-    if fwhm:
-        # the noise was made by scipy.ndimage.gaussian_filter of FWHM = 2.3548 sigma
-        np.testing.assert_allclose(measured, fwhm, rtol=0.1)
-    else:
-        assert max(measured) < 0.7  # white noise: neighbours uncorrelated
-
-
 @pytest.mark.parametrize("shape, fwhm, seed", [
     ((250, 32, 32), 0.0, 1),     # white noise under a 4-pixel header beam
     ((200, 64, 64), 0.0, 2),
@@ -462,7 +261,7 @@ def test_pure_noise_detections_match_the_expected_false_alarm_count(tmp_path):
     """End to end: asking for 3 noise peaks per cube gives about 3, counted over 12 noise cubes.
 
     The expected Euler characteristic (Worsley et al. 1996) slightly overestimates the peaks of
-    a field sampled at 4 pixels per FWHM (see the test of _expected_noise_peaks): between half
+    a field sampled at 4 pixels per FWHM (see the test of expected_noise_peaks): between half
     and 1.3 times the count asked for, with Poisson scatter (sqrt(36) = 6).
     """
     counts = []

@@ -8,8 +8,8 @@ import pytest
 
 from cubefactory import correlated_noise, line_cube_data, write_cube
 from cubeloupe.analysis import open_cube
-from cubeloupe.analysis.check_report import cube_entry, cube_section, summary_dict
-from cubeloupe.analysis.delivery_check import FALSE_ALARMS, check_cube, false_alarm_threshold
+from cubeloupe.analysis.check import cube_entry, cube_section, summary_dict
+from cubeloupe.analysis.check import FALSE_ALARMS, check_cube, false_alarm_threshold
 
 # Rest frequencies from the CDMS catalogue (Mueller et al. 2005), as in the bundled catalog:
 # CO J=7-6 806.651806 GHz and [CI] 3P2-3P1 809.34197 GHz, one 2 GHz band at z = 2.

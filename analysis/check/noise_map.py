@@ -9,7 +9,7 @@ measured noise into a smooth, well-determined map (and says whether the
 noise varies, and whether it looks primary-beam corrected);
 `noise_scaled_extremes` then finds every channel's highest and lowest value
 in units of each pixel's own noise, in one bounded-memory pass over the cube
-(`blocks.run_blocks`). `delivery_check.check_cube` uses both.
+(`blocks.run_blocks`). `check_cube` uses both.
 
 Examples
 --------
@@ -23,10 +23,14 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
+from numpy.polynomial import legendre
+from scipy.ndimage import binary_erosion
+from scipy.stats import f as f_distribution
 
-from .errors import CubeloupeError
-from .noise import MAD_TO_SIGMA
-from .row_statistics import median_rows, row_extremes, row_medians
+from ..blocks import plane_blocks, run_blocks
+from ..errors import CubeloupeError
+from ..noise import MAD_TO_SIGMA
+from ..row_statistics import median_rows, row_extremes, row_medians
 
 __all__ = ["SpatialNoise", "spatial_noise", "NoiseScaledExtremes", "noise_scaled_extremes"]
 
@@ -138,8 +142,6 @@ def _fit(design, values, weights):
 
 def _f_test(rss_low, terms_low, rss_high, terms_high, n):
     """False-alarm probability that the higher model improves on the lower one by chance (nested F test)."""
-    from scipy.stats import f as f_distribution
-
     extra, remaining = terms_high - terms_low, n - terms_high
     if extra <= 0 or remaining <= 0:
         return 1.0
@@ -225,9 +227,6 @@ def spatial_noise(pixel_noise, *, beam_pixels=None):
     >>> found.primary_beam_corrected, round(float(found.highest * beam.min()), 1)  # the injected rise
     (True, 1.0)
     """
-    from numpy.polynomial import legendre
-    from scipy.ndimage import binary_erosion
-
     values = np.asarray(u.Quantity(pixel_noise).value, dtype=float)
     if values.ndim != 2:
         raise ValueError(f"pixel_noise must be an image (ny, nx); got shape {values.shape}")
@@ -435,8 +434,6 @@ def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None,
     >>> field = spatial_noise(spectra.step_noise)  # doctest: +SKIP
     >>> extremes = noise_scaled_extremes(cube, spectra.continuum_level, field.relative)  # doctest: +SKIP
     """
-    from .blocks import plane_blocks, run_blocks
-
     n_chan, ny, nx = cube.shape
     relative = np.asarray(relative, dtype=float)
     scale = relative if scale is None else np.asarray(scale, dtype=float)

@@ -16,14 +16,14 @@ from pathlib import Path
 
 import pytest
 
-from cubeloupe.analysis import _demo_command, _demo_launcher
+from cubeloupe.analysis.commands import demo_command, launcher
 
 URL_PATTERN = re.compile(r"http://127\.0\.0\.1:(\d+)/lab/tree/(\S+)\?token=([0-9a-f]+)")
 
 
 def demo_process(workdir, *args):
     """Start ``cubeloupe demo`` (through the console script's entry point) in its own process group."""
-    command = [sys.executable, "-c", "import sys; from cubeloupe.analysis._cli import main; sys.exit(main())",
+    command = [sys.executable, "-c", "import sys; from cubeloupe.analysis.commands.cli import main; sys.exit(main())",
                "demo", "--dir", str(workdir), *args]
     return subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             start_new_session=True, cwd=workdir.parent)
@@ -68,37 +68,37 @@ def get_json(url, token):
 @pytest.mark.slow
 def test_demo_serves_the_quick_look_notebook(tmp_path):
     workdir = tmp_path / "my-demo"
-    port = _demo_launcher.free_port()
+    port = launcher.free_port()
     process = demo_process(workdir, "--no-browser", "--port", str(port))
     stdout = lines_of(process.stdout)
     token = None
     try:
         match, _ = wait_for_url(stdout, timeout=180)
         assert int(match.group(1)) == port
-        assert match.group(2) == _demo_command.QUICK_LOOK
+        assert match.group(2) == demo_command.QUICK_LOOK
         token = match.group(3)
 
         # The notebook is served from the working copy, through the contents API.
-        status, model = get_json(f"http://127.0.0.1:{port}/api/contents/{_demo_command.QUICK_LOOK}", token)
+        status, model = get_json(f"http://127.0.0.1:{port}/api/contents/{demo_command.QUICK_LOOK}", token)
         assert status == 200 and model["type"] == "notebook"
         assert any("open_cube" in "".join(cell["source"]) for cell in model["content"]["cells"])
-        assert (workdir / _demo_command.QUICK_LOOK).is_file()
+        assert (workdir / demo_command.QUICK_LOOK).is_file()
         assert (workdir / "demo_cubes" / "disk.fits").is_file()
 
         # Token on: the same request without it is refused.
         with pytest.raises(urllib.error.HTTPError) as refused:
-            urllib.request.urlopen(f"http://127.0.0.1:{port}/api/contents/{_demo_command.QUICK_LOOK}", timeout=10)
+            urllib.request.urlopen(f"http://127.0.0.1:{port}/api/contents/{demo_command.QUICK_LOOK}", timeout=10)
         assert refused.value.code == 403
 
         # Ctrl-C stops JupyterLab and the command exits cleanly.
         os.kill(process.pid, signal.SIGINT)
         assert process.wait(timeout=60) == 0
-        assert _demo_launcher.port_is_free(port)
+        assert launcher.port_is_free(port)
     finally:
         if process.poll() is None:
             os.killpg(process.pid, signal.SIGKILL)
             process.wait()
-        if token and not _demo_launcher.port_is_free(port):
+        if token and not launcher.port_is_free(port):
             # JupyterLab runs in its own process group; ask it to stop through its API.
             request = urllib.request.Request(f"http://127.0.0.1:{port}/api/shutdown", method="POST",
                                              headers={"Authorization": f"token {token}"})
@@ -122,16 +122,16 @@ def test_taken_port_gives_a_clear_message(tmp_path):
 
 
 def test_working_copy_keeps_edits_unless_reset(tmp_path):
-    report = _demo_command.prepare_workdir(tmp_path)
-    assert _demo_command.QUICK_LOOK in report.copied
-    notebook = tmp_path / _demo_command.QUICK_LOOK
+    report = demo_command.prepare_workdir(tmp_path)
+    assert demo_command.QUICK_LOOK in report.copied
+    notebook = tmp_path / demo_command.QUICK_LOOK
     notebook.write_text(notebook.read_text().replace("Quick look", "My quick look"))
-    again = _demo_command.prepare_workdir(tmp_path)
-    assert again.kept == [_demo_command.QUICK_LOOK] and not again.copied
+    again = demo_command.prepare_workdir(tmp_path)
+    assert again.kept == [demo_command.QUICK_LOOK] and not again.copied
     assert "My quick look" in notebook.read_text()
-    fresh = _demo_command.prepare_workdir(tmp_path, reset=True)
-    assert fresh.replaced == [_demo_command.QUICK_LOOK]
+    fresh = demo_command.prepare_workdir(tmp_path, reset=True)
+    assert fresh.replaced == [demo_command.QUICK_LOOK]
     assert "My quick look" not in notebook.read_text()
     # The installed notebook was only read.
-    installed = Path(str(_demo_command.resources.files("cubeloupe.example_notebooks") / _demo_command.QUICK_LOOK))
+    installed = Path(str(demo_command.resources.files("cubeloupe.example_notebooks") / demo_command.QUICK_LOOK))
     assert "My quick look" not in installed.read_text()

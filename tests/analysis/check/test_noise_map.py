@@ -18,10 +18,10 @@ from scipy.ndimage import binary_erosion
 
 from cubefactory import correlated_noise, frequency_axis_hz, primary_beam, write_cube
 from cubeloupe.analysis import open_cube
-from cubeloupe.analysis.check_report import cube_entry, cube_section, summary_dict, terminal_table
-from cubeloupe.analysis.delivery_check import FALSE_ALARMS, check_cube, continuum_free_peaks
+from cubeloupe.analysis.check import cube_entry, cube_section, summary_dict, terminal_table
+from cubeloupe.analysis.check import FALSE_ALARMS, check_cube, continuum_free_peaks
 from cubeloupe.analysis.noise import channel_statistics
-from cubeloupe.analysis.noise_map import noise_scaled_extremes, spatial_noise
+from cubeloupe.analysis.check import noise_scaled_extremes, spatial_noise
 
 RMS = 1e-3  # the flat (uncorrected) noise, Jy/beam: the noise at the pointing centre
 

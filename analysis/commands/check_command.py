@@ -6,9 +6,9 @@ Usage::
                     [--overwrite] [--quiet]
 
 Every FITS file named, and every FITS file directly inside a named folder, is
-checked with `~cubeloupe.analysis.delivery_check.check_cube`; other files in a
+checked with `~cubeloupe.analysis.check.check_cube`; other files in a
 folder are skipped and listed. The report (``DIR/report.html`` and
-``DIR/summary.json``, see `~cubeloupe.analysis.check_report`) is written at
+``DIR/summary.json``, see `cubeloupe.analysis.check`) is written at
 the end and a short table is printed. A cube that cannot be read is reported
 with its reason and never stops the others.
 
@@ -24,7 +24,17 @@ import argparse
 import os
 import sys
 import warnings
+from dataclasses import replace
 from pathlib import Path
+
+from tqdm import tqdm
+
+from ..check import (
+    check_cube, cube_entry, cube_section, failure_entry, prepare_output, summary_dict, terminal_table, write_report,
+)
+from ..cubes import open_cube
+from ..errors import CubeloupeError, CubeloupeWarning, RedshiftError
+from ..spectral import check_redshift
 
 __all__ = ["register", "run", "collect_inputs", "EXIT_OK", "EXIT_CUBE_FAILED", "EXIT_NO_REPORT",
            "EXIT_INTERRUPTED"]
@@ -123,13 +133,6 @@ def _say(text, *, stream=None):
 
 def _check_one(path, args, position):
     """Check one cube; return (entry, html_section)."""
-    from tqdm import tqdm
-
-    from . import check_report
-    from .cubes import open_cube
-    from .delivery_check import check_cube
-    from .errors import CubeloupeError
-
     bar = tqdm(total=100, desc=path.name[:40], unit="%", leave=False, disable=True if args.quiet else None,
                position=position, bar_format="{desc}: {percentage:3.0f}%|{bar}| {elapsed}")
 
@@ -145,45 +148,35 @@ def _check_one(path, args, position):
         notes = list(dict.fromkeys(str(w.message) for w in caught if _worth_reporting(w)))
         if notes:
             result = _with_extra_warnings(result, notes)
-        entry = check_report.cube_entry(result)
-        section = check_report.cube_section(entry, result)
+        entry = cube_entry(result)
+        section = cube_section(entry, result)
     except CubeloupeError as exc:
-        entry = check_report.failure_entry(path, exc)
-        section = check_report.cube_section(entry, None)
+        entry = failure_entry(path, exc)
+        section = cube_section(entry, None)
     except MemoryError:
-        entry = check_report.failure_entry(path, MemoryError(
+        entry = failure_entry(path, MemoryError(
             f"ran out of memory checking {path}; close other programs or check this cube on a larger machine"))
-        section = check_report.cube_section(entry, None)
+        section = cube_section(entry, None)
     except Exception as exc:  # a bug must not stop the other cubes of the delivery
         error = RuntimeError(f"unexpected error while checking {path}: {type(exc).__name__}: {exc}. "
                              "This is a bug in cubeloupe; please report it with the file's header")
-        entry = check_report.failure_entry(path, error)
-        section = check_report.cube_section(entry, None)
+        entry = failure_entry(path, error)
+        section = cube_section(entry, None)
     finally:
         bar.close()
     return entry, section
 
 
 def _worth_reporting(caught):
-    from .errors import CubeloupeWarning
-
     return issubclass(caught.category, CubeloupeWarning)
 
 
 def _with_extra_warnings(result, notes):
-    from dataclasses import replace
-
     return replace(result, warnings=tuple(dict.fromkeys([*result.warnings, *notes])))
 
 
 def run(args):
     """Run ``cubeloupe check`` with parsed arguments; return the exit status."""
-    from tqdm import tqdm
-
-    from . import check_report
-    from .errors import CubeloupeError, RedshiftError
-    from .spectral import check_redshift
-
     if args.z is not None:
         try:
             check_redshift(args.z, argname="--z")
@@ -196,7 +189,7 @@ def run(args):
 
     output_problem = None
     try:
-        folder = check_report.prepare_output(args.out, overwrite=args.overwrite)
+        folder = prepare_output(args.out, overwrite=args.overwrite)
     except CubeloupeError as exc:
         output_problem = str(exc)
         # Said at once so that a long run can be stopped; the cubes are still
@@ -225,12 +218,12 @@ def run(args):
         return EXIT_INTERRUPTED
     outer.close()
 
-    summary = check_report.summary_dict(entries, z=args.z, threshold=args.threshold, skipped=skipped)
+    summary = summary_dict(entries, z=args.z, threshold=args.threshold, skipped=skipped)
     if not args.quiet:
-        print(check_report.terminal_table(summary), flush=True)
+        print(terminal_table(summary), flush=True)
     if output_problem is None:
         try:
-            summary_path, report_path = check_report.write_report(folder, summary, sections,
+            summary_path, report_path = write_report(folder, summary, sections,
                                                                   overwrite=args.overwrite)
         except CubeloupeError as exc:
             output_problem = str(exc)
@@ -247,7 +240,7 @@ def run(args):
 
 
 def main(argv=None):
-    """Run ``check`` on its own (``python -m cubeloupe.analysis._check_command``)."""
+    """Run ``check`` on its own (``python -m cubeloupe.analysis.commands.check_command``)."""
     parser = argparse.ArgumentParser(prog="cubeloupe")
     register(parser.add_subparsers(dest="command", required=True))
     args = parser.parse_args(["check", *(sys.argv[1:] if argv is None else argv)])

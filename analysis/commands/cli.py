@@ -10,16 +10,14 @@ Examples
 """
 
 import argparse
-import importlib
 import sys
+
+from . import check_command, demo_command
 
 __all__ = ["SUBCOMMANDS", "build_parser", "main"]
 
-# Modules (relative to this package) that register a subcommand.
-SUBCOMMANDS = (
-    "._check_command",
-    "._demo_command",
-)
+# Modules that register a subcommand.
+SUBCOMMANDS = (check_command, demo_command)
 
 
 def build_parser():
@@ -29,8 +27,8 @@ def build_parser():
         description="Quick-look inspection of radio and (sub)millimetre spectral-line cubes.",
     )
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
-    for name in SUBCOMMANDS:
-        importlib.import_module(name, __package__).register(subparsers)
+    for module in SUBCOMMANDS:
+        module.register(subparsers)
     return parser
 
 

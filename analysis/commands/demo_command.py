@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
 
-from . import _demo_launcher
+from . import launcher
 
 __all__ = ["register", "run", "prepare_workdir", "WorkdirReport", "DEFAULT_DIR", "QUICK_LOOK"]
 
@@ -120,10 +120,10 @@ def run(args, out=None, err=None):
         print(f"cubeloupe demo: --port {port} is not a valid port; give a number from 1024 to 65535, "
               f"e.g. --port {DEFAULT_PORT}", file=err)
         return 1
-    if not _demo_launcher.port_is_free(port):
-        print(f"cubeloupe demo: port {port} on {_demo_launcher.HOST} is already in use (another "
+    if not launcher.port_is_free(port):
+        print(f"cubeloupe demo: port {port} on {launcher.HOST} is already in use (another "
               f"JupyterLab or server may be running there). Stop that server, or choose another port, "
-              f"e.g. --port {_demo_launcher.free_port()}", file=err)
+              f"e.g. --port {launcher.free_port()}", file=err)
         return 1
     try:
         report = prepare_workdir(args.dir, reset=args.reset)
@@ -143,7 +143,7 @@ def run(args, out=None, err=None):
     for name in report.kept:
         print(f"  kept your edited {name} (run with --reset to replace it with a fresh copy)", file=out)
     out.flush()
-    return _demo_launcher.run_lab(report.folder, QUICK_LOOK, port, open_browser=not args.no_browser,
+    return launcher.run_lab(report.folder, QUICK_LOOK, port, open_browser=not args.no_browser,
                                   out=out, err=err)
 
 

@@ -1,0 +1,63 @@
+"""The short table ``cubeloupe check`` prints at the end of a run: one line per input.
+
+Examples
+--------
+>>> format_or_dash(None, ".3g"), format_or_dash(0.01234, ".3g")
+('-', '0.0123')
+"""
+
+from pathlib import Path
+
+__all__ = ["terminal_table", "format_or_dash", "rms_region_tag"]
+
+
+def format_or_dash(value, spec):
+    return "-" if value is None else format(value, spec)
+
+
+def rms_region_tag(noise):
+    """A short tag saying which part of the field the rms describes, when not the whole of it."""
+    spatial = (noise or {}).get("spatial") or {}
+    if not spatial.get("varies"):
+        return ""
+    if spatial.get("primary_beam_corrected"):
+        return f" (centre; edge x{format_or_dash(spatial.get('edge_to_centre'), '.2g')})"
+    return f" (quietest part; up to x{format_or_dash(spatial.get('highest'), '.2g')})"
+
+
+def terminal_table(summary):
+    """The short table printed at the end of a run: one line per input.
+
+    Examples
+    --------
+    >>> print(terminal_table({"cubes": [], "skipped": []}))
+    cube  status  rms  flagged  continuum S/N  detections  strongest
+    """
+    header = ["cube", "status", "rms", "flagged", "continuum S/N", "detections", "strongest"]
+    rows = []
+    for cube in summary["cubes"]:
+        name = Path(cube["path"]).name
+        if not cube["ok"]:
+            rows.append([name, "FAILED", "-", "-", "-", "-", cube["error"]])
+            continue
+        rms = cube["rms"]
+        cont = cube.get("continuum") or {}
+        strongest = "-"
+        if cube["detections"]:
+            best = cube["detections"][0]
+            ident = best["candidates"][0]["name"] if best["candidates"] else "unidentified"
+            kind = " absorption" if best.get("kind") == "absorption" else ""
+            strongest = f"{format_or_dash(best['frequency_ghz'], '.4f')} GHz{kind} S/N {format_or_dash(best['snr'], '.1f')} {ident}"
+        status = "ok" if not cube.get("warnings") else f"ok, {len(cube['warnings'])} warning(s)"
+        rows.append([
+            name, status, f"{format_or_dash(rms['value'], '.3g')} {rms['unit']}{rms_region_tag(cube['noise'])}",
+            str(len(cube["noise"]["flagged_channels"])),
+            format_or_dash(cont.get("peak_significance"), ".1f"),
+            str(len(cube["detections"])), strongest,
+        ])
+    for item in summary.get("skipped", []):
+        rows.append([Path(item["path"]).name, "skipped", "-", "-", "-", "-", item["reason"]])
+    widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
+    lines = ["  ".join(str(cell).ljust(w) for cell, w in zip(row, widths)).rstrip() for row in [header, *rows]]
+    return "\n".join(lines)
+
