@@ -31,10 +31,19 @@ __all__ = [
     "ReportFolderError",
     "ClusterError",
     "CancelledComputation",
+    "ExportError",
+    "ExportContentError",
     "CubeloupeWarning",
     "MissingUnitWarning",
     "PartialRegionWarning",
     "BlankedDataWarning",
+    "WindowClippedWarning",
+    "LineFreeOverlapWarning",
+    "UndefinedErrorWarning",
+    "PolarisationError",
+    "VelocityConventionWarning",
+    "PolarisationWarning",
+    "InMemoryReadWarning",
 ]
 
 
@@ -98,6 +107,22 @@ class CancelledComputation(CubeloupeError, RuntimeError):
     """A long computation was stopped by its ``cancel`` event before it finished."""
 
 
+class ExportError(CubeloupeError, OSError):
+    """A result cannot be written: folder not writable, disk full, name too long or invalid.
+
+    ``errno`` is the operating system's error number when there is one.
+    Nothing is left behind at the target when this is raised.
+    """
+
+
+class ExportContentError(CubeloupeError, ValueError):
+    """What was asked to be written cannot be written as given: colliding or unwritable names, wrong objects."""
+
+
+class PolarisationError(CubeloupeError, ValueError):
+    """A flux is asked of a cube that holds a polarisation plane (Stokes Q, U, V), not total intensity."""
+
+
 class CubeloupeWarning(UserWarning):
     """Base class of cubeloupe's warnings; filter them with this class."""
 
@@ -112,3 +137,27 @@ class PartialRegionWarning(CubeloupeWarning):
 
 class BlankedDataWarning(CubeloupeWarning):
     """Some channels or pixels are blanked (NaN) and were left out."""
+
+
+class WindowClippedWarning(CubeloupeWarning):
+    """A window reaches beyond the band; only its part inside the band is used."""
+
+
+class LineFreeOverlapWarning(CubeloupeWarning):
+    """Line-free ranges share channels with the window; those channels are left out of the line-free set."""
+
+
+class UndefinedErrorWarning(CubeloupeWarning):
+    """An uncertainty cannot be estimated from the input (e.g. no channel to measure the noise on); it is NaN."""
+
+
+class VelocityConventionWarning(CubeloupeWarning):
+    """A velocity axis was read in an assumed convention (legacy type without VELREF) or against the header."""
+
+
+class PolarisationWarning(CubeloupeWarning):
+    """The cube holds a polarisation plane (e.g. Stokes Q), not total intensity."""
+
+
+class InMemoryReadWarning(CubeloupeWarning):
+    """The file cannot be memory-mapped (e.g. gzip-compressed); it was read into memory."""

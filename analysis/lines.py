@@ -42,9 +42,10 @@ import astropy.units as u
 import numpy as np
 
 from .baseline import BaselineFit, CachedAxis, as_spectrum, fit_baseline, line_free_mask
-from .errors import BlankedDataWarning, FitError
+from .errors import BlankedDataWarning, FitError, UndefinedErrorWarning
 from .polybaseline import check_order
-from .spectral import axis_in, channel_mask, check_convention, check_redshift, check_rest_frequency
+from .spectral import axis_in, check_convention, check_redshift, check_rest_frequency
+from .windows import line_free_outside_window, window_channels
 
 __all__ = ["LineMeasurement", "measure_line", "FWHM_PER_SIGMA"]
 
@@ -226,7 +227,8 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     Raises
     ------
     SpectralRangeError
-        Window or line-free range outside the band, or too few line-free channels.
+        Window or line-free range wholly outside the band, or too few
+        line-free channels outside the window.
     FitError
         Bad order, or a window holding only blanked channels.
     UnitMismatchError
@@ -238,6 +240,14 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     -----
     BlankedDataWarning
         Some channels in the window are NaN and were left out.
+    WindowClippedWarning
+        The window reaches beyond the band; only its part inside is used.
+    LineFreeOverlapWarning
+        Line-free channels inside the window are left out of the baseline
+        fit (`moment_maps` does the same; see `cubeloupe.analysis.windows`).
+    UndefinedErrorWarning
+        The noise cannot be measured (no valid channel outside the window and
+        no ``line_free``) or is exactly 0: the errors and S/N are NaN or 0.
 
     Examples
     --------
@@ -257,7 +267,7 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     spectrum = as_spectrum(spectrum, spectral_axis)
     frame = dict(rest_frequency=rest_frequency, z=z, convention=convention)
     axis_source = CachedAxis(spectrum)
-    in_window = channel_mask(axis_source, window, what="window", **frame)
+    in_window = window_channels(axis_source, window, **frame)
     v = axis_in(axis_source, _KMS, **frame).to_value(_KMS)
     values = u.Quantity(spectrum)
     unit = values.unit
@@ -281,7 +291,9 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     baseline = None
     if line_free is not None:
         free_mask = line_free_mask(axis_source, line_free, rest_frequency, z, convention)
-        baseline = fit_baseline(spectrum, free_mask & ~in_window, order, **frame)
+        free_mask = line_free_outside_window(free_mask, in_window, line_free=line_free, window=window,
+                                             min_channels=order + 2)
+        baseline = fit_baseline(spectrum, free_mask, order, **frame)
         signal = np.where(finite, baseline.subtracted.value, 0.0)
         rms = baseline.rms.to_value(unit)
 
@@ -291,6 +303,15 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
         signal = filled
         outside = finite & ~in_window
         rms = float(np.sqrt(np.mean(filled[outside] ** 2))) if outside.any() else np.nan
+        if not outside.any():
+            warnings.warn(
+                f"no valid channel lies outside the window {window}, so the noise cannot be measured: "
+                "rms, flux_error, centroid_error and snr are NaN (the flux, centroid and peak are measured; "
+                "the FWHM error comes from the fit's residuals). Pass line_free ranges, or a window that "
+                "leaves channels outside it",
+                UndefinedErrorWarning,
+                stacklevel=2,
+            )
 
         def propagate(weights):
             return weights
@@ -313,6 +334,13 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     width_guess = float(np.clip(width_guess, np.median(widths[used]), np.ptp(v_window) or 1.0))
     params, errors, ok, message = _fit_gaussian(v_window, window_signal, rms, [peak, center_guess, width_guess])
 
+    if rms == 0:
+        warnings.warn(
+            f"the noise outside the window {window} is exactly 0 (constant or all-zero data), so the "
+            "uncertainties are 0 and snr is NaN; check that the spectrum holds measured data",
+            UndefinedErrorWarning,
+            stacklevel=2,
+        )
     snr = flux / flux_error if flux_error > 0 else np.nan
     return LineMeasurement(
         flux=flux * unit * _KMS,

@@ -40,6 +40,7 @@ from .blocks import run_blocks, spectra_blocks
 from .errors import SpectralRangeError
 from .polybaseline import BaselineBasis, check_order
 from .spectral import axis_in, channel_mask
+from .windows import line_free_outside_window, window_channels
 
 __all__ = ["MomentMaps", "moment_maps"]
 
@@ -319,14 +320,23 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
     Raises
     ------
     SpectralRangeError
-        Window or line-free ranges outside the band, overlapping, with too
-        few channels, a bad ``clip``, or a window with no valid data.
+        Window or line-free ranges wholly outside the band, too few
+        line-free channels outside the window, a bad ``clip``, or a window
+        with no valid data.
     FitError
         ``order`` out of range.
     SpectralAxisError
         Velocities asked for without a rest frequency.
     CancelledComputation
         ``cancel`` was set.
+
+    Warns
+    -----
+    WindowClippedWarning
+        The window reaches beyond the band; only its part inside is used.
+    LineFreeOverlapWarning
+        Line-free channels inside the window are left out of the line-free
+        set (`measure_line` does the same; see `cubeloupe.analysis.windows`).
 
     Notes
     -----
@@ -352,16 +362,11 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
     clip = _check_clip(clip, line_free)
     frame = dict(rest_frequency=rest_frequency, z=z, convention=convention)
     velocity = axis_in(cube, _KMS, **frame).to_value(_KMS)
-    in_window = channel_mask(cube, window, min_channels=1, what="window", **frame)
+    in_window = window_channels(cube, window, **frame)
     if line_free is not None:
         needed = 1 if order is None else order + 2
-        free = channel_mask(cube, line_free, min_channels=needed, what="line-free ranges", **frame)
-        overlap = int((free & in_window).sum())
-        if overlap:
-            raise SpectralRangeError(
-                f"the line-free ranges {line_free} share {overlap} channel(s) with the window {window}; "
-                "line-free channels must lie outside the window"
-            )
+        free = channel_mask(cube, line_free, min_channels=1, what="line-free ranges", **frame)
+        free = line_free_outside_window(free, in_window, line_free=line_free, window=window, min_channels=needed)
     else:
         free = np.zeros_like(in_window)
         order = None

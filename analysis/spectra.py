@@ -38,6 +38,11 @@ __all__ = ["STATISTICS", "region_spectrum", "region_pixels"]
 
 STATISTICS = ("flux", "mean", "sum", "median", "max")
 
+# Regions whose bounding box is larger than this are rasterised only over
+# their overlap with the image (see `region_pixels`); 4 million pixels of
+# mask is ~30 MB of working memory in regions' to_mask.
+_FULL_MASK_PIXELS = 4_000_000
+
 
 def _region_text(region):
     """A one-line description of a region, for meta and messages."""
@@ -79,7 +84,10 @@ def region_pixels(cube, region):
     inside : ndarray of bool
         The region's pixels within ``box``.
     n_outside : int
-        Pixels of the region that fall outside the cube.
+        Pixels of the region that fall outside the cube. For a region whose
+        bounding box exceeds 4 million pixels only its overlap with the image
+        is rasterised (time and memory scale with the overlap), and this
+        count is estimated from the region's area.
 
     Raises
     ------
@@ -114,7 +122,7 @@ def region_pixels(cube, region):
         box = (slice(rows.min(), rows.max() + 1), slice(cols.min(), cols.max() + 1))
         return box, mask[box], 0
 
-    from regions import LinePixelRegion, PixelRegion, PointPixelRegion, TextPixelRegion
+    from regions import LinePixelRegion, PixCoord, PixelRegion, PointPixelRegion, TextPixelRegion
 
     if not isinstance(region, PixelRegion):
         if not hasattr(region, "to_pixel"):
@@ -134,30 +142,48 @@ def region_pixels(cube, region):
             f"{type(region).__name__} has no area; use a circle, ellipse, rectangle or polygon"
         )
     try:
-        region_mask = region.to_mask(mode="center")
-    except Exception as exc:  # e.g. degenerate polygons
-        raise RegionError(f"cannot rasterise {_region_text(region)} ({exc}); check its size") from None
-    footprint = np.asarray(region_mask.data) > 0
-    total = int(footprint.sum())
-    if total == 0:
-        raise RegionError(
-            f"{_region_text(region)} contains no pixel centre; make it larger than a pixel"
-        )
-    slices = region_mask.get_overlap_slices((ny, nx))
-    if slices is None or slices[0] is None:
+        bbox = region.bounding_box
+    except Exception as exc:  # e.g. a centre or size that is not finite
+        raise RegionError(f"cannot rasterise {_region_text(region)} ({exc}); check its centre and size") from None
+    rows = slice(int(max(bbox.iymin, 0)), int(min(bbox.iymax, ny)))
+    columns = slice(int(max(bbox.ixmin, 0)), int(min(bbox.ixmax, nx)))
+    if rows.start >= rows.stop or columns.start >= columns.stop:
         raise RegionError(
             f"{_region_text(region)} lies wholly outside {where} (image of {nx} x {ny} pixels, "
             f"x from 0 to {nx - 1}, y from 0 to {ny - 1}); move it onto the image"
         )
-    large, small = slices
-    inside = footprint[small]
+    bbox_pixels = (bbox.iymax - bbox.iymin) * (bbox.ixmax - bbox.ixmin)
+    try:
+        if bbox_pixels <= _FULL_MASK_PIXELS:
+            footprint = np.asarray(region.to_mask(mode="center").data) > 0
+            total = int(footprint.sum())
+            inside = footprint[rows.start - bbox.iymin:rows.stop - bbox.iymin,
+                               columns.start - bbox.ixmin:columns.stop - bbox.ixmin]
+        else:
+            # A region far larger than the image (a huge circle, a sky region of a
+            # degree on fine pixels): regions' to_mask would build its whole
+            # bounding box, so only the overlap with the image is tested, pixel
+            # centre by pixel centre (the same rule as mode="center").
+            y, x = np.mgrid[rows, columns]
+            inside = np.asarray(region.contains(PixCoord(x, y)), dtype=bool)
+            total = None
+    except Exception as exc:  # e.g. degenerate polygons
+        raise RegionError(f"cannot rasterise {_region_text(region)} ({exc}); check its size") from None
     n_inside = int(inside.sum())
+    if total == 0:
+        raise RegionError(
+            f"{_region_text(region)} contains no pixel centre; make it larger than a pixel"
+        )
     if n_inside == 0:
         raise RegionError(
             f"{_region_text(region)} covers no pixel of {where} (image of {nx} x {ny} pixels); "
             "move it onto the image"
         )
-    return large, inside, total - n_inside
+    if total is None:
+        # Counting every pixel centre of a huge region would cost what the
+        # overlap saves; its area (in pixels) gives the count to within its perimeter.
+        total = max(int(round(float(region.area))), n_inside + 1)
+    return (rows, columns), inside, total - n_inside
 
 
 def _cube_mask_is_finite_only(cube):

@@ -253,7 +253,7 @@ def test_progress_and_cancel(centred_path):
     "kwargs, error, match",
     [
         (dict(window=(500, 600) * KMS), SpectralRangeError, "selects no channel"),
-        (dict(window=WINDOW, line_free=[(-100, -40)] * KMS), SpectralRangeError, "outside the window"),
+        (dict(window=WINDOW, line_free=[(-50, -40)] * KMS), SpectralRangeError, "outside the window"),
         (dict(window=WINDOW, line_free=LINE_FREE, order=7), FitError, "order 7"),
         (dict(window=WINDOW, line_free=[(-70.5, -69.5)] * KMS, order=1), SpectralRangeError, "at least 3"),
         (dict(window=WINDOW, clip=3), SpectralRangeError, "clip needs line_free"),
