@@ -33,6 +33,7 @@ __all__ = [
     "CancelledComputation",
     "ExportError",
     "ExportContentError",
+    "ParameterError",
     "CubeloupeWarning",
     "MissingUnitWarning",
     "PartialRegionWarning",
@@ -121,6 +122,10 @@ class ExportContentError(CubeloupeError, ValueError):
 
 class PolarisationError(CubeloupeError, ValueError):
     """A flux is asked of a cube that holds a polarisation plane (Stokes Q, U, V), not total intensity."""
+
+
+class ParameterError(CubeloupeError, ValueError):
+    """An option or parameter is not a finite number in its allowed range (e.g. a detection threshold of inf)."""
 
 
 class CubeloupeWarning(UserWarning):

@@ -34,11 +34,11 @@ from .first_pass import ContinuumFreePeaks, continuum_free_peaks, noise_fwhm_fro
 from .noise_map import NoiseScaledExtremes, SpatialNoise, noise_scaled_extremes, spatial_noise
 from .channel_noise import noise_grid
 from .identification import IDENTIFY_TOLERANCE
-from .cube_check import check_cube
+from .cube_check import MAX_THRESHOLD, check_cube, check_detection_options
 from .report_json import SCHEMA, cube_entry, failure_entry, summary_dict
 from .report_files import REPORT_NAME, SUMMARY_NAME, prepare_output, write_report
 from .report_html import cube_section
-from .report_terminal import terminal_table
+from .report_terminal import terminal_safe, terminal_table
 
 __all__ = [
     "FLAG_SIGMAS",
@@ -59,6 +59,8 @@ __all__ = [
     "StrongestFeature",
     "CubeCheck",
     "check_cube",
+    "check_detection_options",
+    "MAX_THRESHOLD",
     "ContinuumFreePeaks",
     "continuum_free_peaks",
     "header_summary",
@@ -83,4 +85,5 @@ __all__ = [
     "cube_section",
     "write_report",
     "terminal_table",
+    "terminal_safe",
 ]

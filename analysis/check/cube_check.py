@@ -100,10 +100,14 @@ Examples
 """
 
 
+import numbers
 import os
 from dataclasses import replace
 
+import numpy as np
+
 from ..cubes import open_cube, source_name
+from ..errors import ParameterError
 from ..spectral import check_redshift
 from .channel_noise import channel_noise
 from .continuum import leftover_continuum_summary
@@ -116,7 +120,10 @@ from .noise_map import spatial_noise
 from .results import CubeCheck
 from .strongest import strongest_feature
 
-__all__ = ["check_cube"]
+__all__ = ["check_cube", "check_detection_options", "MAX_THRESHOLD"]
+
+# The largest detection threshold accepted, in sigma (see `check_detection_options`).
+MAX_THRESHOLD = 1000.0
 
 
 def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALARMS, client=None, progress=None,
@@ -199,12 +206,33 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
                      warnings=tuple(dict.fromkeys(notes)))
 
 
+def check_detection_options(threshold, false_alarms=FALSE_ALARMS, *, argname="threshold"):
+    """Refuse a detection threshold or false-alarm count that is not a finite number in range (#14).
+
+    ``threshold`` must lie in (0, `MAX_THRESHOLD`] sigma: beyond that no
+    noise or line statistic means anything and the tail probabilities
+    underflow. ``argname`` names the option in the message (``"--threshold"``
+    for the command).
+
+    Examples
+    --------
+    >>> check_detection_options(5.0)
+    >>> check_detection_options(float("inf"), argname="--threshold")
+    Traceback (most recent call last):
+    ...
+    cubeloupe.analysis.errors.ParameterError: --threshold must be a finite number of sigma in (0, 1000]; got inf
+    """
+    if isinstance(threshold, bool) or not isinstance(threshold, numbers.Real) or not np.isfinite(threshold) \
+            or not 0 < threshold <= MAX_THRESHOLD:
+        raise ParameterError(f"{argname} must be a finite number of sigma in (0, {MAX_THRESHOLD:g}]; got {threshold!r}")
+    if false_alarms is not None and (isinstance(false_alarms, bool) or not isinstance(false_alarms, numbers.Real)
+                                     or not np.isfinite(false_alarms) or not false_alarms > 0):
+        raise ParameterError(f"false_alarms must be a finite positive expected count of noise peaks, or None; "
+                             f"got {false_alarms!r}")
+
+
 def _check_options(threshold, false_alarms):
-    if not threshold > 0:
-        raise ValueError(f"threshold must be a positive number of sigma; got {threshold!r}")
-    if false_alarms is not None and not false_alarms > 0:
-        raise ValueError(f"false_alarms must be a positive expected count of noise peaks, or None; "
-                         f"got {false_alarms!r}")
+    check_detection_options(threshold, false_alarms)
 
 
 def _stage(progress, start, stop):

@@ -53,24 +53,36 @@ def prepare_output(folder, *, overwrite=False):
     >>> prepare_output(tmp_path / "out")  # doctest: +SKIP
     PosixPath('.../out')
     """
-    folder = Path(os.fspath(folder)).expanduser()
+    text = os.fspath(folder)
+    if "\x00" in str(text):
+        raise ReportFolderError(f"the output folder {text!r} contains a NUL character; choose another with --out")
+    # Resolved first, so that "a/../../x" does not create an empty "a" on the way (#14).
+    folder = Path(text).expanduser().resolve()
     if folder.exists() and not folder.is_dir():
         raise ReportFolderError(f"the output path {folder} is a file, not a folder; pass a folder with --out")
+    created = [parent for parent in [folder, *folder.parents] if not parent.exists()]
     try:
         folder.mkdir(parents=True, exist_ok=True)
+        # os.access misses read-only mounts and ACLs; creating a file is the real test.
+        try:
+            with tempfile.NamedTemporaryFile(dir=folder, prefix=".cubeloupe-write-test-"):
+                pass
+        except OSError as exc:
+            raise ReportFolderError(
+                f"cannot write to the output folder {folder} ({exc.strerror or exc}); "
+                "choose a writable folder with --out"
+            ) from None
     except OSError as exc:
+        for made in created:  # deepest first: leave no empty folder behind
+            try:
+                made.rmdir()
+            except OSError:
+                pass
+        if isinstance(exc, ReportFolderError):
+            raise
         raise ReportFolderError(
             f"cannot create the output folder {folder} ({exc.strerror or exc}); "
             "choose another folder with --out"
-        ) from None
-    # os.access misses read-only mounts and ACLs; creating a file is the real test.
-    try:
-        with tempfile.NamedTemporaryFile(dir=folder, prefix=".cubeloupe-write-test-"):
-            pass
-    except OSError as exc:
-        raise ReportFolderError(
-            f"cannot write to the output folder {folder} ({exc.strerror or exc}); "
-            "choose a writable folder with --out"
         ) from None
     if not overwrite:
         existing = [name for name in (SUMMARY_NAME, REPORT_NAME) if (folder / name).exists()]
@@ -84,13 +96,15 @@ def prepare_output(folder, *, overwrite=False):
 
 
 def write_atomically(path, text, overwrite):
-    if path.exists() and not overwrite:
+    if os.path.lexists(path) and not overwrite:  # a dangling symbolic link is not followed either
         raise OutputExistsError(f"{path} exists and is kept; pass --overwrite to replace it")
     handle = tempfile.NamedTemporaryFile("w", dir=path.parent, prefix=f".{path.name}.", delete=False,
                                          encoding="utf-8")
     try:
         with handle:
             handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())  # on disk before the rename makes it the report
         # NamedTemporaryFile makes private (0600) files; a report gets the usual permissions
         umask = os.umask(0)
         os.umask(umask)

@@ -8,7 +8,25 @@ Examples
 
 from pathlib import Path
 
-__all__ = ["terminal_table", "format_or_dash", "rms_region_tag"]
+__all__ = ["terminal_table", "terminal_safe", "format_or_dash", "rms_region_tag"]
+
+
+def terminal_safe(text):
+    r"""``text`` with every control character (escape codes, line breaks, tabs) shown as a Python escape.
+
+    File names may hold any byte but ``/``; printed raw, an escape sequence in
+    one can recolour, move or clear the user's terminal, and a line break can
+    forge a line of the table (#14).
+
+    Examples
+    --------
+    >>> terminal_safe("cube\x1b[2J\n.fits")
+    'cube\\x1b[2J\\n.fits'
+    """
+    text = str(text)
+    if text.isprintable():
+        return text
+    return "".join(ch if ch.isprintable() else ascii(ch)[1:-1] for ch in text)
 
 
 def format_or_dash(value, spec):
@@ -57,6 +75,7 @@ def terminal_table(summary):
         ])
     for item in summary.get("skipped", []):
         rows.append([Path(item["path"]).name, "skipped", "-", "-", "-", "-", item["reason"]])
+    rows = [[terminal_safe(cell) for cell in row] for row in rows]
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     lines = ["  ".join(str(cell).ljust(w) for cell, w in zip(row, widths)).rstrip() for row in [header, *rows]]
     return "\n".join(lines)

@@ -16,7 +16,9 @@ Exit status: 0 when every cube was read and checked and the report written;
 1 when one or more cubes could not be read or checked (the report is still
 written and says why); 2 when the report could not be written (the folder is
 not writable, or a report is already there and ``--overwrite`` was not
-given), when nothing was given to check, or on a usage error; 130 when
+given: that refusal comes before any cube is read), when nothing was given
+to check, on a usage error, or on an option out of range (``--threshold``
+must be finite, in (0, 1000]; ``--z`` as `check_redshift` allows); 130 when
 stopped with Ctrl-C (nothing is written then).
 """
 
@@ -30,10 +32,11 @@ from pathlib import Path
 from tqdm import tqdm
 
 from ..check import (
-    check_cube, cube_entry, cube_section, failure_entry, prepare_output, summary_dict, terminal_table, write_report,
+    check_cube, check_detection_options, cube_entry, cube_section, failure_entry, prepare_output, summary_dict,
+    terminal_safe, terminal_table, write_report,
 )
 from ..cubes import open_cube
-from ..errors import CubeloupeError, CubeloupeWarning, RedshiftError
+from ..errors import CubeloupeError, CubeloupeWarning, OutputExistsError, ParameterError, RedshiftError
 from ..spectral import check_redshift
 
 __all__ = ["register", "run", "collect_inputs", "EXIT_OK", "EXIT_CUBE_FAILED", "EXIT_NO_REPORT",
@@ -128,12 +131,13 @@ def collect_inputs(paths):
 
 
 def _say(text, *, stream=None):
-    print(text, file=stream or sys.stderr, flush=True)
+    print(terminal_safe(text), file=stream or sys.stderr, flush=True)  # file names may hold escape codes (#14)
 
 
 def _check_one(path, args, position):
     """Check one cube; return (entry, html_section)."""
-    bar = tqdm(total=100, desc=path.name[:40], unit="%", leave=False, disable=True if args.quiet else None,
+    bar = tqdm(total=100, desc=terminal_safe(path.name)[:40], unit="%", leave=False,
+               disable=True if args.quiet else None,
                position=position, bar_format="{desc}: {percentage:3.0f}%|{bar}| {elapsed}")
 
     def progress(fraction):
@@ -148,6 +152,8 @@ def _check_one(path, args, position):
         notes = list(dict.fromkeys(str(w.message) for w in caught if _worth_reporting(w)))
         if notes:
             result = _with_extra_warnings(result, notes)
+        # Listed under the name it was given: a symbolic link keeps its own name, not its target's (#14).
+        result = replace(result, path=str(path.absolute()))
         entry = cube_entry(result)
         section = cube_section(entry, result)
     except CubeloupeError as exc:
@@ -183,13 +189,20 @@ def run(args):
         except RedshiftError as exc:
             _say(f"cubeloupe check: {exc}")
             return EXIT_NO_REPORT
-    if not args.threshold > 0:
-        _say(f"cubeloupe check: --threshold must be a positive number of sigma; got {args.threshold}")
+    try:
+        check_detection_options(args.threshold, argname="--threshold")
+    except ParameterError as exc:
+        _say(f"cubeloupe check: {exc}")
         return EXIT_NO_REPORT
 
     output_problem = None
+    folder_existed = os.path.lexists(Path(args.out).expanduser()) if "\x00" not in args.out else True
     try:
         folder = prepare_output(args.out, overwrite=args.overwrite)
+    except OutputExistsError as exc:
+        # Decided before any cube is read: the run could not write its report (#14).
+        _say(f"cubeloupe check: no report will be written: {exc}; nothing was checked")
+        return EXIT_NO_REPORT
     except CubeloupeError as exc:
         output_problem = str(exc)
         # Said at once so that a long run can be stopped; the cubes are still
@@ -211,16 +224,21 @@ def run(args):
             entries.append(entry)
             sections.append(section)
             if not entry["ok"]:
-                tqdm.write(f"cubeloupe check: {path}: {entry['error']}", file=sys.stderr)
+                tqdm.write(terminal_safe(f"cubeloupe check: {path}: {entry['error']}"), file=sys.stderr)
     except KeyboardInterrupt:
         outer.close()
+        if output_problem is None and not folder_existed:
+            try:
+                folder.rmdir()  # made for this run and still empty
+            except OSError:
+                pass
         _say(f"cubeloupe check: interrupted after {len(entries)} of {len(cubes)} cube(s); no report written")
         return EXIT_INTERRUPTED
     outer.close()
 
     summary = summary_dict(entries, z=args.z, threshold=args.threshold, skipped=skipped)
     if not args.quiet:
-        print(terminal_table(summary), flush=True)
+        print(terminal_table(summary), flush=True)  # terminal_table escapes control characters itself
     if output_problem is None:
         try:
             summary_path, report_path = write_report(folder, summary, sections,
@@ -229,7 +247,7 @@ def run(args):
             output_problem = str(exc)
         else:
             if not args.quiet:
-                print(f"report: {report_path}\nsummary: {summary_path}", flush=True)
+                print(f"report: {terminal_safe(report_path)}\nsummary: {terminal_safe(summary_path)}", flush=True)
     failed = [e for e in entries if not e["ok"]]
     for entry in failed:
         _say(f"cubeloupe check: not checked: {entry['path']}: {entry['error']}")
