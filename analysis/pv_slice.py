@@ -306,6 +306,9 @@ def pv_slice(cube, path, width=1, *, window=None, rest_frequency=None, z=0.0, co
 
     centre, across, offsets = _sample_path(vertices, scale, step)
     points = centre[:, None, :] + across_offsets[None, :, None] * across[:, None, :]
+    # Rounding in the degree-arcsec-pixel conversions leaves samples 1e-12 off a pixel centre; snap them, so
+    # that a blank neighbour with a vanishing weight does not blank a sample that sits on a pixel.
+    points = np.round(points, 9)
     x, y = points[..., 0].ravel(), points[..., 1].ravel()
     ny, nx = cube.shape[1:]
     matrix, pixels, inside = _bilinear_weights(x, y, (ny, nx))
