@@ -55,6 +55,8 @@ from .display import (
     display_image, display_limits, marker_positions, sky_position, stretched, to_observed_frequency,
 )
 from .prefetch import prefetch_channels
+from .sky_axes import SkyAxes, nice_ticks, sky_axes
+from .sky_look import beam_anchor, centred_limits, data_bounds
 from .export import check_output_path, write_map, write_maps, write_spectra, write_table
 
 __all__ = [
@@ -80,5 +82,6 @@ __all__ = [
     "display_axis", "display_image", "display_limits", "marker_positions", "sky_position", "stretched",
     "to_observed_frequency",
     "prefetch_channels",
+    "SkyAxes", "nice_ticks", "sky_axes", "beam_anchor", "centred_limits", "data_bounds",
     "check_output_path", "write_map", "write_maps", "write_spectra", "write_table",
 ]
