@@ -6,10 +6,11 @@ this package imports ipywidgets, bqplot or traitlets.
 
 from .errors import *  # noqa: F401,F403
 from .errors import __all__ as _errors_all
-from .units import brightness_unit, is_per_beam, is_temperature
+from .units import brightness_unit, is_brightness, is_per_beam, is_temperature
 from .spectral import (
     CONVENTIONS,
     SPEED_OF_LIGHT,
+    cube_rest_frequency,
     Z_MAX,
     axis_in,
     channel_mask,
@@ -20,13 +21,19 @@ from .spectral import (
     observed_frequency,
     velocity,
 )
-from .cubes import cube_source, open_cube, source_name
+from .cubes import check_total_intensity, cube_source, cube_stokes, open_cube, source_name
+from .spectral_header import SpectralReading, read_spectral_axis
 from .demo import DEMO_CUBES, demo_names, demo_path, demo_truth
-from .catalog import find_line, lines_in_band, load_catalog, read_line_list, select_lines
+from .catalog import (LINE_FAMILIES, collapse_hyperfine, find_line, lines_in_band, load_catalog, read_line_list,
+                      select_lines)
+from .partition import (partition_energy_zero, partition_function, partition_function_source,
+                        partition_function_species)
+from .recombination import recombination_frequency, recombination_lines
 from .band_lines import BandLines
 from .redshift_solver import RedshiftCandidate, redshift_candidates
 from .luminosity import (
-    DEFAULT_COSMOLOGY, CosmologySummary, LineLuminosity, get_cosmology, line_luminosity, redshift_summary,
+    DEFAULT_COSMOLOGY, HUBBLE_FLOW_MIN_VELOCITY, CosmologySummary, LineLuminosity, get_cosmology,
+    in_hubble_flow, line_luminosity, redshift_summary,
 )
 from .beams import (
     beam_area_pixels,
@@ -42,8 +49,10 @@ from .polybaseline import MAX_ORDER, check_order
 from .baseline import BaselineFit, fit_baseline, line_free_mask
 from .lines import LineMeasurement, measure_line
 from .line_table import MEASUREMENT_COLUMNS, measurement_table
+from .first_view import FirstView, first_view
 from .velocity_reference import VelocityReference, catalog_line_at, choose_velocity_reference
 from .moments import MomentMaps, moment_maps
+from .moment_mask import DEFAULT_SIGNIFICANCE, SignificantMoments, significant_moments
 from .noise import (
     ChannelStatistics, ContinuumMap, PeakSpectrum, channel_noise, channel_statistics, cube_noise,
     leftover_continuum, peak_spectrum,
@@ -51,7 +60,7 @@ from .noise import (
 from .check import CubeCheck, check_cube
 
 from .display import (
-    AXIS_KINDS, STRETCHES, beam_outline, channel_at, contour_paths, cube_rest_frequency, display_axis,
+    AXIS_KINDS, STRETCHES, beam_outline, channel_at, contour_paths, display_axis,
     display_image, display_limits, marker_positions, sky_position, stretched, to_observed_frequency,
 )
 from .prefetch import prefetch_channels
@@ -61,20 +70,23 @@ from .export import check_output_path, write_map, write_maps, write_spectra, wri
 
 __all__ = [
     *_errors_all,
-    "brightness_unit", "is_per_beam", "is_temperature",
+    "brightness_unit", "is_brightness", "is_per_beam", "is_temperature",
     "CONVENTIONS", "SPEED_OF_LIGHT", "Z_MAX", "axis_in", "channel_mask", "check_redshift", "check_rest_frequency",
     "frequency_axis", "frequency_from_velocity", "observed_frequency", "velocity",
-    "open_cube", "cube_source", "source_name",
+    "open_cube", "cube_source", "source_name", "cube_stokes", "check_total_intensity",
+    "SpectralReading", "read_spectral_axis",
     "DEMO_CUBES", "demo_names", "demo_path", "demo_truth",
     "find_line", "lines_in_band", "load_catalog", "read_line_list", "select_lines",
+    "LINE_FAMILIES", "collapse_hyperfine", "partition_energy_zero", "partition_function",
+    "partition_function_source", "partition_function_species", "recombination_frequency", "recombination_lines",
     "BandLines", "RedshiftCandidate", "redshift_candidates",
-    "DEFAULT_COSMOLOGY", "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
+    "DEFAULT_COSMOLOGY", "HUBBLE_FLOW_MIN_VELOCITY", "in_hubble_flow", "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
     "beam_area_pixels", "map_beam", "convert_brightness", "cube_beam", "jy_per_beam_to_kelvin",
     "kelvin_to_jy_per_beam", "pixel_solid_angle",
     "region_spectrum", "MAX_ORDER", "check_order", "BaselineFit", "fit_baseline", "line_free_mask",
     "LineMeasurement", "measure_line", "MEASUREMENT_COLUMNS", "measurement_table",
-    "VelocityReference", "catalog_line_at", "choose_velocity_reference",
-    "MomentMaps", "moment_maps",
+    "VelocityReference", "catalog_line_at", "choose_velocity_reference", "FirstView", "first_view",
+    "MomentMaps", "moment_maps", "DEFAULT_SIGNIFICANCE", "SignificantMoments", "significant_moments",
     "ChannelStatistics", "ContinuumMap", "PeakSpectrum", "channel_noise", "channel_statistics", "cube_noise",
     "leftover_continuum", "peak_spectrum",
     "CubeCheck", "check_cube",

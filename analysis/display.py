@@ -37,7 +37,6 @@ from astropy.visualization import (
 
 from .errors import SpectralAxisError, UnitMismatchError
 from .spectral import (
-    _header_rest_frequency,
     axis_in,
     check_convention,
     check_redshift,
@@ -60,7 +59,6 @@ __all__ = [
     "sky_position",
     "to_observed_frequency",
     "channel_at",
-    "cube_rest_frequency",
 ]
 
 # The three x axes a spectrum can be drawn against, with their display unit.
@@ -444,29 +442,3 @@ def channel_at(frequencies, frequency):
     if value < axis.min() - half or value > axis.max() + half:
         return None
     return int(np.argmin(np.abs(axis - value)))
-
-
-def cube_rest_frequency(obj):
-    """The rest frequency a cube or spectrum carries in its header (RESTFRQ, or RESTWAV), or None.
-
-    This is the rest frequency `spectral.axis_in` measures velocities from when
-    no ``rest_frequency`` is given; views use it for velocities until a line is
-    chosen.
-
-    Parameters
-    ----------
-    obj : SpectralCube, OneDSpectrum or anything with a ``wcs``
-
-    Returns
-    -------
-    Quantity [GHz] or None
-
-    Examples
-    --------
-    >>> from astropy.wcs import WCS
-    >>> w = WCS(naxis=1); w.wcs.ctype = ["FREQ"]; w.wcs.restfrq = 230.538e9
-    >>> class Holder: wcs = w
-    >>> cube_rest_frequency(Holder())
-    <Quantity 230.538 GHz>
-    """
-    return _header_rest_frequency(obj)

@@ -39,12 +39,19 @@ __all__ = [
     "get_cosmology",
     "line_luminosity",
     "redshift_summary",
+    "HUBBLE_FLOW_MIN_VELOCITY",
+    "in_hubble_flow",
 ]
 
 # A current Planck parameter set (Planck Collaboration 2020, A&A 641, A6).
 DEFAULT_COSMOLOGY = _cosmology.Planck18
 
 L_PRIME_UNIT = u.K * u.km / u.s * u.pc**2
+
+#: Below this recession velocity cz, peculiar and Galactic motions (a few hundred km/s) are a large part of
+#: the velocity, so a distance from the Hubble flow means little (common practice); Galactic sources
+#: (cz of tens of km/s) are far below it.
+HUBBLE_FLOW_MIN_VELOCITY = 1000 * u.km / u.s
 _KMS = u.km / u.s
 
 
@@ -118,6 +125,20 @@ class CosmologySummary:
 
 def _cosmology_name(cosmo):
     return cosmo.name or repr(cosmo)
+
+
+def in_hubble_flow(z):
+    """Whether a source at redshift ``z`` recedes fast enough for a cosmological distance to mean something.
+
+    True when c z >= `HUBBLE_FLOW_MIN_VELOCITY` (1000 km/s).
+
+    Examples
+    --------
+    >>> in_hubble_flow(1e-4), in_hubble_flow(0.005)
+    (False, True)
+    """
+    z = check_redshift(z)
+    return bool(z * c.to(u.km / u.s) >= HUBBLE_FLOW_MIN_VELOCITY)
 
 
 def redshift_summary(z, cosmology=None):

@@ -42,6 +42,7 @@ __all__ = [
     "frequency_axis",
     "axis_in",
     "channel_mask",
+    "cube_rest_frequency",
 ]
 
 CONVENTIONS = {
@@ -348,3 +349,29 @@ def channel_mask(obj, ranges, *, rest_frequency=None, z=0.0, convention="radio",
             "Widen the ranges or lower the polynomial order"
         )
     return mask
+
+
+def cube_rest_frequency(obj):
+    """The rest frequency a cube or spectrum carries in its header (RESTFRQ, or RESTWAV), or None.
+
+    This is the rest frequency `axis_in` measures velocities from when
+    no ``rest_frequency`` is given; views use it for velocities until a line is
+    chosen.
+
+    Parameters
+    ----------
+    obj : SpectralCube, OneDSpectrum or anything with a ``wcs``
+
+    Returns
+    -------
+    Quantity [GHz] or None
+
+    Examples
+    --------
+    >>> from astropy.wcs import WCS
+    >>> w = WCS(naxis=1); w.wcs.ctype = ["FREQ"]; w.wcs.restfrq = 230.538e9
+    >>> class Holder: wcs = w
+    >>> cube_rest_frequency(Holder())
+    <Quantity 230.538 GHz>
+    """
+    return _header_rest_frequency(obj)

@@ -22,8 +22,7 @@ import astropy.units as u
 import numpy as np
 
 from .catalog import lines_in_band, load_catalog
-from .display import cube_rest_frequency
-from .spectral import check_redshift
+from .spectral import check_redshift, cube_rest_frequency
 
 __all__ = ["VelocityReference", "choose_velocity_reference", "catalog_line_at"]
 

@@ -20,11 +20,12 @@ from bqplot import Lines, Scatter
 from traitlets import Enum, Float, Instance, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis import (
-    SPEED_OF_LIGHT, Z_MAX, BandLines, CubeloupeError, check_redshift, load_catalog, marker_positions,
-    redshift_candidates, redshift_summary,
+    HUBBLE_FLOW_MIN_VELOCITY, SPEED_OF_LIGHT, BandLines, CubeloupeError, check_redshift, in_hubble_flow,
+    load_catalog, marker_positions, redshift_candidates, redshift_summary,
 )
 
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
+from .status import StatusLine
 
 __all__ = ["LineOverlay"]
 
@@ -35,6 +36,18 @@ ISOMER_CHOICES = ("any", "ortho", "para", "none")
 
 # Height of the marker heads as a fraction of the spectrum plot (the stems rise from the bottom to it).
 HEAD_HEIGHT = 0.88
+
+
+def _format_z(z):
+    """The redshift as the input box shows it: enough digits to tell lines apart, no float noise."""
+    return f"{z:.6g}"
+
+
+def _short_source(provenance):
+    """A catalog value's source for a tooltip: the publication, without the paths of public copies."""
+    clauses = [part.split(", copy in")[0].split(" copy in ")[0].strip() for part in provenance.split(";")]
+    text = "; ".join(c for c in clauses if c)
+    return text if len(text) <= 140 else text[:137] + "..."
 
 _HOVER_HINT = ("<span style='color:#829ab1;font-size:90%'>Point at a line marker on the spectrum for its "
                "details; click its head to make it velocity zero.</span>")
@@ -80,7 +93,7 @@ class LineOverlay(w.VBox):
 
     def __init__(self, spectrum_view, band, catalog=None, status=None, **kwargs):
         self.view = spectrum_view
-        self.status = status or spectrum_view.status
+        self.status = status or StatusLine()
         self.band = (float(min(band)), float(max(band)))
         self.catalog = load_catalog() if catalog is None else catalog
         self.marker_x = np.array([])
@@ -109,10 +122,11 @@ class LineOverlay(w.VBox):
         self.heads.on_hover(self._on_hover)
         self.heads.observe(self._on_head_selected, names=["selected"])
 
-        self.z_input = w.BoundedFloatText(value=0.0, min=-0.99, max=Z_MAX, step=0.0001, description="Redshift z",
-                                          tooltip="Redshift of the source: catalog lines are drawn where they "
-                                                  "would be seen at this z (type a value and press Enter)",
-                                          style={"description_width": "initial"}, layout=w.Layout(width="190px"))
+        self.z_input = w.Text(value=_format_z(0.0), description="Redshift z", continuous_update=False,
+                              tooltip="Redshift of the source: catalog lines are drawn where they would be seen "
+                                      "at this z (type a value and press Enter). Typing a redshift sets the "
+                                      "velocity shift back to 0",
+                              style={"description_width": "initial"}, layout=w.Layout(width="190px"))
         self.z_input.add_class("cubeloupe-z-input")
         self.z_input.observe(self._on_z_input, names="value")
         # A fine step, so that a velocity set from code (e.g. 1462.3 km/s) is not snapped by the browser.
@@ -156,13 +170,13 @@ class LineOverlay(w.VBox):
                                            layout=w.Layout(width="250px"))
         self.reference_choice.add_class("cubeloupe-reference-line")
         w.link((self.reference_choice, "value"), (self, "reference_line"))
-        self.candidate_choice = w.Dropdown(options=[], description="Fits",
-                                           tooltip="Redshifts that explain the peaks you marked, best first",
-                                           style={"description_width": "initial"},
-                                           layout=w.Layout(width="100%"))
+        self.candidate_choice = w.Select(options=[], rows=3, description="Candidate z",
+                                         tooltip="Redshifts that explain the peaks you marked, best first",
+                                         style={"description_width": "initial"},
+                                         layout=w.Layout(width="100%"))
         self.candidate_choice.add_class("cubeloupe-z-candidates")
         self.use_candidate = w.Button(description="Use this z", icon="check", layout=w.Layout(width="104px"),
-                                      tooltip="Set the redshift to the chosen fit")
+                                      tooltip="Set the redshift to the chosen candidate")
         self.use_candidate.add_class("cubeloupe-use-candidate")
         self.use_candidate.on_click(lambda _: self.use_candidate_index(self.candidate_choice.index or 0))
         self.summary = w.HTML(value="&nbsp;", layout=w.Layout(min_height="20px"))
@@ -188,9 +202,10 @@ class LineOverlay(w.VBox):
         ]
         for group in self.groups[:2]:
             group.layout.margin = "0 16px 4px 0"
-        self.groups[2].layout.flex = "1 1 200px"
+        self.groups[2].layout.flex = "1 1 380px"
+        self.groups[2].layout.max_width = "560px"
         self._children = [w.HBox(self.groups, layout=w.Layout(flex_flow="row wrap", align_items="flex-start")),
-                          self._hover]
+                          self._hover, self.status]
 
     def _default_reference_label(self):
         rest = getattr(self.view, "file_rest_frequency", None)
@@ -221,16 +236,28 @@ class LineOverlay(w.VBox):
             raise TraitError(str(exc)) from None
 
     def _on_z_input(self, change):
+        if change.new == _format_z(self.z):
+            return
         try:
-            self.z = change.new
-        except TraitError as exc:
-            self.status.error(f"Could not use that redshift: {exc}")
-            self.z_input.value = self.z
+            z = float(str(change.new).strip())
+            self.z = z
+        except (TraitError, ValueError) as exc:
+            self.status.error(f"Could not use that redshift ({change.new!r}): {exc}")
+            self.z_input.value = _format_z(self.z)
+            return
+        if self.velocity_offset != 0:
+            # The typed z places the lines now; a shift kept from before would move them off their lines.
+            shift = self.velocity_offset
+            self.velocity_offset = 0.0
+            self.status.info(f"Velocity shift set back to 0 (it was {shift:+.1f} km/s): the redshift now "
+                             "places the lines.")
+        else:
+            self.status.clear()
 
     @observe("z")
     def _on_z(self, change):
-        if self.z_input.value != self.z:
-            self.z_input.value = self.z
+        if self.z_input.value != _format_z(self.z):
+            self.z_input.value = _format_z(self.z)
         self._refresh_lines()
         # Distances and ages need cosmological integrals: a background worker works them out once z
         # has stopped changing, so the markers move at once and a slider drag is not slowed down.
@@ -339,13 +366,22 @@ class LineOverlay(w.VBox):
     def _describe(self, index):
         row = self.lines[int(index)]
         rest = u.Quantity(row["rest_frequency"], u.GHz).to_value(u.GHz)
-        observed = u.Quantity(row["observed_frequency"], u.GHz).to_value(u.GHz)
+        drawn = float(self.drawn_frequencies()[int(index)])
         e_up = u.Quantity(row["E_up"], u.K).to_value(u.K)
+        shift = f" shifted by {self.velocity_offset:+.1f} km/s" if self.velocity_offset else ""
         text = (f"<b>{html.escape(str(row['name']))}</b><br>rest frequency {rest:.6f} GHz"
-                f"<br>observed at z = {self.z:g}: {observed:.6f} GHz"
+                f"<br>drawn at {drawn:.6f} GHz (z = {_format_z(self.z)}{shift})"
                 f"<br>E_up/k {e_up:.1f} K<br>spin isomer {html.escape(str(row['spin_isomer']))}"
-                f"<br>source: {html.escape(str(row['provenance']))}")
+                f"<br>source: {html.escape(_short_source(str(row['provenance'])))}")
         return text
+
+    def drawn_frequencies(self):
+        """Observed frequencies (GHz) at which the markers are drawn: rest / (1 + z), moved by the velocity shift."""
+        if self.lines is None or not len(self.lines):
+            return np.array([])
+        return marker_positions(u.Quantity(self.lines["rest_frequency"], u.GHz), "observed frequency", z=self.z,
+                                velocity_offset=self.velocity_offset * u.km / u.s,
+                                convention=self.view.convention).to_value(u.GHz)
 
     def _on_hover(self, mark, content):
         data = content.get("data") or content.get("point") or {}
@@ -425,7 +461,7 @@ class LineOverlay(w.VBox):
                                  "check the peak positions or relax the filters.")
             else:
                 self.status.info(f"{len(found)} redshift(s) fit the {len(peaks)} marked peaks; pick one under "
-                                 "'Fits' and press 'Use this z'.")
+                                 "'Candidate z' and press 'Use this z'.")
 
     @observe("candidates")
     def _show_candidates(self, change):
@@ -449,6 +485,12 @@ class LineOverlay(w.VBox):
         """Luminosity distance, angular scale and age at ``z`` (run by the summary worker)."""
         if z <= 0:
             self.summary.value = "&nbsp;"
+            return
+        if not in_hubble_flow(z):
+            self.summary.value = (
+                f"<span style='color:#52606d;font-size:90%'>cz = {z * SPEED_OF_LIGHT.value:.1f} km/s: a local "
+                f"velocity (below {HUBBLE_FLOW_MIN_VELOCITY.value:.0f} km/s peculiar and Galactic motions "
+                "dominate), so no cosmological distance is given.</span>")
             return
         try:
             s = redshift_summary(z)

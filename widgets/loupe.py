@@ -28,13 +28,17 @@ from cubeloupe.analysis import (
     channel_at, choose_velocity_reference, cube_beam, cube_rest_frequency, display_axis, load_catalog,
     measurement_table, open_cube, region_spectrum, source_name, write_maps, write_spectra,
 )
+from cubeloupe.analysis import first_view as find_first_view
 
 from ._look import section
 from .channel_bar import ChannelBar
+from .code_view import CodeView  # sessions and replay (#19)
 from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable, rows_from_table
 from .moment_panel import MomentPanel
 from .region_list import RegionList
+from .replay import to_code  # sessions and replay (#19)
+from .session import SessionState, current_moment_settings, read_session, write_session  # (#19)
 from .sky_view import SkyView
 from .snapshot import render_sky, render_spectrum
 from .spectrum_view import SpectrumView
@@ -52,6 +56,10 @@ _TITLE = ("<div style='display:flex;align-items:baseline;gap:10px;border-bottom:
 def _source_name(cube, index):
     path = source_name(cube, default="")
     return os.path.basename(path) if path else f"window {index}"
+
+
+# Name of the aperture the suite places by itself on the brightest emission when it opens.
+FIRST_REGION_NAME = "peak (auto)"
 
 
 class Loupe(w.VBox):
@@ -74,6 +82,10 @@ class Loupe(w.VBox):
     convention : {'radio', 'optical', 'relativistic'}
     velocity_offset : Quantity [velocity] or float (km/s), optional
         Systemic velocity that shifts the catalog line markers (e.g. a nearby galaxy's).
+    first_view : bool
+        Open on the channel with the brightest emission, with a beam-sized
+        aperture on its brightest place as a first region (see
+        `cubeloupe.analysis.first_view`); False opens on channel 0 with no region.
     client : distributed.Client or 'default', optional
         Send the moment-map computation to a dask.distributed cluster (see
         `cubeloupe.analysis.moment_maps`); by default it runs in this kernel,
@@ -117,7 +129,7 @@ class Loupe(w.VBox):
     cosmology = Unicode("Planck18", help="astropy cosmology used for luminosities")
 
     def __init__(self, cubes, z=0.0, catalog=None, rest_frequency=None, convention="radio", velocity_offset=None,
-                 client=None, **kwargs):
+                 client=None, first_view=True, **kwargs):
         self.status = StatusLine()
         self.client = client
         self.cubes = []
@@ -156,6 +168,8 @@ class Loupe(w.VBox):
         self._describe_reference()
         self._show_header()
         self._measure_enabled = True
+        if first_view:
+            self.show_first_view()
         if problem:
             self.status.error(problem)
 
@@ -172,7 +186,9 @@ class Loupe(w.VBox):
         self.sky_view = SkyView(self.cubes, status=self.status)
         self.channel_bar = ChannelBar(self.cubes[0])
         self.region_list = RegionList(self.cubes[0].wcs)
-        self.spectrum_view = SpectrumView(status=self.status)
+        # Each part reports in a status line of its own, next to its controls; the suite's line
+        # (under the channel bar) is for the sky, regions and opening.
+        self.spectrum_view = SpectrumView(status=StatusLine())
         restfrq = cube_rest_frequency(self.cubes[0])
         self.spectrum_view.file_rest_frequency = None if restfrq is None else float(restfrq.to_value(u.GHz))
         self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
@@ -182,8 +198,8 @@ class Loupe(w.VBox):
         covered = sum(f.max() - f.min() for f in self._frequencies)
         self.spectrum_span = "window" if covered < 0.5 * (band[1] - band[0]) else "all"
         self._show_span()
-        self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=self.status)
-        self.moment_panel = MomentPanel(self._moment_inputs, status=self.status)
+        self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=StatusLine())
+        self.moment_panel = MomentPanel(self._moment_inputs, status=StatusLine())
         self.measurement_table = MeasurementTable()
         self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
                                                  for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
@@ -226,32 +242,43 @@ class Loupe(w.VBox):
             button.add_class("cubeloupe-export-" + label.split()[0].lower())
             button.on_click(lambda _, action=action, label=label: self._export_clicked(action, label))
             buttons.append(button)
-        return w.VBox([w.HBox([self.export_name, self.export_overwrite]), w.HBox(buttons)])
+        self.export_status = StatusLine()
+        return w.VBox([w.HBox([self.export_name, self.export_overwrite], layout=w.Layout(flex_flow="row wrap")),
+                       w.HBox(buttons, layout=w.Layout(flex_flow="row wrap")), self.export_status])
 
     def _export_clicked(self, action, label):
-        with self.status.guard(f"writing {label}"):
+        with self.export_status.guard(f"writing {label}"):
             written = action(self.export_name.value.strip() or "cubeloupe", self.export_overwrite.value)
             written = written if isinstance(written, list) else [written]
-            self.status.info("Written: " + ", ".join(str(p) for p in written))
+            self.export_status.info("Written: " + ", ".join(str(p) for p in written))
 
     def _layout(self, title):
         tabs = w.Tab(children=[self.moment_panel, self.measurement_table, self.export_box])
         for i, name in enumerate(("Moment maps", "Measurements", "Export")):
             tabs.set_title(i, name)
         tabs.add_class("cubeloupe-actions")
+        # Sessions and replay (#19): the script of the current state in its own tab, written while shown.
+        self.code_view = CodeView(self)
+        tabs.children = (*tabs.children, self.code_view)
+        tabs.set_title(len(tabs.children) - 1, "Code")
+        w.dlink((tabs, "selected_index"), (self.code_view, "showing"),
+                transform=lambda index, last=len(tabs.children) - 1: index == last)
         self.spectrum_view.figure.layout.height = "330px"
         sky = section("Sky", [self.window_choice, self.sky_view], width=f"{SKY_COLUMN}px",
                       css_class="cubeloupe-sky-section")
         spectrum_parts = ([self.span_choice] if len(self.cubes) > 1 else []) + [self.spectrum_view,
+                                                                                self.spectrum_view.status,
                                                                                 self.region_list]
         spectrum = section("Spectrum", spectrum_parts,
                            hint="drag on it to mark ranges; pick what a click does below",
                            css_class="cubeloupe-spectrum-section")
         # The sky column keeps its width; the spectrum column takes what is left (not its content's width).
         sky.layout.flex = f"0 0 {SKY_COLUMN}px"
-        spectrum.layout.flex = "1 1 0%"
-        spectrum.layout.min_width = "540px"
-        views = w.HBox([sky, spectrum], layout=w.Layout(align_items="flex-start", grid_gap="16px"))
+        # Below ~900 px of room the spectrum column goes under the sky column instead of being squeezed.
+        spectrum.layout.flex = "1 1 420px"
+        spectrum.layout.min_width = "420px"
+        views = w.HBox([sky, spectrum], layout=w.Layout(align_items="flex-start", grid_gap="16px",
+                                                        flex_flow="row wrap"))
         channel = self.channel_bar
         channel.layout.margin = "6px 0 2px 0"
         channel.layout.border_top = "1px solid #d9e2ec"
@@ -457,9 +484,14 @@ class Loupe(w.VBox):
         self._measure()
 
     def _on_moments(self, change):
+        # New maps (not the same maps re-masked at another significance) are shown at once.
+        fresh = self.moments is not self.moment_panel.result
         self.moments = self.moment_panel.result
         if self.moment_panel.window_index == self.window:
             self.sky_view.maps = dict(self.moment_panel.maps)
+            if fresh and "moment 0" in self.sky_view.maps:
+                # New maps: show them where the eye is, on the sky.
+                self.sky_source = "moment 0"
 
     # ------------------------------------------------------------- actions
     @property
@@ -479,6 +511,18 @@ class Loupe(w.VBox):
     def remove_region(self, name):
         with self.status.guard(f"removing region {name}"):
             self.region_list.remove(name)
+
+    def show_first_view(self):
+        """Go to the channel with the brightest emission and add a beam-sized aperture there (if no region yet)."""
+        with self.status.guard("finding the emission to show first"):
+            view = find_first_view(self.cube)
+            self.channel = view.channel
+            if not self.regions:
+                self.region_list.add(view.region, name=FIRST_REGION_NAME)
+            self.status.info(f"Opened on {view.description}. The region '{FIRST_REGION_NAME}' was placed "
+                             "automatically; remove it or draw your own.")
+            return view
+        return None
 
     def go_to_frequency(self, frequency):
         """Show the channel nearest to observed ``frequency`` (GHz), switching window if needed."""
@@ -569,3 +613,37 @@ class Loupe(w.VBox):
         if view == "spectrum":
             return render_spectrum(self.spectrum_view, path, overwrite=overwrite)
         raise CubeloupeError(f"unknown view {view!r}; choose 'sky' or 'spectrum'")
+
+    # ------------------------------------------------ sessions and replay (#19)
+    @observe("moments")
+    def _record_moment_settings(self, change):
+        # The settings the maps were made with, for sessions and scripts (they may change afterwards).
+        self.moments_made_with = current_moment_settings(self) if change.new is not None else None
+
+    def to_code(self):
+        """The current state as a script that re-makes it (see `cubeloupe.widgets.replay.to_code`)."""
+        return to_code(self)
+
+    def save_session(self, path, overwrite=False):
+        """Write the session (cubes, regions, ranges, settings, view) to a JSON file; returns its path.
+
+        Cube paths are stored relative to the session file where possible. Refuses to replace an
+        existing file unless ``overwrite``.
+        """
+        return write_session(self, path, overwrite=overwrite)
+
+    @classmethod
+    def from_session(cls, path, **kwargs):
+        """A new suite in the state saved in session file ``path`` (checked before anything is built).
+
+        Raises
+        ------
+        SessionError, CubeFileError
+            The file is not a session, of an unknown version, has a bad field, or names a missing cube.
+        """
+        state = read_session(path)
+        return state.restore(cls, folder=os.path.dirname(os.path.abspath(path)), **kwargs)
+
+    def session_state(self):
+        """The state as a `SessionState` (cube paths absolute)."""
+        return SessionState.from_loupe(self)

@@ -10,7 +10,7 @@ import threading
 import ipywidgets as w
 from traitlets import Bool, Dict, Float, Instance, Int, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis import CancelledComputation, moment_maps
+from cubeloupe.analysis import DEFAULT_SIGNIFICANCE, CancelledComputation, moment_maps, significant_moments
 
 from ._look import format_optional_number, parse_optional_number, row
 from .status import StatusLine
@@ -39,6 +39,8 @@ class MomentPanel(w.VBox):
 
     clip = Float(None, allow_none=True, help="For moments 1 and 2, keep only channels brighter than this many "
                                              "times the pixel's rms (None: no clipping)")
+    significance = Float(DEFAULT_SIGNIFICANCE, help="Moments 1 and 2 are shown where moment 0 exceeds this many "
+                                                    "times its own error")
     running = Bool(False, help="True while the maps are being computed (read-only)")
     progress = Float(0.0, help="Fraction of the maps computed, 0 to 1 (read-only)")
     result = Instance(object, allow_none=True, help="The last MomentMaps result (read-only)")
@@ -69,14 +71,25 @@ class MomentPanel(w.VBox):
                                     tooltip="Stop the moment-map computation")
         self.stop_button.add_class("cubeloupe-moment-stop")
         self.stop_button.on_click(lambda _: self.stop())
+        self.significance_input = w.BoundedFloatText(
+            value=DEFAULT_SIGNIFICANCE, min=0.1, max=1000, step=0.5, description="Moments 1, 2 where moment 0 >",
+            tooltip="Velocity and dispersion are shown only where the integrated intensity exceeds this many times "
+                    "its own 1-sigma error; elsewhere they would be noise",
+            style={"description_width": "initial"}, layout=w.Layout(width="270px"))
+        self.significance_input.add_class("cubeloupe-significance")
+        w.link((self.significance_input, "value"), (self, "significance"))
+        self.significance_unit = w.HTML("× its error")
         self.bar = w.FloatProgress(value=0.0, min=0.0, max=1.0, layout=w.Layout(width="200px"))
         self.bar.add_class("cubeloupe-moment-progress")
         self.bar_label = w.HTML()
         hint = w.HTML("<span style='color:#829ab1;font-size:90%'>Uses the line window and line-free ranges marked "
-                      "on the spectrum, and the baseline order; the maps appear under <i>Show</i> on the sky "
-                      "view.</span>")
-        super().__init__(children=[row([self.clip_input, self.start_button, self.stop_button, self.bar,
-                                        self.bar_label], flex_flow="row wrap"), hint], **kwargs)
+                      "on the spectrum, and the baseline order; the sky view shows moment 0 when they are ready "
+                      "(the others under <i>Show</i>).</span>")
+        super().__init__(children=[row([self.start_button, self.stop_button, self.bar, self.bar_label],
+                                       flex_flow="row wrap"),
+                                   row([self.clip_input, self.significance_input, self.significance_unit],
+                                       flex_flow="row wrap"),
+                                   hint, self.status], **kwargs)
         self.add_class("cubeloupe-moment-panel")
 
     @validate("clip")
@@ -139,20 +152,33 @@ class MomentPanel(w.VBox):
                 outcome = "stopped"
                 self.status.info("Moment maps stopped; nothing was changed.")
             else:
-                maps = {label: getattr(result, key) for key, label in MAP_NAMES.items()
-                        if getattr(result, key, None) is not None}
                 with self.hold_trait_notifications():
                     self.window_index = window_index
                     self.result = result
-                    self.maps = maps
+                    self.maps = self._shown_maps(result)
                 outcome = "done"
-                self.status.info(f"Moment maps ready ({result.n_channels} channels in the window); choose one "
-                                 "under 'Show' on the sky view.")
+                self.status.info(f"Moment maps ready ({result.n_channels} channels in the window): the sky shows "
+                                 f"moment 0; moments 1 and 2 where moment 0 > {self.significance:g} × its error.")
         with self.hold_trait_notifications():
             self.running = False
             self.state = outcome
         self.bar_label.value = {"done": "done", "stopped": "stopped", "failed": "failed"}[outcome]
         self.start_button.disabled, self.stop_button.disabled = False, True
+
+    def _shown_maps(self, result):
+        """The maps by display name, moments 1 and 2 kept where moment 0 is significant."""
+        maps = {label: getattr(result, key) for key, label in MAP_NAMES.items()
+                if getattr(result, key, None) is not None}
+        if result.m0_error is not None:
+            kept = significant_moments(result, self.significance)
+            maps[MAP_NAMES["m1"]], maps[MAP_NAMES["m2"]] = kept.m1, kept.m2
+        return maps
+
+    @observe("significance")
+    def _on_significance(self, change):
+        if self.result is not None:
+            with self.status.guard("masking moments 1 and 2"):
+                self.maps = self._shown_maps(self.result)
 
     def stop(self):
         """Ask the running computation to stop (it stops at the next block)."""

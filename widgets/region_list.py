@@ -95,7 +95,7 @@ class RegionList(w.VBox):
         title = w.HTML(section_title("Regions", "spectra above are drawn in each region's colour"),
                        layout=w.Layout(flex="1 1 auto"))
         super().__init__(children=[w.HBox([title, self.reshape_toggle, self.clear_button],
-                                          layout=w.Layout(align_items="flex-end")),
+                                          layout=w.Layout(align_items="flex-end", flex_flow="row wrap")),
                                    self._empty, self._rows], **kwargs)
         self.add_class("cubeloupe-region-list")
         self._render()

@@ -125,7 +125,7 @@ class SpectrumView(w.VBox):
         self.zero_mark = Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale},
                                colors=[BASELINE_COLOR], stroke_width=0.8)
         self.figure = Figure(marks=[], axes=[self.x_axis, self.y_axis],
-                             fig_margin={"top": 30, "bottom": 45, "left": 65, "right": 15},
+                             fig_margin={"top": 30, "bottom": 45, "left": 65, "right": 32},
                              layout=w.Layout(width="100%", height="360px"))
         self.figure.add_class("cubeloupe-spectrum-figure")
         # The pointer is followed in every mode. bqplot lays its interaction layer over the marks,
@@ -148,17 +148,17 @@ class SpectrumView(w.VBox):
                                       style={"description_width": "initial"}, layout=w.Layout(width="196px"))
         self.axis_choice.add_class("cubeloupe-axis-choice")
         w.link((self.axis_choice, "value"), (self, "axis_kind"))
-        self.convention_choice = w.Dropdown(options=list(CONVENTIONS), description="Doppler",
+        self.convention_choice = w.Dropdown(options=list(CONVENTIONS), description="Velocity convention",
                                             tooltip="Velocity convention: radio, optical or relativistic "
                                                     "(used by the velocity axis, the channel readout and "
                                                     "the measurements)",
                                             style={"description_width": "initial"},
-                                            layout=w.Layout(width="146px"))
+                                            layout=w.Layout(width="226px"))
         self.convention_choice.add_class("cubeloupe-convention")
         w.link((self.convention_choice, "value"), (self, "convention"))
         self.mode_buttons = w.ToggleButtons(options=[(label, key) for key, (label, _) in CLICK_MODES.items()],
                                             tooltips=[tip for _, tip in CLICK_MODES.values()],
-                                            style=w.ToggleButtonsStyle(button_width="112px"))
+                                            style=w.ToggleButtonsStyle(button_width="98px"))
         self.mode_buttons.add_class("cubeloupe-spectrum-mode")
         w.link((self.mode_buttons, "value"), (self, "mode"))
         self.order_choice = w.BoundedIntText(value=1, min=0, max=MAX_ORDER, description="Baseline order",

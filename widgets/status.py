@@ -52,6 +52,7 @@ class StatusLine(w.HBox):
     max_history = Int(50, help="How many past messages are kept in history")
 
     def __init__(self, **kwargs):
+        self._cause = None
         self._text = w.HTML(value="", layout=w.Layout(flex="1 1 auto"))
         self._text.add_class("cubeloupe-status-text")
         self._clear = w.Button(icon="times", layout=w.Layout(width="32px"),
@@ -63,8 +64,15 @@ class StatusLine(w.HBox):
         self._render()
 
     # ------------------------------------------------------------------ API
-    def show(self, message, level="info"):
-        """Show ``message`` at ``level`` and add it to the history."""
+    def show(self, message, level="info", cause=None):
+        """Show ``message`` at ``level`` and add it to the history (once, if it repeats the last one).
+
+        ``cause`` names the action the message is about; a later success of the
+        same action clears it (see `guard`).
+        """
+        self._cause = cause
+        if str(message) == self.message and level == self.level:
+            return
         entry = {"time": time.strftime("%H:%M:%S"), "level": level, "message": str(message)}
         self.history = (self.history + [entry])[-self.max_history:]
         with self.hold_trait_notifications():
@@ -82,6 +90,7 @@ class StatusLine(w.HBox):
 
     def clear(self):
         """Hide the current message (the history is kept)."""
+        self._cause = None
         self.message = ""
         self.level = "info"
 
@@ -95,6 +104,8 @@ class StatusLine(w.HBox):
             What the user was doing, in plain words ("drawing a region").
         success : str, optional
             Shown when the action finishes without error or warning.
+            Otherwise a success clears an error or warning that the same
+            action left earlier: once its cause is gone, so is the message.
 
         Examples
         --------
@@ -109,21 +120,24 @@ class StatusLine(w.HBox):
             try:
                 yield self
             except CubeloupeError as exc:
-                self.error(f"Could not finish {action}: {exc}")
+                self.show(f"Could not finish {action}: {exc}", "error", cause=action)
                 return
             except Exception as exc:  # noqa: BLE001 - the point is that nothing escapes to the notebook
                 log.exception("unexpected problem while %s", action)
-                self.error(f"Unexpected problem while {action}: {type(exc).__name__}: {exc}. "
-                           "The details are in the 'cubeloupe.widgets' log; please report it.")
+                self.show(f"Unexpected problem while {action}: {type(exc).__name__}: {exc}. "
+                          "The details are in the 'cubeloupe.widgets' log; please report it.", "error",
+                          cause=action)
                 return
         ours = [str(item.message) for item in caught if issubclass(item.category, CubeloupeWarning)]
         for item in caught:
             if not issubclass(item.category, CubeloupeWarning):
                 log.debug("warning while %s: %s", action, item.message)
         if ours:
-            self.warn(f"Note while {action}: " + " | ".join(dict.fromkeys(ours)))
+            self.show(f"Note while {action}: " + " | ".join(dict.fromkeys(ours)), "warning", cause=action)
         elif success:
             self.info(success)
+        elif self._cause == action and self.message:
+            self.clear()
 
     # -------------------------------------------------------------- display
     @observe("message", "level")

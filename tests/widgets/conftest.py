@@ -22,4 +22,4 @@ def line_cube(cube_path, rng):
 
 @pytest.fixture
 def loupe(line_cube):
-    return Loupe(line_cube)
+    return Loupe(line_cube, first_view=False)

@@ -48,14 +48,14 @@ def test_exports_write_and_refuse_to_overwrite(loupe, tmp_path):
     before = (tmp_path / "m_moments.fits").exists()
     loupe.export_box.children[1].children[0].click()
     loupe.export_box.children[1].children[0].click()
-    assert not before and loupe.status.level == "error" and "exists" in loupe.status.message
+    assert not before and loupe.export_status.level == "error" and "exists" in loupe.export_status.message
 
 
 # ----------------------------------------------------------------------------- several windows
 def test_two_windows_share_regions_and_one_axis(cube_path, rng):
     low = cube_path(rng.normal(size=(20, 24, 28)), crval3=230.0e9, cdelt3=-2e6)
     high = cube_path(rng.normal(size=(30, 12, 14)), crval3=232.0e9, cdelt3=1e6, pixel=0.5)
-    loupe = Loupe([low, high])
+    loupe = Loupe([low, high], first_view=False)
     shape = CirclePixelRegion(PixCoord(14.1, 12.1), radius=4)
     loupe.add_region(shape, name="core")
     # the region is kept on the sky: the second window (other grid) gets the same sky shape
@@ -75,7 +75,7 @@ def test_two_windows_share_regions_and_one_axis(cube_path, rng):
 def test_windows_far_apart_are_spanned_one_at_a_time(cube_path, rng):
     low = cube_path(rng.normal(size=(20, 24, 28)), crval3=230.0e9, cdelt3=-2e6)    # 229.962-230.000 GHz
     high = cube_path(rng.normal(size=(30, 12, 14)), crval3=232.0e9, cdelt3=1e6)    # 232.000-232.029 GHz
-    loupe = Loupe([low, high], rest_frequency=229.98 * u.GHz)
+    loupe = Loupe([low, high], rest_frequency=229.98 * u.GHz, first_view=False)
     # 0.07 GHz of data over a 2.07 GHz span: each window would be a sliver, so one is shown at a time
     assert loupe.spectrum_span == "window"
     x0, x1 = loupe.spectrum_view.x_range
@@ -95,6 +95,6 @@ def test_windows_far_apart_are_spanned_one_at_a_time(cube_path, rng):
 def test_unreadable_cube_shows_a_message(tmp_path):
     bad = tmp_path / "not-a-cube.fits"
     bad.write_text("hello")
-    loupe = Loupe(bad)
+    loupe = Loupe(bad, first_view=False)
     assert loupe.status.level == "error" and "not-a-cube.fits" in loupe.status.message
     assert loupe.cubes == []

@@ -26,12 +26,28 @@ def test_moment_action_equals_moment_maps(loupe, line_cube):
                            rest_frequency=230.538 * u.GHz, clip=3.0)
     for key in ("m0", "m1", "m2", "m0_error"):
         assert_allclose(getattr(loupe.moments, key).value, getattr(expected, key).value, rtol=1e-6, equal_nan=True)
+    # the maps are shown as soon as they are ready, moment 0 first
+    assert loupe.sky_source == "moment 0"
     loupe.sky_source = "moment 1"
-    image, _ = display_image(expected.m1.value, loupe.sky_view.max_display_size)
+    # moment 1 is shown where moment 0 exceeds 3 times its error (common practice)
+    shown = expected.m1.value.copy()
+    shown[~(expected.m0.value > 3 * expected.m0_error.value)] = float("nan")
+    assert 0 < (expected.m0.value > 3 * expected.m0_error.value).sum() < shown.size
+    image, _ = display_image(shown, loupe.sky_view.max_display_size)
     lo, hi = display_limits(image)
     assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi), rtol=1e-5, equal_nan=True)
     loupe.sky_view.contour_source = "moment 0"
     assert len(loupe.sky_view.contour_mark.x) > 0
+    # a stricter cut blanks more of moment 1
+    before = int(np_count_finite(loupe.sky_view.maps["moment 1"]))
+    loupe.moment_panel.significance = 10
+    assert int(np_count_finite(loupe.sky_view.maps["moment 1"])) < before
+
+
+def np_count_finite(projection):
+    import numpy as np
+
+    return np.isfinite(projection.value).sum()
 
 
 @pytest.mark.slow
@@ -40,11 +56,11 @@ def test_moments_on_a_cluster_equal_those_in_the_kernel(line_cube):
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
-        on_cluster = Loupe(line_cube, client=client)
+        on_cluster = Loupe(line_cube, client=client, first_view=False)
         mark_ranges(on_cluster)
         on_cluster.make_moments(wait=True)
-        assert on_cluster.moment_panel.state == "done", on_cluster.status.message
-    in_kernel = Loupe(line_cube)
+        assert on_cluster.moment_panel.state == "done", on_cluster.moment_panel.status.message
+    in_kernel = Loupe(line_cube, first_view=False)
     mark_ranges(in_kernel)
     in_kernel.make_moments(wait=True)
     for key in ("m0", "m1", "m2", "m0_error"):
@@ -53,16 +69,16 @@ def test_moments_on_a_cluster_equal_those_in_the_kernel(line_cube):
 
 
 def test_a_missing_cluster_is_reported_in_the_status_line(line_cube):
-    loupe = Loupe(line_cube, client="default")
+    loupe = Loupe(line_cube, client="default", first_view=False)
     mark_ranges(loupe)
     loupe.make_moments(wait=True)
     assert loupe.moment_panel.state == "failed"
-    assert loupe.status.level == "error" and "no dask.distributed Client is running" in loupe.status.message
+    assert loupe.moment_panel.status.level == "error" and "no dask.distributed Client is running" in loupe.moment_panel.status.message
 
 
 def test_moments_without_a_window_say_so(loupe):
     assert loupe.make_moments(wait=True) is None
-    assert loupe.status.level == "error" and "line window" in loupe.status.message
+    assert loupe.moment_panel.status.level == "error" and "line window" in loupe.moment_panel.status.message
     assert not loupe.moment_panel.running
 
 

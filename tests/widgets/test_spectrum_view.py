@@ -101,14 +101,14 @@ def test_velocity_axis_uses_the_chosen_convention(loupe):
 def test_velocity_with_no_line_chosen_is_from_the_cubes_restfrq(cube_path, rng):
     """No rest frequency given: velocities are from the header's RESTFRQ, at any z, and the readout says so."""
     # cubefactory: RESTFRQ 220.0 GHz here, channel 0 at 230.538 GHz
-    loupe = Loupe(cube_path(rng.normal(size=(20, 6, 6)), crval3=230.538e9, restfrq=220.0e9), z=0.0)
+    loupe = Loupe(cube_path(rng.normal(size=(20, 6, 6)), crval3=230.538e9, restfrq=220.0e9), z=0.0, first_view=False)
     assert loupe.rest_frequency == pytest.approx(220.0)
     assert loupe.reference_line == "" and "RESTFRQ 220 GHz" in loupe.velocity_reference
     # radio velocity v = c (f0 - f) / f0 (Greisen et al. 2006, A&A 446, 747), as axis_in with no line gives
     v = 299792.458 * (220.0 - 230.538) / 220.0
     assert f"{v:+.1f} km/s (radio, RESTFRQ 220 GHz)" in loupe.channel_bar.readout
     loupe.axis_kind = "velocity"
-    assert loupe.status.level != "warning", loupe.status.message
+    assert loupe.spectrum_view.status.level != "warning", loupe.spectrum_view.status.message
     assert loupe.spectrum_view.x_of_frequency(230.538)[0] == pytest.approx(v, rel=1e-9)
     # a redshift keeps RESTFRQ as the line's rest frequency: zero velocity moves to 220 / (1 + z)
     loupe.z = 0.1
@@ -118,7 +118,7 @@ def test_velocity_with_no_line_chosen_is_from_the_cubes_restfrq(cube_path, rng):
 
 def test_chosen_line_names_the_velocity_zero_and_none_goes_back_to_restfrq(loupe):
     # CO J=2-1 at 230.538 GHz (CDMS, from memory) equals this cube's RESTFRQ; naming it on the call finds it
-    named = Loupe(loupe.cubes[0], rest_frequency=230.538 * u.GHz)
+    named = Loupe(loupe.cubes[0], rest_frequency=230.538 * u.GHz, first_view=False)
     assert named.reference_line == "CO J=2-1"
     assert "(radio, CO J=2-1)" in named.channel_bar.readout
     loupe.line_overlay.reference_choice.value = "CO J=2-1"
