@@ -67,6 +67,13 @@ from .prefetch import prefetch_channels
 from .sky_axes import SkyAxes, nice_ticks, sky_axes
 from .sky_look import beam_anchor, centred_limits, data_bounds
 from .export import check_output_path, write_map, write_maps, write_spectra, write_table
+from .smoothing import (
+    SMOOTHING_KERNELS, channel_correlation, correlated_error, noise_correlation_factor, smooth_spectrum,
+    smoothing_kernel, with_channel_correlation,
+)
+from .gaussian_fits import GaussianComponent, GaussianFit, HyperfineSolution, fit_gaussians, hyperfine_lines
+from .pv_slice import PVSlice, pv_slice
+from .channel_maps import ChannelPanels, channel_maps, channel_panels
 
 __all__ = [
     *_errors_all,
@@ -96,4 +103,8 @@ __all__ = [
     "prefetch_channels",
     "SkyAxes", "nice_ticks", "sky_axes", "beam_anchor", "centred_limits", "data_bounds",
     "check_output_path", "write_map", "write_maps", "write_spectra", "write_table",
+    "SMOOTHING_KERNELS", "channel_correlation", "correlated_error", "noise_correlation_factor", "smooth_spectrum",
+    "smoothing_kernel", "with_channel_correlation",
+    "GaussianComponent", "GaussianFit", "HyperfineSolution", "fit_gaussians", "hyperfine_lines",
+    "PVSlice", "pv_slice", "ChannelPanels", "channel_maps", "channel_panels",
 ]

@@ -63,7 +63,7 @@ from .errors import FitError, SpectralAxisError, UnitMismatchError
 from .spectral import axis_in
 
 __all__ = [
-    "KERNELS",
+    "SMOOTHING_KERNELS",
     "smooth_spectrum",
     "smoothing_kernel",
     "channel_correlation",
@@ -72,7 +72,7 @@ __all__ = [
     "correlated_error",
 ]
 
-KERNELS = ("hanning", "boxcar", "gaussian", "rebin")
+SMOOTHING_KERNELS = ("hanning", "boxcar", "gaussian", "rebin")
 
 # FWHM of a Gaussian in units of its standard deviation, 2 sqrt(2 ln 2).
 _FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))
@@ -111,7 +111,7 @@ def _gaussian_fwhm_channels(spectrum, fwhm, rest_frequency, z, convention):
 
 
 def smoothing_kernel(kind, width):
-    """The normalised weights of a smoothing kernel of `KERNELS` (``width`` in channels).
+    """The normalised weights of a smoothing kernel of `SMOOTHING_KERNELS` (``width`` in channels).
 
     Examples
     --------
@@ -129,7 +129,7 @@ def smoothing_kernel(kind, width):
     elif kind == "gaussian":
         weights = np.asarray(Gaussian1DKernel(float(width) / _FWHM_PER_SIGMA).array, dtype=float)
     else:
-        raise FitError(f"unknown smoothing kernel {kind!r}; choose from {list(KERNELS)}")
+        raise FitError(f"unknown smoothing kernel {kind!r}; choose from {list(SMOOTHING_KERNELS)}")
     return weights / weights.sum()
 
 
@@ -260,8 +260,8 @@ def smooth_spectrum(spectrum, kernel, width, *, rest_frequency=None, z=0.0, conv
     >>> smooth_spectrum(spec, "rebin", 4).shape
     (25,)
     """
-    if kernel not in KERNELS:
-        raise FitError(f"unknown smoothing kernel {kernel!r}; choose from {list(KERNELS)}")
+    if kernel not in SMOOTHING_KERNELS:
+        raise FitError(f"unknown smoothing kernel {kernel!r}; choose from {list(SMOOTHING_KERNELS)}")
     spectrum = as_spectrum(spectrum, spectral_axis)
     values = u.Quantity(spectrum)
     y = np.asarray(values.value, dtype=float)
