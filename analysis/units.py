@@ -17,9 +17,9 @@ import warnings
 
 import astropy.units as u
 
-from .errors import MissingUnitWarning
+from .errors import MissingUnitWarning, UnitMismatchError
 
-__all__ = ["brightness_unit", "is_per_beam", "is_temperature"]
+__all__ = ["brightness_unit", "is_brightness", "is_per_beam", "is_temperature"]
 
 # Case-insensitive aliases seen in delivered files (common practice); keys are
 # lower-case with blanks removed.
@@ -56,6 +56,12 @@ def brightness_unit(bunit, *, source="the cube"):
         The unit; ``dimensionless_unscaled`` (with a `MissingUnitWarning`)
         when BUNIT is missing or cannot be read.
 
+    Raises
+    ------
+    UnitMismatchError
+        BUNIT is a unit but not a brightness (e.g. ``km/s``: a velocity
+        field or moment map, not a line cube); see `is_brightness`.
+
     Examples
     --------
     >>> brightness_unit("Jy/beam")
@@ -72,13 +78,26 @@ def brightness_unit(bunit, *, source="the cube"):
         return u.dimensionless_unscaled
     text = re.sub(r"\(.*?\)", "", str(bunit)).strip()
     key = text.lower().replace(" ", "")
-    if key in _ALIASES:
-        return _ALIASES[key]
-    for fmt in ("fits", "generic", "cds"):
+    unit = _ALIASES.get(key)
+    # Upper-case spellings ('KM/S') are tried in lower case last: lower-casing
+    # first would turn MJy into mJy.
+    for candidate, fmt in [(text, f) for f in ("fits", "generic", "cds")] + [(text.lower(), "generic")]:
+        if unit is not None:
+            break
         try:
-            return u.Unit(text, format=fmt)
+            unit = u.Unit(candidate, format=fmt)
         except ValueError:
             continue
+    if unit is not None:
+        if not is_brightness(unit):
+            kind = "" if str(unit.physical_type) == "unknown" else f" ({unit.physical_type})"
+            raise UnitMismatchError(
+                f"{source} has BUNIT={bunit!r}{kind}, which is not a brightness: "
+                "a line cube holds Jy/beam, K, Jy/pixel, MJy/sr or similar. A cube in "
+                f"{unit} is a derived product (e.g. a velocity field or moment map); open the "
+                "line cube it came from, or fix BUNIT in a copy of the file if it is wrong"
+            )
+        return unit
     warnings.warn(
         f"{source} has BUNIT={bunit!r}, which cubeloupe cannot read as a unit; "
         "values are treated as arbitrary units. Fix BUNIT in a copy of the file "
@@ -87,6 +106,27 @@ def brightness_unit(bunit, *, source="the cube"):
         stacklevel=3,
     )
     return u.dimensionless_unscaled
+
+
+def is_brightness(unit):
+    """True if ``unit`` can hold the values of a line cube.
+
+    That is a brightness temperature (K), a flux density per beam, per pixel
+    or per solid angle (Jy/beam, Jy/pix, MJy/sr), a flux density (Jy, for
+    single spectra), or a plain number (arbitrary units, e.g. counts or a
+    normalised cube).
+
+    Examples
+    --------
+    >>> is_brightness(u.Jy / u.beam), is_brightness(u.km / u.s)
+    (True, False)
+    """
+    unit = u.Unit(unit)
+    if unit.physical_type == "dimensionless" or unit.is_equivalent(u.K) or unit.is_equivalent(u.Jy):
+        return True
+    if is_per_beam(unit) or (unit * u.pix).is_equivalent(u.Jy):
+        return True
+    return (unit * u.sr).is_equivalent(u.Jy)
 
 
 def is_per_beam(unit):

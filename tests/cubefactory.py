@@ -169,3 +169,45 @@ def primary_beam(image_shape, fwhm_pixels, centre=None):
     cy, cx = ((ny - 1) / 2, (nx - 1) / 2) if centre is None else centre
     y, x = np.mgrid[0:ny, 0:nx]
     return np.exp(-4 * np.log(2) * ((y - cy) ** 2 + (x - cx) ** 2) / fwhm_pixels**2)
+
+
+def write_scaled_int_cube(path, data, *, bitpix=16, bscale=None, bzero=0.0, blank=-32768, **header_kw):
+    """Write ``data`` (n_chan, ny, nx; NaN = blank) as integers with BSCALE/BZERO/BLANK; return (path, values).
+
+    The stored integers are ``round((data - bzero) / bscale)``, NaN stored as
+    ``blank``, written byte for byte as the FITS standard lays them out
+    (big-endian, header and data padded to 2880-byte records; Pence et al.
+    2010, A&A 524, A42), so no library rescales them on the way.
+    ``bscale`` defaults to the step that spans the data's range with the
+    integer type. ``values`` is the float64 cube the file represents
+    (``bzero + bscale * stored``, NaN at blanks): the float copy to compare with.
+    """
+    data = np.asarray(data, dtype=float)
+    stored_type = {8: ">u1", 16: ">i2", 32: ">i4"}[bitpix]
+    info = np.iinfo(np.dtype(stored_type))
+    if bscale is None:
+        span = np.nanmax(np.abs(data - bzero))
+        bscale = float(span / (info.max - 1)) if span > 0 else 1.0
+    stored = np.round((np.nan_to_num(data, nan=bzero) - bzero) / bscale)
+    stored = np.clip(stored, info.min + 1, info.max).astype(stored_type)
+    blanked = np.isnan(data)
+    if blank is not None:
+        stored[blanked] = blank
+    header = make_header(data.shape, **header_kw)
+    header["BITPIX"] = bitpix
+    if header["NAXIS"] == 4:
+        stored = stored[np.newaxis]
+        blanked = blanked[np.newaxis]
+    header.insert("NAXIS" + str(header["NAXIS"]), ("BSCALE", bscale), after=True)
+    header.insert("BSCALE", ("BZERO", bzero), after=True)
+    if blank is not None:
+        header.insert("BZERO", ("BLANK", blank), after=True)
+    raw = stored.tobytes()
+    path = Path(path)
+    with open(path, "wb") as handle:
+        handle.write(header.tostring().encode("ascii"))
+        handle.write(raw + b"\0" * (-len(raw) % 2880))
+    values = bzero + bscale * stored.astype(float)
+    if blank is not None:
+        values[blanked] = np.nan
+    return path, values.reshape(data.shape)
