@@ -6,6 +6,7 @@ this package imports ipywidgets, bqplot or traitlets.
 
 from .errors import *  # noqa: F401,F403
 from .errors import __all__ as _errors_all
+from .unit_text import unit_text
 from .units import brightness_unit, is_brightness, is_per_beam, is_temperature
 from .spectral import (
     CONVENTIONS,
@@ -60,11 +61,11 @@ from .noise import (
 from .check import CubeCheck, check_cube
 
 from .display import (
-    AXIS_KINDS, STRETCHES, beam_outline, channel_at, contour_paths, display_axis,
+    AXIS_KINDS, STRETCHES, beam_outline, channel_at, channel_for, contour_paths, display_axis,
     display_image, display_limits, marker_positions, sky_position, stretched, to_observed_frequency,
 )
 from .prefetch import prefetch_channels
-from .sky_axes import SkyAxes, nice_ticks, sky_axes
+from .sky_axes import SkyAxes, nice_ticks, sky_axes, tick_decimals
 from .sky_look import beam_anchor, centred_limits, data_bounds
 from .export import check_output_path, write_map, write_maps, write_spectra, write_table
 from .smoothing import (
@@ -77,7 +78,7 @@ from .channel_maps import ChannelPanels, channel_maps, channel_panels
 
 __all__ = [
     *_errors_all,
-    "brightness_unit", "is_brightness", "is_per_beam", "is_temperature",
+    "unit_text", "brightness_unit", "is_brightness", "is_per_beam", "is_temperature",
     "CONVENTIONS", "SPEED_OF_LIGHT", "Z_MAX", "axis_in", "channel_mask", "check_redshift", "check_rest_frequency",
     "frequency_axis", "frequency_from_velocity", "observed_frequency", "velocity",
     "open_cube", "cube_source", "source_name", "cube_stokes", "check_total_intensity",
@@ -97,11 +98,11 @@ __all__ = [
     "ChannelStatistics", "ContinuumMap", "PeakSpectrum", "channel_noise", "channel_statistics", "cube_noise",
     "leftover_continuum", "peak_spectrum",
     "CubeCheck", "check_cube",
-    "AXIS_KINDS", "STRETCHES", "beam_outline", "channel_at", "contour_paths", "cube_rest_frequency",
+    "AXIS_KINDS", "STRETCHES", "beam_outline", "channel_at", "channel_for", "contour_paths", "cube_rest_frequency",
     "display_axis", "display_image", "display_limits", "marker_positions", "sky_position", "stretched",
     "to_observed_frequency",
     "prefetch_channels",
-    "SkyAxes", "nice_ticks", "sky_axes", "beam_anchor", "centred_limits", "data_bounds",
+    "SkyAxes", "nice_ticks", "sky_axes", "tick_decimals", "beam_anchor", "centred_limits", "data_bounds",
     "check_output_path", "write_map", "write_maps", "write_spectra", "write_table",
     "SMOOTHING_KERNELS", "channel_correlation", "correlated_error", "noise_correlation_factor", "smooth_spectrum",
     "smoothing_kernel", "with_channel_correlation",

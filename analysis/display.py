@@ -37,6 +37,7 @@ from astropy.visualization import (
 
 from .errors import SpectralAxisError, UnitMismatchError
 from .spectral import (
+    frequency_from_velocity,
     axis_in,
     check_convention,
     check_redshift,
@@ -59,6 +60,7 @@ __all__ = [
     "sky_position",
     "to_observed_frequency",
     "channel_at",
+    "channel_for",
 ]
 
 # The three x axes a spectrum can be drawn against, with their display unit.
@@ -442,3 +444,51 @@ def channel_at(frequencies, frequency):
     if value < axis.min() - half or value > axis.max() + half:
         return None
     return int(np.argmin(np.abs(axis - value)))
+
+
+def channel_for(position, frequencies, *, rest_frequency=None, z=0.0, convention="radio"):
+    """The channel nearest to ``position``: a channel number, a frequency or wavelength, or a velocity.
+
+    Parameters
+    ----------
+    position : int or Quantity [frequency, wavelength or velocity]
+        A velocity is the rest-frame offset from ``rest_frequency`` at ``z``
+        (see `velocity`).
+    frequencies : Quantity [frequency]
+        The channels' observed frequencies.
+    rest_frequency, z, convention
+        The velocity frame, needed for a velocity only.
+
+    Returns
+    -------
+    int or None
+        None when the position lies outside the band.
+
+    Raises
+    ------
+    SpectralAxisError
+        A velocity without a rest frequency to measure it from.
+    UnitMismatchError
+        A Quantity of another kind.
+
+    Examples
+    --------
+    >>> axis = [230.0, 230.5, 231.0] * u.GHz
+    >>> channel_for(2, axis), channel_for(230.4 * u.GHz, axis)
+    (2, 1)
+    >>> channel_for(0 * u.km / u.s, axis, rest_frequency=231.0 * u.GHz)
+    2
+    """
+    n = len(frequencies)
+    if not isinstance(position, u.Quantity):
+        channel = int(position)
+        return channel if 0 <= channel < n else None
+    if position.unit.is_equivalent(u.km / u.s):
+        if rest_frequency is None:
+            raise SpectralAxisError(f"{position} is a velocity, but no rest frequency is known to measure it from; "
+                                    "choose a line (or give the position as a frequency or a channel number)")
+        position = frequency_from_velocity(position, rest_frequency, z=z, convention=convention)
+    elif not position.unit.is_equivalent(u.GHz, equivalencies=u.spectral()):
+        raise UnitMismatchError(f"{position} is neither a frequency, a wavelength nor a velocity; give e.g. "
+                                "'115.27 GHz', '1460 km/s' or a channel number")
+    return channel_at(frequencies, position)

@@ -30,7 +30,7 @@ import numpy as np
 from astropy.table import QTable
 
 from .lines import measure_line
-from .luminosity import get_cosmology, line_luminosity
+from .luminosity import get_cosmology, in_hubble_flow, line_luminosity
 from .spectral import check_convention, check_redshift
 
 __all__ = ["measurement_table", "MEASUREMENT_COLUMNS"]
@@ -101,8 +101,8 @@ def measurement_table(spectra, window, *, line_free=None, order=1, rest_frequenc
         One row per region and window, columns `MEASUREMENT_COLUMNS`; flux
         and its error in the spectra's flux unit times km/s (or times the
         spectral unit), centroid and widths in km/s, L'_line in K km/s pc2
-        (NaN where not defined: z = 0, no rest frequency, or a flux not in
-        Jy km/s). ``meta`` records every parameter.
+        (NaN where not defined: z below the Hubble flow (`in_hubble_flow`),
+        no rest frequency, or a flux not in Jy km/s). ``meta`` records every parameter.
 
     Raises
     ------
@@ -131,7 +131,8 @@ def measurement_table(spectra, window, *, line_free=None, order=1, rest_frequenc
             m = measure_line(spectrum, window, line_free=free, order=order, rest_frequency=rest_frequency,
                              z=z, convention=convention)
             l_prime = l_prime_error = np.nan * _L_PRIME_UNIT
-            if z > 0 and rest_frequency is not None and m.flux.unit.is_equivalent(u.Jy * _KMS):
+            # L'_line needs a distance from the Hubble flow: not for local (e.g. Galactic) velocities.
+            if in_hubble_flow(z) and rest_frequency is not None and m.flux.unit.is_equivalent(u.Jy * _KMS):
                 l_prime = line_luminosity(m.flux, z, rest_frequency, cosmology=cosmology,
                                           magnification=magnification).l_prime
                 l_prime_error = line_luminosity(m.flux_error, z, rest_frequency, cosmology=cosmology,

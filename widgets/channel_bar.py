@@ -7,12 +7,14 @@ import ipywidgets as w
 import numpy as np
 from traitlets import Enum, Float, Int, List, Unicode, observe, validate
 
-from cubeloupe.analysis import CONVENTIONS, cube_rest_frequency, CubeloupeError, display_axis, velocity
+from cubeloupe.analysis import (
+    CONVENTIONS, CubeloupeError, channel_for, cube_rest_frequency, display_axis, velocity,
+)
 
 __all__ = ["ChannelBar"]
 
 
-class ChannelBar(w.HBox):
+class ChannelBar(w.VBox):
     """Channel slider with step and play controls and a readout of the channel's coordinates.
 
     Parameters
@@ -40,6 +42,7 @@ class ChannelBar(w.HBox):
     readout = Unicode("", help="Frequency and velocity of the selected channel, as shown")
     other_bands = List(help="[low, high] observed GHz of the other spectral windows: velocities measured from "
                             "a line in one of them are not shown")
+    go_message = Unicode("", help="Why the last 'Go to' could not be followed ('' when it was)")
     play_interval = Int(300, help="Milliseconds between channels during playback")
 
     def __init__(self, cube, **kwargs):
@@ -61,10 +64,27 @@ class ChannelBar(w.HBox):
         self.forward.add_class("cubeloupe-channel-forward")
         self.back.on_click(lambda _: self.step(-1))
         self.forward.on_click(lambda _: self.step(+1))
-        self.label = w.HTML(layout=w.Layout(flex="0 0 auto", margin="0 0 0 10px"))
+        self.label = w.HTML(layout=w.Layout(flex="1 1 auto", margin="0 0 0 10px"))
         self.label.add_class("cubeloupe-channel-label")
-        super().__init__(children=[self.back, self.slider, self.forward, self.play, self.label], **kwargs)
-        self.layout.align_items = "center"
+        self.go_input = w.Text(value="", placeholder="e.g. 42, 230.3 GHz, 1460 km/s", description="Go to",
+                               continuous_update=False,
+                               tooltip="Jump to a channel number, an observed frequency (GHz, MHz) or a velocity "
+                                       "(km/s, relative to velocity zero); press Enter",
+                               style={"description_width": "initial"}, layout=w.Layout(width="260px"))
+        self.go_input.add_class("cubeloupe-go-to")
+        self.go_input.observe(lambda change: self.go_to(change.new), names="value")
+        self.brightest_button = w.Button(description="Brightest", icon="star", layout=w.Layout(width="104px"),
+                                         tooltip="Jump to the channel with the brightest emission")
+        self.brightest_button.add_class("cubeloupe-brightest")
+        self.brightest_button.on_click(lambda _: self._on_brightest())
+        self._brightest_callbacks = []
+        self.message = w.HTML(layout=w.Layout(flex="1 1 200px"))
+        super().__init__(children=[w.HBox([self.back, self.slider, self.forward, self.play, self.label],
+                                          layout=w.Layout(align_items="center", width="100%",
+                                                          flex_flow="row wrap")),
+                                   w.HBox([self.go_input, self.brightest_button, self.message],
+                                          layout=w.Layout(align_items="center", width="100%",
+                                                          flex_flow="row wrap"))], **kwargs)
         self.layout.width = "100%"
         self.add_class("cubeloupe-channel-bar")
         w.link((self.slider, "value"), (self, "channel"))
@@ -91,6 +111,48 @@ class ChannelBar(w.HBox):
     def step(self, by):
         """Move ``by`` channels (clamped to the band)."""
         self.channel = self.channel + int(by)
+
+    def go_to(self, text):
+        """Jump to a channel number, an observed frequency or a velocity typed as text; returns the channel.
+
+        A problem (not a number, outside the band, a velocity with no rest frequency) is shown beside
+        the box and None is returned.
+        """
+        text = str(text).strip()
+        if not text:
+            self._say("")
+            return None
+        try:
+            position = int(text) if text.lstrip("+-").isdigit() else u.Quantity(text)
+            if isinstance(position, u.Quantity) and position.unit == u.dimensionless_unscaled:
+                raise ValueError("give a number with a unit (GHz, MHz, km/s) or a whole channel number")
+            channel = channel_for(position, self._frequencies, rest_frequency=self._rest(), z=self.z,
+                                  convention=self.convention)
+        except (ValueError, TypeError, CubeloupeError) as exc:
+            self._say(f"Cannot go to {text!r}: {exc}")
+            return None
+        if channel is None:
+            self._say(f"{text} lies outside this window's band ({self._band_text()}).")
+            return None
+        self.channel = channel
+        self._say("")
+        return channel
+
+    def _band_text(self):
+        f = self._frequencies.to_value(u.GHz)
+        return f"{f.min():.6f}–{f.max():.6f} GHz, channels 0–{len(f) - 1}"
+
+    def _say(self, text):
+        self.go_message = text
+        self.message.value = f"<span style='color:#8c1d18'>{html.escape(text)}</span>" if text else ""
+
+    def on_brightest(self, callback):
+        """Register ``callback()``, run by the 'Brightest' button (the suite finds the channel)."""
+        self._brightest_callbacks.append(callback)
+
+    def _on_brightest(self):
+        for callback in self._brightest_callbacks:
+            callback()
 
     def _rest(self):
         if self.rest_frequency > 0:
@@ -141,5 +203,5 @@ class ChannelBar(w.HBox):
             else:
                 text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention}, {self.velocity_reference()})"
         self.readout = text
-        self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace);white-space:nowrap'>"
+        self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace)'>"
                             f"{html.escape(text)}</span>")

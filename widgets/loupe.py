@@ -34,7 +34,7 @@ from ._look import section
 from .channel_bar import ChannelBar
 from .code_view import CodeView  # sessions and replay (#19)
 from .line_overlay import LineOverlay
-from .measurement_table import MeasurementTable, rows_from_table
+from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
 from .region_list import RegionList
 from .replay import to_code  # sessions and replay (#19)
@@ -200,7 +200,7 @@ class Loupe(w.VBox):
         self._show_span()
         self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=StatusLine())
         self.moment_panel = MomentPanel(self._moment_inputs, status=StatusLine())
-        self.measurement_table = MeasurementTable()
+        self.measurement_table = MeasurementTable(show_window=len(self.cubes) > 1)
         self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
                                                  for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
                                         description="Sky shows",
@@ -335,6 +335,7 @@ class Loupe(w.VBox):
         link((self, "magnification"), (mt, "magnification"))
         link((self, "cosmology"), (mt, "cosmology"))
         sv.on_shape(self._on_shape)
+        cb.on_brightest(self.go_to_brightest)
         sp.on_pick(self.go_to_frequency)
         mp.observe(self._on_moments, names=["maps"])
 
@@ -512,6 +513,15 @@ class Loupe(w.VBox):
         with self.status.guard(f"removing region {name}"):
             self.region_list.remove(name)
 
+    def go_to_brightest(self):
+        """Show the channel with the brightest emission of the current window (see `first_view`)."""
+        with self.status.guard("finding the brightest channel"):
+            view = find_first_view(self.cube)
+            self.channel = view.channel
+            self.status.info(f"Brightest emission: {view.description}.")
+            return view.channel
+        return None
+
     def show_first_view(self):
         """Go to the channel with the brightest emission and add a beam-sized aperture there (if no region yet)."""
         with self.status.guard("finding the emission to show first"):
@@ -551,8 +561,10 @@ class Loupe(w.VBox):
         if not self._measure_enabled:
             return
         rows = []
+        self.measurement_table.set_table(None)
         with self.status.guard("measuring the line"):
             if not self.line_window or not self.spectra:
+                self.measurements = []
                 return
             if self.z != 0 and self._rest() is None:
                 raise SpectralAxisError("velocities need a line: pick it under 'Velocity zero' (or set "
@@ -562,9 +574,9 @@ class Loupe(w.VBox):
                 line_free=u.Quantity(self.line_free, u.GHz) if self.line_free else None,
                 order=self.baseline_order, rest_frequency=self._rest(), z=self.z, convention=self.convention,
                 line=self._line_label(), cosmology=self.cosmology, magnification=self.magnification)
-            rows = rows_from_table(table)
+            self.measurement_table.set_table(table)
+            rows = self.measurement_table.rows
         self.measurements = rows
-        self.measurement_table.rows = rows
 
     def _moment_inputs(self):
         if not self.line_window:

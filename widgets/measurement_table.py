@@ -10,27 +10,27 @@ import html
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
-from astropy.table import Table
-from traitlets import Float, List, TraitError, Unicode, validate
+from astropy.table import QTable
+from traitlets import Bool, Float, List, TraitError, Unicode, validate
 
-from cubeloupe.analysis import get_cosmology, write_table
+from cubeloupe.analysis import get_cosmology, unit_text, write_table
 
 __all__ = ["MeasurementTable", "COLUMNS"]
 
 _KMS = u.km / u.s
 
-# Column -> (heading shown, unit string written to ECSV)
+# Column -> heading shown; the unit follows in brackets where the column has one.
 COLUMNS = {
-    "region": ("Region", None),
-    "window": ("Window", None),
-    "line": ("Line", None),
-    "flux": ("Flux", None),
-    "flux_error": ("± error", None),
-    "centroid": ("Centroid (km/s)", "km / s"),
-    "fwhm": ("FWHM (km/s)", "km / s"),
-    "snr": ("S/N", None),
-    "l_prime": ("L'_line (K km/s pc²)", "K km / (pc2 s)"),
-    "l_prime_error": ("± error", "K km / (pc2 s)"),
+    "region": "Region",
+    "window": "Window",
+    "line": "Line",
+    "flux": "Flux",
+    "flux_error": "± Flux",
+    "centroid": "Centroid",
+    "fwhm": "FWHM",
+    "snr": "S/N",
+    "l_prime": "L'_line",
+    "l_prime_error": "± L'_line",
 }
 
 
@@ -68,10 +68,12 @@ class MeasurementTable(w.VBox):
     """
 
     rows = List(help="Measurements, one dict per region, window and line (read-only)")
+    show_window = Bool(False, help="Show the spectral-window column (on for a suite of several windows)")
     cosmology = Unicode("Planck18", help="Name of the astropy cosmology used for L'_line (e.g. 'Planck18', 'WMAP9')")
     magnification = Float(1.0, help="Lensing magnification; luminosities are divided by it")
 
     def __init__(self, **kwargs):
+        self._source = None
         self._table = w.HTML()
         self._table.add_class("cubeloupe-measurement-table")
         self.cosmology_choice = w.Dropdown(options=["Planck18", "Planck15", "WMAP9", "WMAP7"], value="Planck18",
@@ -92,7 +94,7 @@ class MeasurementTable(w.VBox):
                                    self._note], **kwargs)
         self.add_class("cubeloupe-measurements")
         self._render()
-        self.observe(lambda _: self._render(), names=["rows"])
+        self.observe(lambda _: self._render(), names=["rows", "show_window"])
 
     @validate("magnification")
     def _valid_mu(self, proposal):
@@ -108,29 +110,26 @@ class MeasurementTable(w.VBox):
             raise TraitError(str(exc)) from None
         return proposal["value"]
 
-    def table(self):
-        """The rows as an astropy Table with units (for export or further work)."""
-        if not self.rows:
-            return Table()
-        flux_unit = u.Unit(self.rows[0]["flux_unit"])
-        columns = {}
-        for key, (_, unit) in COLUMNS.items():
-            values = [r[key] for r in self.rows]
-            if key in ("flux", "flux_error"):
-                columns[key] = u.Quantity([u.Quantity(v, r["flux_unit"]).to_value(flux_unit)
-                                           for v, r in zip(values, self.rows)], flux_unit)
-            elif unit:
-                columns[key] = u.Quantity(values, u.Unit(unit))
-            else:
-                columns[key] = values
-        table = Table(columns)
+    def set_table(self, table):
+        """Show a `cubeloupe.analysis.measurement_table` result (rows are derived from it)."""
+        self._source = table
+        self.rows = rows_from_table(table) if table is not None else []
+
+    def table(self, meta=None):
+        """The measurements as the analysis layer made them: an astropy QTable with units and its metadata.
+
+        ``meta`` (a dict) is added to the table's metadata, e.g. how the measurements were made.
+        """
+        table = QTable() if self._source is None else self._source.copy()
         table.meta["cosmology"] = self.cosmology
         table.meta["magnification"] = self.magnification
+        if meta:
+            table.meta.update(meta)
         return table
 
-    def export_ecsv(self, path, overwrite=False):
-        """Write the table as ECSV; refuses to replace a file unless ``overwrite``."""
-        return write_table(self.table(), path, overwrite=overwrite)
+    def export_ecsv(self, path, overwrite=False, meta=None):
+        """Write the table as ECSV (metadata included); refuses to replace a file unless ``overwrite``."""
+        return write_table(self.table(meta), path, overwrite=overwrite)
 
     def _render(self):
         if not self.rows:
@@ -138,15 +137,19 @@ class MeasurementTable(w.VBox):
                                  "window on the spectrum.</span>")
             self._note.value = ""
             return
-        head = "".join(f"<th style='padding:2px 8px;text-align:right'>{html.escape(h)}</th>"
-                       for h, _ in COLUMNS.values())
+        units = {"flux": unit_text(self.rows[0]["flux_unit"]), "flux_error": unit_text(self.rows[0]["flux_unit"]),
+                 "centroid": "km/s", "fwhm": "km/s", "l_prime": "K km/s pc²", "l_prime_error": "K km/s pc²"}
+        keys = [k for k in COLUMNS if k != "window" or self.show_window]
+        head = "".join(f"<th style='padding:2px 8px;text-align:right'>{html.escape(COLUMNS[k])}"
+                       + (f"<br><span style='font-weight:400'>({html.escape(units[k])})</span>" if k in units else "")
+                       + "</th>" for k in keys)
         body = []
         for r in self.rows:
             cells = []
-            for key in COLUMNS:
+            for key in keys:
                 v = r[key]
                 if key in ("flux", "flux_error"):
-                    text = f"{v:.4g} {r['flux_unit']}" if key == "flux" else f"{v:.2g}"
+                    text = f"{v:.4g}" if key == "flux" else f"{v:.2g}"
                 elif key in ("l_prime", "l_prime_error"):
                     text = "—" if not np.isfinite(v) else f"{v:.3e}"
                 elif key == "snr":
@@ -159,5 +162,9 @@ class MeasurementTable(w.VBox):
             body.append("<tr>" + "".join(cells) + "</tr>")
         self._table.value = (f"<table style='border-collapse:collapse;font-size:90%'><tr>{head}</tr>"
                              + "".join(body) + "</table>")
-        self._note.value = (f"<span style='color:#52606d'>L'_line with {html.escape(self.cosmology)} and "
-                            f"magnification μ = {self.magnification:g} (divided out).</span>")
+        if any(np.isfinite(r["l_prime"]) for r in self.rows):
+            self._note.value = (f"<span style='color:#52606d'>L'_line with {html.escape(self.cosmology)} and "
+                                f"magnification μ = {self.magnification:g} (divided out).</span>")
+        else:
+            self._note.value = ("<span style='color:#52606d'>No L'_line: it needs a redshift in the Hubble flow "
+                                "(cz above 1000 km/s), a line chosen and a flux in Jy km/s.</span>")

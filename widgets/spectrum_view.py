@@ -15,8 +15,8 @@ from bqplot_image_gl.interacts import MouseInteraction
 from traitlets import Bool, Enum, Float, Int, List, TraitError, observe, validate
 
 from cubeloupe.analysis import (
-    AXIS_KINDS, CONVENTIONS, MAX_ORDER, check_order, CubeloupeError, display_axis, fit_baseline, FitError,
-    SpectralRangeError, to_observed_frequency,
+    AXIS_KINDS, CONVENTIONS, MAX_ORDER, CubeloupeError, FitError, SpectralRangeError, check_order, display_axis,
+    fit_baseline, nice_ticks, tick_decimals, to_observed_frequency, unit_text,
 )
 
 from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
@@ -276,6 +276,10 @@ class SpectrumView(w.VBox):
         low, high = float(ends[0] - margin), float(ends[1] + margin)
         with self.figure.hold_sync():
             self.x_scale.min, self.x_scale.max = low, high
+            # Round ticks written with just enough decimals: narrow bands get distinct labels (no 1.101992e+2).
+            ticks = nice_ticks(low, high, 6)
+            self.x_axis.tick_values = ticks
+            self.x_axis.tick_format = f".{tick_decimals(ticks)}f"
         self.x_range = [low, high]
 
     def in_view(self, x):
@@ -382,7 +386,7 @@ class SpectrumView(w.VBox):
                         model.x, model.y = x, np.asarray(fit.model.value, dtype=float)
                     else:
                         self.model_marks.pop(key, None)
-                    self.y_axis.label = str(spectrum.unit)
+                    self.y_axis.label = unit_text(spectrum.unit)
             self._set_marks()
             self._draw_zero()
             self._draw_cursor()

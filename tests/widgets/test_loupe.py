@@ -98,3 +98,19 @@ def test_unreadable_cube_shows_a_message(tmp_path):
     loupe = Loupe(bad, first_view=False)
     assert loupe.status.level == "error" and "not-a-cube.fits" in loupe.status.message
     assert loupe.cubes == []
+
+
+def test_a_lines_flux_scales_with_one_plus_z_for_the_same_channels(loupe):
+    """Issue #17: the same region and ranges gave a larger flux with z set than at z = 0.
+
+    Velocities of a line at z are rest-frame offsets from rest / (1 + z), so a channel of width
+    dnu spans dv = c (1 + z) dnu / nu_rest instead of c dnu / nu_rest: the integral S dv over the
+    same channels grows by exactly (1 + z) (radio convention, Greisen et al. 2006; the rest-frame
+    velocity convention of Solomon & Vanden Bout 2005, eq. 1 uses the same S dv).
+    """
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=5))
+    mark_ranges(loupe)
+    at_rest = loupe.measurements[0]["flux"]
+    for z in (0.01, 0.5, 2.0):
+        loupe.z = z
+        assert loupe.measurements[0]["flux"] == pytest.approx(at_rest * (1 + z), rel=1e-9)

@@ -144,3 +144,13 @@ def test_velocity_axis_without_a_line_measures_from_the_band_centre():
     # the band centre 230.534 GHz observed is 345.801 GHz in the rest frame at z = 0.5
     assert view.rest_frequency == pytest.approx(230.534 * 1.5)
     assert view.x_of_frequency(230.534)[0] == pytest.approx(0.0, abs=1e-6)
+
+
+def test_a_narrow_band_gets_distinct_tick_labels(cube_path, rng):
+    # 100 channels of 10 kHz at 110.2 GHz: a band 1 MHz wide (a narrow single-dish backend)
+    loupe = Loupe(cube_path(rng.normal(size=(100, 5, 5)), crval3=110.2e9, cdelt3=-1.0e4, restfrq=110.2e9),
+                  first_view=False)
+    axis = loupe.spectrum_view.x_axis
+    labels = [format(v, axis.tick_format) for v in axis.tick_values]
+    assert len(labels) >= 3 and len(set(labels)) == len(labels)
+    assert all(len(text) <= 10 for text in labels), labels
