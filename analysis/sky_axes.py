@@ -34,7 +34,7 @@ from astropy.coordinates import SkyCoord
 
 from .errors import CubeShapeError
 
-__all__ = ["SkyAxes", "sky_axes", "nice_ticks"]
+__all__ = ["SkyAxes", "sky_axes", "nice_ticks", "tick_decimals"]
 
 # Beyond this tilt between the pixel grid and the celestial axes at the map centre the offset
 # axes are labelled as distances along the pixel axes instead of ΔRA/ΔDec.
@@ -232,3 +232,21 @@ def nice_ticks(low, high, max_ticks):
                 digits = max(0, -math.floor(math.log10(step)) + 1)
                 return np.round(ticks, digits) + 0.0
         step_size *= 10
+
+
+def tick_decimals(ticks):
+    """Decimal places that write evenly spaced ``ticks`` exactly and no more (0.25 steps: 2; 25: 0).
+
+    Examples
+    --------
+    >>> tick_decimals([-0.5, 0.0, 0.5]), tick_decimals([-25.0, 0.0, 25.0]), tick_decimals([0.25, 0.5])
+    (1, 0, 2)
+    """
+    ticks = np.asarray(ticks, dtype=float)
+    if ticks.size < 2:
+        return 0
+    step = abs(float(ticks[1] - ticks[0]))
+    for decimals in range(0, 12):
+        if np.allclose(np.round(ticks, decimals), ticks, rtol=0, atol=step * 1e-6):
+            return decimals
+    return 12

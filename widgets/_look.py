@@ -16,6 +16,23 @@ RAMPS = {
     "grey": ["#000000", "#ffffff"],
 }
 
+# Diverging ramps for signed maps (a velocity field): cool for approaching, warm for receding, a light
+# neutral middle at zero. Our own picks, kept clear of the grey that marks blanked pixels.
+DIVERGING_RAMPS = {
+    "sea to rust": ["#123a6b", "#2f6ea8", "#79a9d1", "#e9eef2", "#e8a77a", "#bf5a2c", "#7a2410"],
+    "teal to plum": ["#0d4d4d", "#2a8c82", "#8fd0c4", "#f1efe9", "#d6a5c9", "#9c4f8f", "#5a1a56"],
+}
+
+# Blanked (NaN) pixels show the plot's background: a neutral mid grey no colour ramp uses, or, on the
+# grey ramp (which holds every grey), a muted blue.
+BLANK_COLOR = "#8c8c8c"
+BLANK_COLOR_ON_GREY = "#5b7db1"
+
+
+def blank_color(ramp):
+    """The colour blanked pixels are drawn in on the colour ramp named ``ramp``."""
+    return BLANK_COLOR_ON_GREY if ramp == "grey" else BLANK_COLOR
+
 # Region colours, in the order new regions take them.
 REGION_COLORS = ["#ff6f59", "#43bccd", "#f9c80e", "#9b5de5", "#7bd389", "#ff99c8", "#3a86ff", "#fb8500"]
 

@@ -8,32 +8,49 @@ handed to whoever listens (`on_shape`), usually a `RegionList`.
 """
 
 import html
+import re
 
 import ipywidgets as w
 import numpy as np
 from bqplot import Axis, ColorScale, Figure, LinearScale, Lines, Scatter
 from bqplot_image_gl import ImageGL
-from bqplot_image_gl.interacts import BrushEllipseSelector, BrushRectangleSelector, MouseInteraction
+from bqplot_image_gl.interacts import BrushRectangleSelector, MouseInteraction
 from traitlets import Bool, Dict, Enum, Float, Int, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis import (
-    STRETCHES, beam_outline, BeamError, contour_paths, cube_beam, display_image, display_limits,
-    prefetch_channels, sky_position, stretched,
+    STRETCHES, beam_anchor, beam_outline, BeamError, centred_limits, contour_paths, cube_beam, CubeShapeError,
+    display_image, display_limits, nice_ticks, prefetch_channels, sky_axes, sky_position, stretched,
+    tick_decimals,
 )
 
-from ._look import RAMPS, row
+from ._look import DIVERGING_RAMPS, RAMPS, blank_color, row
 from .status import StatusLine
 
-__all__ = ["SkyView", "TOOLS"]
+__all__ = ["SkyView", "TOOLS", "MAX_WIDTH"]
+
+# Sizes on screen (px). The plot area's longer side is MAX_PLOT_SIDE; the figure adds fixed margins
+# for the tick labels and axis titles, so the plot area, not the whole figure, gets the map's shape.
+MAX_PLOT_SIDE = 300
+FIGURE_MARGIN = {"top": 8, "bottom": 42, "left": 58, "right": 14}
+COLORBAR_WIDTH = 84
+# The sky column beside the spectrum in a ~1 000 px notebook: figure plus colour bar.
+MAX_WIDTH = 460
+# Room one tick label needs along each axis (px), so narrow maps get fewer ticks.
+X_TICK_ROOM = 48
+Y_TICK_ROOM = 36
+
+# Maps of a signed quantity, drawn in a diverging ramp centred on zero: the velocity field.
+_DIVERGING_MAP = re.compile(r"^moment 1\b(?!.*error)")
 
 _POINTER_HINT = ("<span style='color:#829ab1;font-size:90%'>Point at the image to read the sky position and "
-                 "value.</span>")
+                 "value.{centre}</span>")
 
 # Drawing tools: value -> (button label, icon, tooltip)
 TOOLS = {
     "look": ("Look", "eye", "Move the pointer over the image to read sky position and value"),
     "box": ("Box", "square-o", "Drag a box on the image to make a rectangular region"),
-    "oval": ("Oval", "circle-o", "Press at the centre and drag outwards to make an elliptical region"),
+    "oval": ("Oval", "circle-o", "Drag from corner to corner, as with the box: the elliptical region fills "
+                                 "the box you drag"),
     "outline": ("Outline", "pencil", "Click corner after corner to outline a free-form region; "
                                      "double-click (or press Close outline) to finish it"),
     "pixel": ("Pixel", "crosshairs", "Click one pixel to make a one-pixel region"),
@@ -64,8 +81,15 @@ class SkyView(w.VBox):
     maps = Dict(help="Extra 2-D maps that can be shown or contoured, name -> spectral-cube Projection "
                      "(e.g. moment maps of the current window)")
     stretch = Enum(list(STRETCHES), "linear", help="How values map to colours between the limits")
-    palette = Enum(list(RAMPS), "ink to sand", help="Colour ramp of the image")
-    lower_percentile = Float(0.5, help="Percentile of the shown pixels used as the lower limit when vmin is None")
+    palette = Enum(list(RAMPS), "ink to sand", help="Colour ramp of channels and of moment 0 and 2 maps")
+    velocity_palette = Enum(list(DIVERGING_RAMPS), "sea to rust",
+                            help="Diverging colour ramp of a velocity field (moment 1), its middle at zero")
+    shown_ramp = Unicode("", help="Name of the colour ramp in use (read-only)")
+    centre_text = Unicode("", help="Sky position of the map centre the axes count offsets from (read-only)")
+    plot_size = List(help="Width and height of the plot area in screen pixels (read-only)")
+    lower_percentile = Float(0.5, help="Percentile of the shown pixels used as the lower limit when vmin is None "
+                                       "(a velocity field: the larger of the two percentiles' sizes sets limits "
+                                       "symmetric about zero)")
     upper_percentile = Float(99.5, help="Percentile of the shown pixels used as the upper limit when vmax is None")
     vmin = Float(None, allow_none=True, help="Fixed lower colour limit in data units (None: percentile)")
     vmax = Float(None, allow_none=True, help="Fixed upper colour limit in data units (None: percentile)")
@@ -74,7 +98,7 @@ class SkyView(w.VBox):
                                      "bigger planes are block-averaged")
     display_factor = Int(1, help="Block size of the last block-averaging (1: full resolution; read-only)")
     tool = Enum(list(TOOLS), "look", help="What a mouse gesture on the image does")
-    show_beam = Bool(True, help="Draw the beam (FWHM ellipse) to scale in the lower left corner")
+    show_beam = Bool(True, help="Draw the beam (FWHM ellipse) to scale, on the data near the lower left corner")
     contour_source = Unicode("", help="Name of a map in `maps` drawn as contours ('' for none)")
     contour_levels = List(Float(), help="Contour levels in the contour map's units (empty: five levels "
                                         "between its percentile limits)")
@@ -89,12 +113,18 @@ class SkyView(w.VBox):
         self._beam_cache = {}
         self._outline_key = None
         self._outline = None
+        self._anchor_cache = {}
         self._plane = None
+        self._image_shown = None
+        self._setting_ramp_choice = False
+        self.axes = None
         self._build()
+        kwargs.setdefault("layout", w.Layout(max_width=f"{MAX_WIDTH}px"))
         super().__init__(children=[self._toolbar, w.HBox([self.figure, self.colorbar]), self._pointer,
                                    self._display_bar], **kwargs)
         self.add_class("cubeloupe-sky-view")
         self._refresh_geometry()
+        self._apply_ramp()
         self._redraw()
 
     # ------------------------------------------------------------- building
@@ -110,24 +140,35 @@ class SkyView(w.VBox):
         self.outline_marks = []
         self.draft_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], line_style="dashed")
         self.draft_points = Scatter(x=[], y=[], scales=scales, colors=["#ffffff"], default_size=24)
-        axes = [Axis(scale=self.x_scale, label="x (pixel)", grid_lines="none"),
-                Axis(scale=self.y_scale, side="left", label="y (pixel)", grid_lines="none")]
+        # The oval being dragged: the ellipse filling the dragged box, drawn by the kernel.
+        self.oval_draft = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=2)
+        # The axes read world offsets: scales of their own whose ends are the offsets of the pixel
+        # scales' ends (kept in step by _sync_axes); image and gestures stay in pixels.
+        self.x_axis_scale = LinearScale(allow_padding=False)
+        self.y_axis_scale = LinearScale(allow_padding=False)
+        self.x_axis = Axis(scale=self.x_axis_scale, label="x (pixel)", grid_lines="none", label_offset="32px")
+        self.y_axis = Axis(scale=self.y_axis_scale, side="left", label="y (pixel)", grid_lines="none",
+                           label_offset="42px")
         self.figure = Figure(marks=[self.image, self.contour_mark, self.beam_mark, self.draft_mark,
-                                    self.draft_points],
-                             axes=axes, padding_x=0, padding_y=0,
-                             fig_margin={"top": 10, "bottom": 40, "left": 50, "right": 10},
+                                    self.draft_points, self.oval_draft],
+                             axes=[self.x_axis, self.y_axis], padding_x=0, padding_y=0,
+                             fig_margin=dict(FIGURE_MARGIN),
                              layout=w.Layout(width="364px", height="364px"))
         self.figure.add_class("cubeloupe-sky-figure")
+        for scale in (self.x_scale, self.y_scale):
+            scale.observe(self._sync_axes, names=["min", "max"])
         # Colour bar: the ramp drawn against data values, so its ticks read in data units.
         self._bar_scale = LinearScale(allow_padding=False)
         self.bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
                                   scales={"x": LinearScale(min=0, max=1), "y": self._bar_scale,
                                           "image": self.color_scale}, x=(0, 1))
-        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="54px",
+        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="48px",
                               grid_lines="none")
         self.colorbar = Figure(marks=[self.bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
-                               fig_margin={"top": 10, "bottom": 40, "left": 4, "right": 72},
-                               layout=w.Layout(width="96px", height="364px"))
+                               fig_margin={"top": FIGURE_MARGIN["top"], "bottom": FIGURE_MARGIN["bottom"],
+                                           "left": 4, "right": COLORBAR_WIDTH - 18},
+                               layout=w.Layout(width=f"{COLORBAR_WIDTH}px", min_width=f"{COLORBAR_WIDTH}px",
+                                               height="364px"))
         self.colorbar.add_class("cubeloupe-colorbar")
 
         self.pointer = MouseInteraction(x_scale=self.x_scale, y_scale=self.y_scale,
@@ -135,17 +176,24 @@ class SkyView(w.VBox):
         self.pointer.on_msg(self._on_pointer_msg)
         self.box_selector = BrushRectangleSelector(x_scale=self.x_scale, y_scale=self.y_scale,
                                                    color="#ffffff")
-        self.oval_selector = BrushEllipseSelector(x_scale=self.x_scale, y_scale=self.y_scale,
-                                                  color="#ffffff")
+        # bqplot-image-gl's ellipse selector grows from the centre; the oval is dragged corner to corner
+        # like the box instead (issue #17): a box selector whose box is drawn faintly, and the ellipse
+        # filling it drawn by the kernel while dragging.
+        self.oval_selector = BrushRectangleSelector(x_scale=self.x_scale, y_scale=self.y_scale,
+                                                    color="#ffffff",
+                                                    style={"opacity": 0.06, "cursor": "crosshair"},
+                                                    border_style={"fill": "none", "stroke-width": "1px",
+                                                                  "opacity": 0.5, "stroke-dasharray": "3,3"})
         for selector, kind in ((self.box_selector, "box"), (self.oval_selector, "oval")):
             selector.observe(lambda change, kind=kind: self._on_brush(kind, change), names=["brushing"])
+        self.oval_selector.observe(self._on_oval_drag, names=["selected_x", "selected_y"])
         self.figure.interaction = self.pointer
 
         self.tool_buttons = w.ToggleButtons(
             options=[(label, key) for key, (label, _, _) in TOOLS.items()],
             tooltips=[tip for _, _, tip in TOOLS.values()],
             icons=[icon for _, icon, _ in TOOLS.values()],
-            style=w.ToggleButtonsStyle(button_width="88px"))
+            style=w.ToggleButtonsStyle(button_width="78px"))
         self.tool_buttons.add_class("cubeloupe-region-tools")
         w.link((self.tool_buttons, "value"), (self, "tool"))
         self.close_outline_button = w.Button(description="Close outline", icon="check",
@@ -160,21 +208,25 @@ class SkyView(w.VBox):
         self.stretch_choice.add_class("cubeloupe-stretch")
         w.link((self.stretch_choice, "value"), (self, "stretch"))
         self.palette_choice = w.Dropdown(options=list(RAMPS), description="Colours",
-                                         tooltip="Colour ramp used for the image",
+                                         tooltip="Colour ramp used for the image; a velocity field (moment 1) "
+                                                 "has ramps of its own, centred on zero velocity. Blanked pixels "
+                                                 "are drawn grey",
                                          style={"description_width": "initial"}, layout=w.Layout(width="170px"))
         self.palette_choice.add_class("cubeloupe-palette")
-        w.link((self.palette_choice, "value"), (self, "palette"))
+        self.palette_choice.observe(self._on_palette_choice, names="value")
         self.limits_slider = w.FloatRangeSlider(value=(0.5, 99.5), min=0, max=100, step=0.5,
                                                 description="Colour limits (percentile)", readout_format=".1f",
                                                 tooltip="The darkest and brightest colours are set at these "
                                                         "percentiles of the pixels shown; pixels outside are "
                                                         "drawn at the ends of the colour ramp",
                                                 style={"description_width": "initial"},
-                                                layout=w.Layout(width="auto", flex="1 1 auto", min_width="300px"))
+                                                layout=w.Layout(width="auto", flex="1 1 auto", min_width="280px",
+                                                                max_width=f"{MAX_WIDTH}px"))
         self.limits_slider.add_class("cubeloupe-limits")
         self.limits_slider.observe(self._on_limits_slider, names="value")
         self.beam_toggle = w.Checkbox(value=True, description="Beam", indent=False,
-                                      tooltip="Draw the beam (the resolution, FWHM) to scale in the lower left corner",
+                                      tooltip="Draw the beam (the resolution, FWHM) to scale, on the data near "
+                                              "the lower left corner",
                                       layout=w.Layout(width="64px"))
         self.beam_toggle.add_class("cubeloupe-beam-toggle")
         w.link((self.beam_toggle, "value"), (self, "show_beam"))
@@ -190,13 +242,13 @@ class SkyView(w.VBox):
         w.link((self.contour_choice, "value"), (self, "contour_source"))
         self._toolbar = w.VBox([
             row([self.tool_buttons, self.close_outline_button], flex_flow="row wrap"),
-            row([self.source_choice, self.contour_choice, self.beam_toggle]),
+            row([self.source_choice, self.contour_choice, self.beam_toggle], flex_flow="row wrap"),
         ])
         self._display_bar = w.VBox([
-            row([self.stretch_choice, self.palette_choice]),
-            row([self.limits_slider]),
+            row([self.stretch_choice, self.palette_choice], flex_flow="row wrap"),
+            row([self.limits_slider], flex_flow="row wrap"),
         ])
-        self._pointer = w.HTML(value=_POINTER_HINT, layout=w.Layout(min_height="20px"))
+        self._pointer = w.HTML(value=_POINTER_HINT.format(centre=""), layout=w.Layout(min_height="20px"))
         self._pointer.add_class("cubeloupe-pointer")
 
     # ------------------------------------------------------------ validation
@@ -271,11 +323,42 @@ class SkyView(w.VBox):
 
     @observe("source", "stretch", "lower_percentile", "upper_percentile", "vmin", "vmax", "max_display_size")
     def _on_look(self, change):
+        if change.name == "source":
+            self._apply_ramp()
         self._redraw()
 
-    @observe("palette")
+    @observe("palette", "velocity_palette")
     def _on_palette(self, change):
-        self.color_scale.colors = RAMPS[self.palette]
+        self._apply_ramp()
+
+    @property
+    def diverging(self):
+        """True when the map shown is a velocity field, drawn in a diverging ramp centred on zero."""
+        return bool(_DIVERGING_MAP.match(self.source))
+
+    def _apply_ramp(self):
+        name = self.velocity_palette if self.diverging else self.palette
+        options = list(DIVERGING_RAMPS if self.diverging else RAMPS)
+        self._setting_ramp_choice = True
+        try:
+            if list(self.palette_choice.options) != options:
+                self.palette_choice.options = options
+            self.palette_choice.value = name
+        finally:
+            self._setting_ramp_choice = False
+        colours = (DIVERGING_RAMPS if self.diverging else RAMPS)[name]
+        with self.figure.hold_sync():
+            self.color_scale.colors = colours
+            self.figure.background_style = {"fill": blank_color(name)}
+        self.shown_ramp = name
+
+    def _on_palette_choice(self, change):
+        if self._setting_ramp_choice or change.new is None:
+            return
+        if self.diverging:
+            self.velocity_palette = change.new
+        else:
+            self.palette = change.new
 
     @observe("show_beam")
     def _on_show_beam(self, change):
@@ -292,6 +375,7 @@ class SkyView(w.VBox):
 
     @observe("tool")
     def _on_tool(self, change):
+        self.oval_draft.x, self.oval_draft.y = [], []
         self.figure.interaction = {"box": self.box_selector, "oval": self.oval_selector}.get(self.tool,
                                                                                              self.pointer)
         self.close_outline_button.layout.display = "" if self.tool == "outline" else "none"
@@ -314,13 +398,56 @@ class SkyView(w.VBox):
     # --------------------------------------------------------------- drawing
     def _refresh_geometry(self):
         ny, nx = self.cube.shape[1:]
+        try:
+            self.axes = sky_axes(self.cube.wcs, (ny, nx))
+        except CubeShapeError:
+            self.axes = None  # no sky projection: the axes stay in pixels
+        if self.axes is not None:
+            width, height = self.axes.plot_size(MAX_PLOT_SIDE)
+        else:
+            factor = MAX_PLOT_SIDE / max(nx, ny)
+            width, height = max(int(round(nx * factor)), 1), max(int(round(ny * factor)), 1)
+        # The figure is the plot area plus fixed margins, so the plot area has the map's shape on the
+        # sky (square sky pixels) whatever the margins.
+        figure_width = width + FIGURE_MARGIN["left"] + FIGURE_MARGIN["right"]
+        figure_height = height + FIGURE_MARGIN["top"] + FIGURE_MARGIN["bottom"]
+        self.plot_size = [width, height]
         with self.figure.hold_sync():
+            self.figure.layout.width = self.figure.layout.min_width = f"{figure_width}px"
+            self.figure.layout.height = f"{figure_height}px"
+            self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = figure_width / figure_height
             self.x_scale.min, self.x_scale.max = -0.5, nx - 0.5
             self.y_scale.min, self.y_scale.max = -0.5, ny - 0.5
             self.image.x, self.image.y = (-0.5, nx - 0.5), (-0.5, ny - 0.5)
-            self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = nx / ny
+        self.colorbar.layout.height = f"{figure_height}px"
+        self.centre_text = self.axes.centre_text if self.axes is not None else ""
+        centre = f" Axes: offsets from {self.centre_text}." if self.centre_text else ""
+        self._pointer_hint = _POINTER_HINT.format(centre=html.escape(centre))
+        if not self.pointer_text:
+            self._pointer.value = self._pointer_hint
+        self._sync_axes()
         self._beam_cache.clear()
+        self._anchor_cache.clear()
         self._outline_key = None
+
+    def _sync_axes(self, change=None):
+        """Give the axes the world offsets of the pixel scales' ends, and ticks that fit."""
+        if self.axes is None or None in (self.x_scale.min, self.x_scale.max, self.y_scale.min, self.y_scale.max):
+            return
+        width, height = self.plot_size or (MAX_PLOT_SIDE, MAX_PLOT_SIDE)
+        dx, _ = self.axes.offsets([self.x_scale.min, self.x_scale.max], self.axes.centre_pixel[1])
+        _, dy = self.axes.offsets(self.axes.centre_pixel[0], [self.y_scale.min, self.y_scale.max])
+        with self.figure.hold_sync():
+            for axis, scale, ends, room in ((self.x_axis, self.x_axis_scale, dx.value, width // X_TICK_ROOM),
+                                            (self.y_axis, self.y_axis_scale, dy.value, height // Y_TICK_ROOM)):
+                low, high = sorted(float(v) for v in ends)
+                # East is to the left: the offset falls along x, so the axis scale runs reversed.
+                scale.reverse = bool(ends[0] > ends[1])
+                scale.min, scale.max = low, high
+                ticks = nice_ticks(low, high, max(int(room), 2))
+                axis.tick_values = ticks
+                axis.tick_format = f".{tick_decimals(ticks)}f"
+            self.x_axis.label, self.y_axis.label = self.axes.labels
 
     def current_plane(self):
         """The full-resolution 2-D values shown now (a channel read from the memory map, or a map).
@@ -342,8 +469,9 @@ class SkyView(w.VBox):
             values, unit = self.current_plane()
             self._plane = values
             image, factor = display_image(values, self.max_display_size)
-            lo, hi = display_limits(image, self.lower_percentile, self.upper_percentile,
-                                    vmin=self.vmin, vmax=self.vmax)
+            self._image_shown = image
+            limits = centred_limits if self.diverging else display_limits
+            lo, hi = limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin, vmax=self.vmax)
             colour = stretched(image, lo, hi, self.stretch)
             ramp = stretched(np.linspace(lo, hi, 256, dtype=np.float32)[:, None], lo, hi, self.stretch)
             with self.figure.hold_sync(), self.colorbar.hold_sync():
@@ -378,10 +506,9 @@ class SkyView(w.VBox):
         if beam is None:
             self.beam_mark.x, self.beam_mark.y = [], []
             return
-        ny, nx = self.cube.shape[1:]
         size = max(beam.major.to_value("deg") / abs(self.cube.wcs.celestial.pixel_scale_matrix[1, 1]), 1.0)
-        center = (0.06 * nx + size / 2, 0.06 * ny + size / 2)
-        key = (self.window, beam.major.value, beam.minor.value, beam.pa.value)
+        center = self._beam_anchor(size)
+        key = (self.window, beam.major.value, beam.minor.value, beam.pa.value, center)
         if self._outline_key != key:
             self._outline = beam_outline(beam, self.cube.wcs, center)
             self._outline_key = key
@@ -391,6 +518,21 @@ class SkyView(w.VBox):
         x, y = self._outline
         with self.figure.hold_sync():
             self.beam_mark.x, self.beam_mark.y = x, y
+
+    def _beam_anchor(self, size):
+        """Where the beam goes: on the data, near the lower left (placed on the display image)."""
+        image = self._image_shown
+        if image is None:
+            return (size / 2 + 1.0, size / 2 + 1.0)
+        factor = self.display_factor
+        finite = np.isfinite(image)
+        key = (image.shape, factor, round(size, 3), hash(np.packbits(finite).tobytes()))
+        if key not in self._anchor_cache:
+            x, y = beam_anchor(image, size / factor)
+            # A block's centre sits (factor - 1) / 2 full-resolution pixels from its first pixel.
+            offset = (factor - 1) / 2
+            self._anchor_cache = {key: (x * factor + offset, y * factor + offset)}
+        return self._anchor_cache[key]
 
     def _draw_contours(self):
         if not self.contour_source:
@@ -415,13 +557,13 @@ class SkyView(w.VBox):
         scales = {"x": self.x_scale, "y": self.y_scale}
         marks = []
         for item in self.outlines:
+            # Outline only: a fill would tint the data beneath (issue #17).
             marks.append(Lines(x=np.asarray(item["x"], float), y=np.asarray(item["y"], float), scales=scales,
                                colors=[item["color"]], stroke_width=2.5, labels=[item["name"]],
-                               display_legend=False, fill="inside", fill_colors=[item["color"]],
-                               fill_opacities=[0.12]))
+                               display_legend=False, fill="none"))
         self.outline_marks = marks
         self.figure.marks = [self.image, self.contour_mark, *marks, self.beam_mark, self.draft_mark,
-                             self.draft_points]
+                             self.draft_points, self.oval_draft]
 
     # ------------------------------------------------------------- gestures
     def on_shape(self, callback, remove=False):
@@ -439,12 +581,25 @@ class SkyView(w.VBox):
         for callback in list(self._shape_callbacks):
             callback(kind, params)
 
+    def _on_oval_drag(self, change):
+        """Draw the ellipse filling the box being dragged with the oval tool."""
+        sx, sy = self.oval_selector.selected_x, self.oval_selector.selected_y
+        if sx is None or sy is None or len(sx) != 2 or len(sy) != 2:
+            self.oval_draft.x, self.oval_draft.y = [], []
+            return
+        t = np.linspace(0, 2 * np.pi, 61)
+        cx, cy = (sx[0] + sx[1]) / 2, (sy[0] + sy[1]) / 2
+        a, b = abs(sx[1] - sx[0]) / 2, abs(sy[1] - sy[0]) / 2
+        with self.figure.hold_sync():
+            self.oval_draft.x, self.oval_draft.y = cx + a * np.cos(t), cy + b * np.sin(t)
+
     def _on_brush(self, kind, change):
         # Heavy work (region spectra) waits until the mouse is released.
         if change.new:
             return
         selector = self.box_selector if kind == "box" else self.oval_selector
         if selector.selected_x is None or selector.selected_y is None:
+            self.oval_draft.x, self.oval_draft.y = [], []
             return
         params = {"x": [float(v) for v in selector.selected_x], "y": [float(v) for v in selector.selected_y],
                   "angle": float(getattr(selector, "rotate", 0.0) or 0.0)}
@@ -454,13 +609,14 @@ class SkyView(w.VBox):
         # move under the next drag instead of starting a new region.
         selector.selected_x = None
         selector.selected_y = None
+        self.oval_draft.x, self.oval_draft.y = [], []
 
     def _on_pointer_msg(self, _, content, buffers=None):
         event = content.get("event")
         domain = content.get("domain") or {}
         if event == "mouseleave":
             self.pointer_text = ""
-            self._pointer.value = _POINTER_HINT
+            self._pointer.value = self._pointer_hint
             return
         if "x" not in domain or "y" not in domain:
             return
@@ -491,7 +647,7 @@ class SkyView(w.VBox):
         i, j = int(round(x)), int(round(y))
         if not (0 <= i < nx and 0 <= j < ny) or self._plane is None:
             self.pointer_text = ""
-            self._pointer.value = _POINTER_HINT
+            self._pointer.value = self._pointer_hint
             return ""
         _, where = sky_position(self.cube.wcs, x, y)
         unit = self.maps[self.source].unit if self.source != "channel" else self.cube.unit

@@ -7,54 +7,104 @@ functions draw the same data the views hold (which came from
 scripts, tests and CI.
 """
 
+import astropy.units as u
 import numpy as np
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 
-from cubeloupe.analysis import check_output_path
+from cubeloupe.analysis import (
+    check_output_path, cube_rest_frequency, CubeloupeError, frequency_axis, velocity,
+)
 
-from ._look import RAMPS
+from ._look import blank_color
 
-__all__ = ["render_sky", "render_spectrum"]
+__all__ = ["render_sky", "render_spectrum", "channel_title"]
 
 
 def _figure():
     return Figure(figsize=(6, 5), dpi=110)
 
 
-def render_sky(sky_view, path, *, overwrite=False):
+def channel_title(cube, channel, *, rest_frequency=None, z=0.0, convention="radio"):
+    """A channel's place in the band as a picture's title: frequency, and velocity when it can be measured.
+
+    The velocity is measured from ``rest_frequency`` at ``z`` (or the cube's own rest frequency).
+    """
+    frequency = frequency_axis(cube)[channel]
+    text = f"channel {channel} · {frequency.to_value(u.GHz):.6f} GHz"
+    rest = rest_frequency if rest_frequency is not None else cube_rest_frequency(cube)
+    if rest is not None:
+        try:
+            speed = velocity(frequency, rest, z, convention)
+        except CubeloupeError:
+            return text
+        zero = f"rest {u.Quantity(rest, u.GHz).value:.6g} GHz" + (f" at z = {z:g}" if z else "")
+        text += f" · {speed.to_value(u.km / u.s):+.1f} km/s\n({convention} velocity from {zero})"
+    return text
+
+
+def render_sky(sky_view, path, *, overwrite=False, title=None, rest_frequency=None, z=0.0, convention="radio"):
     """Draw the sky view's current image, colour bar, beam, contours and region outlines to a file.
 
-    The format follows the file name's extension (``.png``, ``.svg``, ``.pdf``).
+    The axes are the view's: offsets from the map centre along the celestial axes (or pixels for a
+    map without a sky projection), with square sky pixels. A channel is titled with its frequency
+    and velocity (measured from ``rest_frequency`` at ``z`` in ``convention``, or from the cube's
+    own rest frequency); ``title`` replaces that. The format follows the file name's extension
+    (``.png``, ``.svg``, ``.pdf``).
     """
     path = check_output_path(path, overwrite)
     fig = _figure()
+    fig.set_layout_engine("constrained")
     ax = fig.add_subplot()
     ny, nx = sky_view.cube.shape[1:]
     lo, hi = sky_view.shown_limits
-    cmap = LinearSegmentedColormap.from_list("cubeloupe", RAMPS[sky_view.palette])
+    axes = sky_view.axes
+
+    def world(x, y):
+        if axes is None:
+            return np.asarray(x, float), np.asarray(y, float)
+        dx, dy = axes.offsets(x, y)
+        return dx.value, dy.value
+
+    (left, right), (bottom, top) = world([-0.5, nx - 0.5], [-0.5, ny - 0.5])
+    # Narrow maps get a narrower picture, so the colour bar stays beside the map.
+    fig.set_size_inches(min(max(1.9 + 3.9 * abs(right - left) / abs(top - bottom), 3.8), 7.5), 5)
+    cmap = LinearSegmentedColormap.from_list("cubeloupe", list(sky_view.color_scale.colors)).with_extremes(
+        bad=blank_color(sky_view.shown_ramp))
     shown = ax.imshow(np.asarray(sky_view.image.image), origin="lower", cmap=cmap, vmin=0, vmax=1,
-                      extent=(-0.5, nx - 0.5, -0.5, ny - 0.5), interpolation="nearest")
+                      extent=(left, right, bottom, top), interpolation="nearest", aspect="equal")
     bar = fig.colorbar(shown, ax=ax)
     ticks = np.linspace(0, 1, 5)
     bar.set_ticks(ticks)
     bar.set_ticklabels([f"{v:.3g}" for v in np.interp(ticks, np.asarray(sky_view.bar_image.image)[:, 0],
                                                        np.linspace(lo, hi, 256))])
     bar.set_label(sky_view._bar_axis.label)
-    for mark in (sky_view.contour_mark,):
-        if len(mark.x):
-            ax.plot(mark.x, mark.y, color="white", lw=0.7)
+    if len(sky_view.contour_mark.x):
+        ax.plot(*world(sky_view.contour_mark.x, sky_view.contour_mark.y), color="white", lw=0.7)
     for item in sky_view.outlines:
-        ax.plot(item["x"], item["y"], color=item["color"], lw=1.5)
-        ax.text(item["x"][0], item["y"][0], item["name"], color=item["color"])
+        x, y = world(item["x"], item["y"])
+        ax.plot(x, y, color=item["color"], lw=1.5)
+        ax.text(x[0], y[0], item["name"], color=item["color"])
     if len(sky_view.beam_mark.x):
-        ax.fill(sky_view.beam_mark.x, sky_view.beam_mark.y, color="white", alpha=0.5)
-    title = "channel %d" % sky_view.channel if sky_view.source == "channel" else sky_view.source
-    ax.set_title(title)
-    ax.set_xlabel("x (pixel)")
-    ax.set_ylabel("y (pixel)")
-    ax.set_xlim(-0.5, nx - 0.5)
-    ax.set_ylim(-0.5, ny - 0.5)
+        ax.fill(*world(sky_view.beam_mark.x, sky_view.beam_mark.y), facecolor="white", alpha=0.6,
+                edgecolor="black", lw=0.8)
+    if title is None:
+        if sky_view.source == "channel":
+            title = channel_title(sky_view.cube, sky_view.channel, rest_frequency=rest_frequency, z=z,
+                                  convention=convention)
+        else:
+            title = sky_view.source
+    ax.set_title(title, fontsize=10)
+    if axes is None:
+        ax.set_xlabel("x (pixel)")
+        ax.set_ylabel("y (pixel)")
+    else:
+        ax.set_xlabel(axes.labels[0])
+        ax.set_ylabel(axes.labels[1])
+        ax.text(0.0, -0.13, f"offsets from {axes.centre_text}", transform=ax.transAxes, fontsize=8,
+                color="#486581", va="top")
+    ax.set_xlim(left, right)
+    ax.set_ylim(bottom, top)
     fig.savefig(path)
     return path
 

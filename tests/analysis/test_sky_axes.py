@@ -16,7 +16,7 @@ from astropy.wcs import WCS
 from matplotlib.ticker import MaxNLocator
 
 from cubefactory import make_header
-from cubeloupe.analysis import CubeShapeError, nice_ticks, sky_axes
+from cubeloupe.analysis import CubeShapeError, nice_ticks, sky_axes, tick_decimals
 
 REAL_CUBES = Path(__file__).resolve().parents[2] / ".." / "shared" / "real-cubes"
 
@@ -192,3 +192,11 @@ def test_sin_cube_with_blanked_border(real_cube_header):
     east, north = axes.centre.spherical_offsets_to(reference)
     assert_quantity_allclose(u.Quantity(axes.offsets(64, 64)), u.Quantity([east, north]), atol=1e-3 * u.arcsec)
     assert_quantity_allclose(u.Quantity(axes.offsets(64, 64)), [-1.0, 1.0] * u.arcsec * 0.5, atol=1e-3 * u.arcsec)
+
+
+@pytest.mark.parametrize("ticks, decimals", [([-10.0, 0.0, 10.0], 0), ([-25.0, 0.0, 25.0], 0), ([-2.5, 0.0, 2.5], 1),
+                                             ([0.02, 0.04, 0.06], 2), ([-0.25, 0.0, 0.25], 2), ([3.0], 0)])
+def test_tick_labels_carry_just_enough_decimals(ticks, decimals):
+    assert tick_decimals(ticks) == decimals
+    # Written with that many decimals every tick reads back exactly (hand-checkable values).
+    assert [float(f"{t:.{decimals}f}") for t in ticks] == ticks

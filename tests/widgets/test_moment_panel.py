@@ -8,8 +8,8 @@ import astropy.units as u
 import pytest
 from numpy.testing import assert_allclose
 
-from cubeloupe.analysis import open_cube
-from cubeloupe.analysis.display import display_image, display_limits, stretched
+from cubeloupe.analysis import centred_limits, open_cube
+from cubeloupe.analysis.display import display_image, stretched
 from cubeloupe.analysis.moments import moment_maps
 from cubeloupe.widgets import Loupe
 
@@ -34,7 +34,7 @@ def test_moment_action_equals_moment_maps(loupe, line_cube):
     shown[~(expected.m0.value > 3 * expected.m0_error.value)] = float("nan")
     assert 0 < (expected.m0.value > 3 * expected.m0_error.value).sum() < shown.size
     image, _ = display_image(shown, loupe.sky_view.max_display_size)
-    lo, hi = display_limits(image)
+    lo, hi = centred_limits(image)  # a velocity field: colour limits symmetric about zero (#17)
     assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi), rtol=1e-5, equal_nan=True)
     loupe.sky_view.contour_source = "moment 0"
     assert len(loupe.sky_view.contour_mark.x) > 0
