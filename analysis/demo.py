@@ -29,8 +29,12 @@ __all__ = ["DEMO_CUBES", "demo_names", "demo_path", "demo_truth"]
 # Name -> one-line description; the files are <name>.fits and <name>.json in cubeloupe.demo_cubes.
 DEMO_CUBES = {
     "disk": "Quillwort-D7: nearby rotating disk galaxy in CO(2-1); Jy/beam, frequency axis, one beam",
-    "lensed_spw1": "Quillwort-L1: lensed dusty galaxy at z~3, first spectral window (two lines, sloping continuum)",
-    "lensed_spw2": "Quillwort-L1: same delivery, second spectral window (wider channels, another pixel grid)",
+    "lensed_spw1": "Quillwort-L1: lensed dusty galaxy at z~2.7, window 1: CO(7-6) and [CI] 2-1, sloping continuum",
+    "lensed_spw2": "Quillwort-L1: window 2 (wider channels, another pixel grid): ortho- and para-H2O",
+    "lensed_spw3": "Quillwort-L1: window 3: ortho-H2O 1_10-1_01 and CO(5-4)",
+    "lensed_spw4": "Quillwort-L1: window 4: para-H2O 2_02-1_11",
+    "lensed_spw5": "Quillwort-L1: window 5: CO(9-8)",
+    "lensed_spw6": "Quillwort-L1: window 6: para-H2O 2_11-2_02",
     "single_dish": "Quillwort-C4: molecular cloud in CO(1-0); K, velocity axis, degenerate Stokes axis (4-D)",
     "varying_beams": "Quillwort-N2: galaxy nucleus in CO(3-2); one beam per channel, blanked edge channels",
 }
@@ -47,8 +51,9 @@ def demo_names():
 
     Examples
     --------
-    >>> demo_names()
-    ['disk', 'lensed_spw1', 'lensed_spw2', 'single_dish', 'varying_beams']
+    >>> demo_names()  # doctest: +NORMALIZE_WHITESPACE
+    ['disk', 'lensed_spw1', 'lensed_spw2', 'lensed_spw3', 'lensed_spw4', 'lensed_spw5', 'lensed_spw6',
+     'single_dish', 'varying_beams']
     """
     return list(DEMO_CUBES)
 
@@ -120,6 +125,9 @@ def demo_truth(name):
         ``z``, ``beam`` (or ``beams``), ``lines`` (each with its rest and
         observed frequency, velocity, width, flux and peak), ``continuum``
         and the model parameters of the source (``disk``, ``lens``, ...).
+        The lensed windows also hold ``lte_model``: the excitation
+        temperature, number of molecules, ortho-to-para ratio and
+        partition functions their CO and H2O fluxes were made from.
 
     Raises
     ------
@@ -130,9 +138,11 @@ def demo_truth(name):
     --------
     >>> truth = demo_truth("lensed_spw1")
     >>> truth["z"]
-    3.0421
+    2.67
     >>> [line["species"] for line in truth["lines"]]
     ['CO', '[CI]']
+    >>> truth["lte_model"]["species"]["H2O"]["ortho_para_ratio"]
+    2.5
     """
     path = _demo_file(name, ".json")
     return _with_quantities(json.loads(path.read_text()))

@@ -12,15 +12,20 @@ Cubes
     Quillwort-D7, a nearby rotating, inclined disk galaxy in CO(2-1):
     arctan rotation curve, exponential surface brightness, constant velocity
     dispersion, a weak continuum nucleus; Jy/beam, FREQ axis, one beam.
-``lensed_spw1``, ``lensed_spw2``
-    Quillwort-L1, a dusty galaxy at z = 3.0421 strongly lensed into a ring by
-    a foreground galaxy (singular isothermal sphere), seen in two spectral
+``lensed_spw1`` ... ``lensed_spw6``
+    Quillwort-L1, a dusty galaxy at z = 2.67 strongly lensed into a ring by
+    a foreground galaxy (singular isothermal sphere), seen in six spectral
     windows of one delivery with different channel widths and pixel grids:
-    CO(7-6) and [CI] 3P2-3P1 in the first, ortho-H2O 3_12-3_03 and
-    para-H2O 1_11-0_00 in the second; dust continuum rising with frequency.
+    CO(7-6) and [CI] 3P2-3P1; ortho-H2O 3_12-3_03 and para-H2O 1_11-0_00;
+    ortho-H2O 1_10-1_01 and CO(5-4); para-H2O 2_02-1_11; CO(9-8); para-H2O
+    2_11-2_02. The CO and H2O fluxes come from an LTE model (optically thin,
+    one excitation temperature and number of molecules per species, an
+    ortho-to-para ratio for water; Goldsmith & Langer 1999, ApJ 517, 209),
+    recorded in the sidecar, so a population diagram can be checked against
+    it; dust continuum rising with frequency.
 ``single_dish``
-    Quillwort-C4, a Galactic molecular cloud mapped in CO(1-0) by a single
-    dish: main-beam brightness temperature in K, VRAD axis in m/s, a
+    Quillwort-C4, a Galactic molecular cloud in the outer Galaxy (invented
+    position and velocities) mapped in CO(1-0) by a single dish: main-beam brightness temperature in K, VRAD axis in m/s, a
     degenerate Stokes axis (4-D file).
 ``varying_beams``
     Quillwort-N2, the nucleus of a nearby galaxy in CO(3-2): one restoring
@@ -43,7 +48,10 @@ Rest frequencies come from the bundled catalog
 fallback table below. The sidecar says which was used.
 
 Run ``python demo_cubes/make_demo_cubes.py [--out DIR]``. Needs numpy and
-astropy only. The same numpy and astropy versions give the same bytes.
+astropy (and, when importable, `cubeloupe.analysis.partition_function` for
+CO's partition function; the sidecar says which was used). The same numpy and
+astropy versions give the same bytes. Budget: the whole folder (FITS files
+and sidecars) stays under 13 MB.
 """
 
 import argparse
@@ -402,12 +410,12 @@ def make_disk(out):
 
 
 # --------------------------------------------------------------------------------------------
-# (b) the lensed galaxy in two spectral windows
+# (b) the lensed galaxy in six spectral windows
 
 LENS = {
-    "z_source": 3.0421,
-    "z_lens": 0.61,
-    "phase_centre": (34.81250, -5.27125),                  # RA, Dec in deg
+    "z_source": 2.67,
+    "z_lens": 0.58,
+    "phase_centre": (140.85730, -19.33720),                # RA, Dec in deg (invented, nothing known there)
     "lens_offset": (0.04, -0.03),                          # arcsec east, north of the phase centre
     "einstein_radius": 1.05,                               # arcsec
     "source_offset": (0.11, 0.06),                         # arcsec east, north of the lens (source plane)
@@ -420,18 +428,282 @@ LENS = {
     "dust_alpha": 3.3,
 }
 
+# The molecular gas of Quillwort-L1 in local thermodynamic equilibrium (LTE), optically thin: one
+# excitation temperature and one number of molecules (de-lensed) per species; water's ortho and
+# para species share the temperature and split the molecules by the ortho-to-para ratio. Line
+# fluxes follow from `lte_line_flux`; [CI] is not part of the model and keeps a set flux.
+LTE_MODEL = {
+    "CO": {"temperature": 70.0, "total_number": 1.3e61},
+    "H2O": {"temperature": 75.0, "total_number": 3.5e58, "ortho_para_ratio": 2.5},
+}
+SET_FLUXES = {("[CI]", "3P2-3P1"): 2.3}                    # Jy km/s (lensed), outside the LTE model
+LINE_DISPERSION = {"CO": 120.0, "[CI]": 115.0, "H2O": 105.0}   # km/s, local dispersion of each species
+
+# Windows: centre (GHz), channel width (Hz), channels, pixel (arcsec), grid (pixels), beam
+# (FWHM major, minor in arcsec, PA in deg), rms (Jy/beam per channel) and the lines injected.
+# Every CO and H2O line of the catalog with an Einstein A that falls in a window at z_source is
+# injected (make_lensed checks it), so the windows hold the whole LTE spectrum of the model.
 LENSED_WINDOWS = {
     "lensed_spw1": {
-        "pixel": 0.075, "crpix": (33.0, 33.0), "beam": (0.46, 0.38, 32.0), "rms": 0.12e-3,
-        "n_channels": 100, "crval": 198.93e9, "cdelt": 19.53125e6,
-        "lines": [("CO", "J=7-6", 3.8, 120.0), ("[CI]", "3P2-3P1", 2.3, 115.0)],
+        "centre": 220.15, "cdelt": 23.4375e6, "n_channels": 100, "pixel": 0.075, "grid": 64,
+        "crpix": (33.0, 33.0), "beam": (0.46, 0.38, 32.0), "rms": 0.12e-3,
+        "lines": [("CO", "J=7-6"), ("[CI]", "3P2-3P1")],
     },
     "lensed_spw2": {
-        "pixel": 0.06, "crpix": (32.5, 32.5), "beam": (0.34, 0.29, 38.0), "rms": 0.10e-3,
-        "n_channels": 100, "crval": 276.44e9, "cdelt": -60.0e6,
-        "lines": [("H2O", "3_12-3_03", 3.0, 105.0), ("H2O", "1_11-0_00", 2.2, 105.0)],
+        "centre": 301.20, "cdelt": -65.0e6, "n_channels": 100, "pixel": 0.06, "grid": 64,
+        "crpix": (32.5, 32.5), "beam": (0.34, 0.29, 38.0), "rms": 0.10e-3,
+        "lines": [("H2O", "3_12-3_03"), ("H2O", "1_11-0_00")],
+    },
+    "lensed_spw3": {
+        "centre": 154.40, "cdelt": 40.0e6, "n_channels": 160, "pixel": 0.12, "grid": 48,
+        "crpix": (24.5, 24.5), "beam": (0.66, 0.55, -20.0), "rms": 0.07e-3,
+        "lines": [("H2O", "1_10-1_01"), ("CO", "J=5-4")],
+    },
+    "lensed_spw4": {
+        "centre": 269.30, "cdelt": 25.0e6, "n_channels": 80, "pixel": 0.09, "grid": 48,
+        "crpix": (24.5, 24.5), "beam": (0.38, 0.32, 45.0), "rms": 0.07e-3,
+        "lines": [("H2O", "2_02-1_11")],
+    },
+    "lensed_spw5": {
+        "centre": 282.40, "cdelt": -25.0e6, "n_channels": 80, "pixel": 0.09, "grid": 48,
+        "crpix": (24.5, 24.5), "beam": (0.36, 0.31, 41.0), "rms": 0.08e-3,
+        "lines": [("CO", "J=9-8")],
+    },
+    "lensed_spw6": {
+        "centre": 205.00, "cdelt": 20.0e6, "n_channels": 80, "pixel": 0.1, "grid": 48,
+        "crpix": (24.5, 24.5), "beam": (0.50, 0.41, 28.0), "rms": 0.06e-3,
+        "lines": [("H2O", "2_11-2_02")],
     },
 }
+
+
+# --------------------------------------------------------------------------------------------
+# LTE line fluxes of the lensed galaxy
+
+# Ortho-H2O levels of the LAMDA file (Schoier et al. 2005, A&A 432, 369; spectroscopy from JPL),
+# copy read in GitHub UCL/Magritte Projects/Lime_1/data/H2O.dat: energy (cm^-1, above para 0_00)
+# and weight. LAMDA's weights 3 (2J+1) include the ortho nuclear-spin factor 3; it is divided out
+# here, as the catalog's g_up leaves it out (analysis/data/make_transitions.py, DEGENERACY).
+# Levels up to 900 cm^-1 (1 300 K): the rest change Q by < 1e-6 at 150 K.
+ORTHO_H2O_LEVELS_CM = (
+    (23.794356, 9), (42.371741, 9), (79.496382, 15), (134.901638, 15), (136.761650, 21),
+    (173.365803, 21), (212.156362, 21), (224.838381, 27), (285.418572, 21), (300.362281, 27),
+    (325.347901, 33), (382.516882, 27), (399.457517, 33), (446.510668, 33), (447.252352, 39),
+    (488.107691, 27), (508.812051, 33), (552.911385, 39), (586.243543, 45), (610.341162, 33),
+    (648.978689, 39), (704.214046, 45), (742.076279, 33), (744.162650, 51), (756.724775, 39),
+    (782.409821, 45), (842.356584, 45), (885.600201, 51), (888.598736, 39),
+)
+# Para-H2O levels, from the ground level 0_00 up a chain of the catalog's laboratory line
+# frequencies (Ritz combination principle: a level's energy is the sum of the photon energies of
+# a chain of lines reaching it). Each entry: level, (line, sign) steps from an already known level.
+PARA_H2O_LADDER = (
+    ("1_11", "0_00", "1_11-0_00"), ("2_02", "1_11", "2_02-1_11"), ("2_11", "2_02", "2_11-2_02"),
+    ("2_20", "2_11", "2_20-2_11"), ("3_13", "2_20", "3_13-2_20"), ("3_22", "3_13", "3_22-3_13"),
+    ("3_31", "3_22", "3_31-3_22"), ("4_04", "3_13", "4_04-3_13"), ("4_13", "3_22", "4_13-3_22"),
+    ("4_22", "3_31", "4_22-3_31"), ("4_31", "4_22", "4_31-4_22"), ("5_15", "4_22", "5_15-4_22"),
+    ("5_24", "4_31", "5_24-4_31"),
+)
+# The rigid-rotor partition function of a linear molecule, Q = kT/(hB) + 1/3 (e.g. Mangum &
+# Shirley 2015, PASP 127, 266, eq. 52); B of CO from the CDMS entry (from memory).
+CO_ROTATIONAL_CONSTANT_GHZ = 57.6359683
+
+
+def _catalog_table():
+    from astropy.table import Table
+
+    return Table.read(CATALOG, format="ascii.ecsv")
+
+
+def catalog_row(species, transition):
+    """The bundled catalog's row of a line (an astropy Table row)."""
+    table = _catalog_table()
+    match = (table["species"] == species) & (table["transition"] == transition)
+    if not match.any():
+        raise KeyError(f"{species} {transition} is not in {CATALOG}")
+    return table[match][0]
+
+
+def upper_level_degeneracy(species, transition):
+    """g_up of a line: the catalog's column when it has one, else 2 J_up + 1 from the label.
+
+    The label's first number is the upper level's J (``"J=7-6"``, ``"3_12-3_03"``); no
+    nuclear-spin factor, the catalog's convention. Returns (g_up, where it came from).
+    """
+    row = catalog_row(species, transition)
+    if "g_up" in row.colnames and np.isfinite(row["g_up"]):
+        return float(row["g_up"]), "catalog g_up (analysis/data/transitions.ecsv)"
+    j_up = int(transition.replace("J=", "").split("_")[0].split("-")[0])
+    return 2.0 * j_up + 1.0, "2 J_up + 1 from the transition label (no nuclear-spin factor)"
+
+
+def para_h2o_levels_k():
+    """{level: E/k in K} of para-H2O from the catalog's line frequencies (see PARA_H2O_LADDER)."""
+    h_over_k = (constants.h / constants.k_B).to_value(u.K / u.GHz)
+    levels = {"0_00": 0.0}
+    for level, below, line in PARA_H2O_LADDER:
+        nu = u.Quantity(catalog_row("H2O", line)["rest_frequency"], _catalog_table()["rest_frequency"].unit)
+        levels[level] = levels[below] + h_over_k * nu.to_value(u.GHz)
+    return levels
+
+
+def level_sum(energies_k, weights, temperature, energy_zero=0.0):
+    """Q = sum_i g_i exp(-(E_i - E_0) / kT), the partition function as a sum over levels."""
+    e = np.asarray(energies_k, float) - energy_zero
+    return float(np.sum(np.asarray(weights, float) * np.exp(-e / temperature)))
+
+
+def demo_partition_function(species, spin, temperature):
+    """(Q, energy zero in K, source) of a species of the LTE model at ``temperature`` (K).
+
+    CO: `cubeloupe.analysis.partition_function` (the CDMS table) when it is importable, else
+    the rigid rotor kT/(hB) + 1/3. H2O: a spin species' own Q, counted from its lowest level
+    (ortho 1_01, para 0_00), summed over its levels (the bundled tables have only the total
+    over both spin species).
+    """
+    if species == "CO":
+        try:
+            from cubeloupe.analysis import partition_function, partition_function_source
+        except ImportError:
+            partition_function = None
+        if partition_function is not None:
+            q = partition_function("CO", temperature * u.K).value
+            return float(q), 0.0, "cubeloupe.analysis.partition_function: " + partition_function_source("CO")
+        kt_over_hb = (constants.k_B * temperature * u.K / (constants.h * CO_ROTATIONAL_CONSTANT_GHZ * u.GHz)
+                      ).decompose().value
+        return kt_over_hb + 1.0 / 3.0, 0.0, ("rigid rotor Q = kT/(hB) + 1/3 (Mangum & Shirley 2015, PASP 127, "
+                                            "266, eq. 52), B = 57.6359683 GHz (CDMS, from memory)")
+    if species == "H2O" and spin == "ortho":
+        energies = [_cm_to_k(e) for e, _ in ORTHO_H2O_LEVELS_CM]
+        weights = [g / 3.0 for _, g in ORTHO_H2O_LEVELS_CM]
+        zero = energies[0]
+        return level_sum(energies, weights, temperature, zero), zero, (
+            "sum over the ortho-H2O levels of the LAMDA file (Schoier et al. 2005, A&A 432, 369), "
+            "copy in GitHub UCL/Magritte Projects/Lime_1/data/H2O.dat, weights 2J+1, levels to 900 cm^-1")
+    if species == "H2O" and spin == "para":
+        levels = para_h2o_levels_k()
+        weights = [2 * int(name.split("_")[0]) + 1 for name in levels]
+        return level_sum(list(levels.values()), weights, temperature), 0.0, (
+            "sum over the para-H2O levels up to 5_24 (600 K), energies from the catalog's laboratory "
+            "line frequencies chained from 0_00 (Ritz combination principle), weights 2J+1; the missing "
+            "levels lie above 640 K and change Q by < 0.1 % at 100 K")
+    raise KeyError(f"no LTE partition function for {species} {spin}")
+
+
+def _cm_to_k(wavenumber):
+    """E/k in K of a level at ``wavenumber`` cm^-1: E = h c (wavenumber)."""
+    return (constants.h * constants.c * wavenumber / u.cm / constants.k_B).to_value(u.K)
+
+
+def lte_upper_level_number(total_number, g_up, e_up, temperature, q, energy_zero=0.0):
+    """Molecules in the upper level in LTE: N_u = N g_u exp(-(E_u - E_0)/kT) / Q (Boltzmann)."""
+    return total_number * g_up * np.exp(-(e_up - energy_zero) / temperature) / q
+
+
+def lte_line_flux(upper_number, einstein_a, z, magnification, luminosity_distance_m):
+    """Velocity-integrated flux (Jy km/s) of an optically thin line from N_u molecules at z.
+
+    Each molecule in the upper level emits A_ul photons of h nu_rest a second, so
+    L = N_u A_ul h nu_rest; the flux L mu / (4 pi D_L^2) spread over a line of
+    velocity width dv seen at nu_obs = nu_rest / (1 + z) gives
+    S dv = N_u A_ul h c (1 + z) mu / (4 pi D_L^2) (the optically thin relation
+    between line intensity and upper-level population of Goldsmith & Langer 1999,
+    ApJ 517, 209, eq. 7-9, for an unresolved source at luminosity distance D_L).
+    """
+    flux = (upper_number * einstein_a / u.s * constants.h * constants.c * (1 + z) * magnification
+            / (4 * np.pi * (luminosity_distance_m * u.m) ** 2))
+    return flux.to_value(u.Jy * u.km / u.s)
+
+
+def lens_magnification(fwhm):
+    """Magnification of a Gaussian source of ``fwhm`` (arcsec) by the demo's lens.
+
+    Lensing keeps surface brightness, so the magnification is the image's integral over the
+    source's (2 pi sigma^2): summed on a 0.004 arcsec grid, fine enough for 5 significant digits.
+    """
+    step, half = 0.004, 2.6
+    offsets = np.arange(-half, half + step / 2, step)
+    east, north = np.meshgrid(offsets, offsets)
+    r = np.maximum(np.hypot(east, north), 1e-9)
+    shrink = 1.0 - LENS["einstein_radius"] / r
+    de, dn = east * shrink - LENS["source_offset"][0], north * shrink - LENS["source_offset"][1]
+    sigma = fwhm / FWHM_PER_SIGMA
+    image = np.exp(-0.5 * (de ** 2 + dn ** 2) / sigma ** 2)
+    return float(image.sum() * step ** 2 / (2 * np.pi * sigma ** 2))
+
+
+def luminosity_distance_m(z):
+    from astropy.cosmology import Planck18
+
+    return Planck18.luminosity_distance(z).to_value(u.m)
+
+
+def lte_lines(species, transition):
+    """The LTE facts of a line of the model: sidecar fields and its flux (Jy km/s, lensed)."""
+    model = LTE_MODEL[species]
+    row = catalog_row(species, transition)
+    spin = str(row["spin_isomer"]) if str(row["spin_isomer"]) != "none" else None
+    temperature = model["temperature"]
+    total = model["total_number"]
+    if spin is not None:
+        ratio = model["ortho_para_ratio"]
+        total = total * (ratio / (1 + ratio) if spin == "ortho" else 1 / (1 + ratio))
+    q, zero, q_source = demo_partition_function(species, spin, temperature)
+    g_up, g_source = upper_level_degeneracy(species, transition)
+    e_up = float(u.Quantity(row["E_up"], _catalog_table()["E_up"].unit).to_value(u.K))
+    a_ul = float(u.Quantity(row["einstein_A"], _catalog_table()["einstein_A"].unit).to_value(1 / u.s))
+    z = LENS["z_source"]
+    mu = lens_magnification(LENS["gas_fwhm"])
+    n_up = lte_upper_level_number(total, g_up, e_up, temperature, q, zero)
+    flux = lte_line_flux(n_up, a_ul, z, mu, luminosity_distance_m(z))
+    return flux, {
+        "from_lte_model": True,
+        "g_up": g_up, "g_up_from": g_source,
+        "E_up": quantity(e_up, "K"), "einstein_A": quantity(a_ul, "1/s"),
+        "upper_level_number": quantity(n_up, "", 8),
+        "upper_level_number_note": "molecules in the upper level, de-lensed (intrinsic)",
+    }
+
+
+def lte_model_entry():
+    """The sidecar's record of the LTE model: what was set, the constants used and their sources."""
+    z = LENS["z_source"]
+    species = {}
+    for name, model in LTE_MODEL.items():
+        entry = {"temperature": quantity(model["temperature"], "K"),
+                 "total_number": quantity(model["total_number"], ""),
+                 "total_number_note": "molecules in all levels (both spin species for H2O), de-lensed"}
+        spins = ("ortho", "para") if "ortho_para_ratio" in model else (None,)
+        if "ortho_para_ratio" in model:
+            entry["ortho_para_ratio"] = model["ortho_para_ratio"]
+        for spin in spins:
+            q, zero, source = demo_partition_function(name, spin, model["temperature"])
+            part = {"partition_function": _round(q, 8), "energy_zero": quantity(zero, "K", 8),
+                    "partition_function_from": source}
+            if spin is None:
+                entry.update(part)
+            else:
+                ratio = model["ortho_para_ratio"]
+                share = ratio / (1 + ratio) if spin == "ortho" else 1 / (1 + ratio)
+                part["number"] = quantity(model["total_number"] * share, "")
+                entry[spin] = part
+        species[name] = entry
+    return {
+        "assumptions": ("local thermodynamic equilibrium at one excitation temperature per species, "
+                        "optically thin lines, no background; H2O ortho and para share the temperature"),
+        "level_population": "N_u = N g_up exp(-(E_up - energy_zero) / (k T)) / Q(T)",
+        "line_flux": "S dv = N_u A_ul h c (1 + z) mu / (4 pi D_L^2)",
+        "reference": ("Goldsmith & Langer 1999, ApJ 517, 209 (population diagrams: optically thin line "
+                      "intensity and upper-level population, Boltzmann distribution)"),
+        "energy_zero_note": ("E_up on the catalog's scale (above para-H2O 0_00 for water); each spin species "
+                             "counts its Q and populations from its own lowest level (energy_zero)"),
+        "g_up_note": "no nuclear-spin factors in g_up or Q (the catalog's convention)",
+        "cosmology": "Planck18 (astropy.cosmology)",
+        "luminosity_distance": quantity(luminosity_distance_m(z) * u.m.to(u.Mpc), "Mpc", 8),
+        "magnification": _round(lens_magnification(LENS["gas_fwhm"]), 6),
+        "magnification_note": "of the line-emitting gas; fluxes in 'lines' are lensed (observed)",
+        "species": species,
+        "not_in_model": [f"{s} {t}: set flux {f} Jy km/s" for (s, t), f in SET_FLUXES.items()],
+    }
 
 
 def lensed_source_plane(x, y, lens_px, pixel):
@@ -446,21 +718,42 @@ def lensed_source_plane(x, y, lens_px, pixel):
     return east * shrink, north * shrink
 
 
+def check_window_holds_model_lines(name, freq_ghz, z):
+    """Refuse a window layout that leaves out a line the LTE model predicts in the window.
+
+    Every catalog line of a model species with an Einstein A, whose redshifted frequency lies
+    in the window (with a 300 km/s margin), must be listed in the window's ``lines``.
+    """
+    table = _catalog_table()
+    unit = table["rest_frequency"].unit
+    lo, hi = freq_ghz.min() * (1 - 300 / C_KMS), freq_ghz.max() * (1 + 300 / C_KMS)
+    listed = set(LENSED_WINDOWS[name]["lines"])
+    for row in table:
+        if row["species"] not in LTE_MODEL or not np.isfinite(row["einstein_A"]):
+            continue
+        observed = u.Quantity(row["rest_frequency"], unit).to_value(u.GHz) / (1 + z)
+        if lo <= observed <= hi and (row["species"], row["transition"]) not in listed:
+            raise ValueError(f"{name}: {row['species']} {row['transition']} at {observed:.3f} GHz falls in the "
+                             "window but is not injected; add it to LENSED_WINDOWS")
+
+
 def make_lensed(out, name):
     spw = LENSED_WINDOWS[name]
     rng = rng_for(name)
     z = LENS["z_source"]
-    shape = (spw["n_channels"], 64, 64)
+    shape = (spw["n_channels"], spw["grid"], spw["grid"])
     pixel = spw["pixel"]
+    crval = spw["centre"] * 1e9 - 0.5 * (spw["n_channels"] - 1) * spw["cdelt"]
     bmaj, bmin, bpa = spw["beam"]
     header = base_header(shape, pixel=pixel, ra=LENS["phase_centre"][0], dec=LENS["phase_centre"][1],
                          crpix=spw["crpix"], obj="Quillwort-L1", telescope="SYNTHETIC-ARRAY")
     first_rest = rest_frequency(*spw["lines"][0][:2])
-    add_spectral_axis(header, "FREQ", spw["crval"], spw["cdelt"], "Hz", first_rest * 1e9 / (1 + z))
+    add_spectral_axis(header, "FREQ", crval, spw["cdelt"], "Hz", first_rest * 1e9 / (1 + z))
     add_beam(header, bmaj, bmin, bpa)
     header["BUNIT"] = "Jy/beam"
     header["SPECSYS"] = "BARYCENT"
-    freq_ghz = channel_values(spw["crval"], spw["cdelt"], shape[0]) / 1e9
+    freq_ghz = channel_values(crval, spw["cdelt"], shape[0]) / 1e9
+    check_window_holds_model_lines(name, freq_ghz, z)
 
     # Lens centre on this window's pixel grid (the windows share sky positions, not pixels).
     centre_px = pixel_of(header, LENS["phase_centre"][0], LENS["phase_centre"][1])
@@ -479,10 +772,9 @@ def make_lensed(out, name):
     pa = np.deg2rad(LENS["gradient_pa"])
     vfield = LENS["gradient_v"] * np.tanh((de * np.sin(pa) + dn * np.cos(pa)) / LENS["gradient_r"])
     sub_area = (pixel / sub) ** 2
-    # Lensing keeps surface brightness, so the magnification is the ratio of image to source areas
-    # weighted by brightness: sum over the image grid / integral of the source (2 pi sigma^2).
-    mu_gas = gas.sum() * sub_area / (2 * np.pi * (LENS["gas_fwhm"] / FWHM_PER_SIGMA) ** 2)
-    mu_dust = dust.sum() * sub_area / (2 * np.pi * (LENS["dust_fwhm"] / FWHM_PER_SIGMA) ** 2)
+    # One magnification for every window, from a grid finer than any window's (lens_magnification).
+    mu_gas = lens_magnification(LENS["gas_fwhm"])
+    mu_dust = lens_magnification(LENS["dust_fwhm"])
 
     def binned(plane):
         return plane.reshape(ny, sub, nx, sub).sum(axis=(1, 3))
@@ -500,8 +792,15 @@ def make_lensed(out, name):
     sky = np.zeros(shape)
     lines_truth = []
     fine_v = np.arange(-1500.0, 1500.0, 0.5)
-    for species, transition, flux, sigma_v in spw["lines"]:
+    for species, transition in spw["lines"]:
         rest_ghz, line_info = line_entry(species, transition)
+        sigma_v = LINE_DISPERSION[species]
+        if (species, transition) in SET_FLUXES:
+            flux = SET_FLUXES[(species, transition)]
+            line_info["from_lte_model"] = False
+        else:
+            flux, lte_info = lte_lines(species, transition)
+            line_info.update(lte_info)
         vel = radio_velocity(freq_ghz, rest_ghz, z)
         # Jy per pixel: flux * brightness share * normalised Gaussian profile (1 / (km/s))
         profiles = gaussian(vel[None, :], bin_v[:, None], sigma_v) / (np.sqrt(2 * np.pi) * sigma_v)
@@ -518,8 +817,8 @@ def make_lensed(out, name):
             "velocity_note": "flux-weighted velocity of the lensed emission (differential magnification "
                              "moves it off 0)",
             "observed_frequency_of_centroid": quantity(frequency_of(centroid, rest_ghz, z), "GHz", 10),
-            "flux": quantity(flux, "Jy km/s"),
-            "intrinsic_flux": quantity(flux / mu_gas, "Jy km/s", 5),
+            "flux": quantity(flux, "Jy km/s", 8),
+            "intrinsic_flux": quantity(flux / mu_gas, "Jy km/s", 8),
             "local_dispersion": quantity(sigma_v, "km/s"),
             "fwhm": quantity(half[-1] - half[0], "km/s", 4),
             "fwhm_note": "full width at half maximum of the noise-free spatially integrated line",
@@ -558,7 +857,10 @@ def make_lensed(out, name):
         "position_note": "of the lens centre; the lensed source forms a ring around it"})
     truth.update({
         "z": z,
-        "delivery": {"windows": list(LENSED_WINDOWS), "note": "two spectral windows of one delivery"},
+        "delivery": {"windows": list(LENSED_WINDOWS), "note": f"{len(LENSED_WINDOWS)} spectral windows of one "
+                     "delivery; every CO and H2O line of the catalog (with an Einstein A) that falls in a "
+                     "window is injected, with its LTE flux"},
+        "lte_model": lte_model_entry(),
         "beam": beam_entry(bmaj, bmin, bpa),
         "lines": lines_truth,
         "continuum": {
@@ -613,20 +915,20 @@ def make_single_dish(out):
     beam = 33.0                                           # arcsec, circular
     rms = 0.18                                            # K per channel
     rest_ghz, line_info = line_entry("CO", "J=1-0")
-    header = base_header(shape, pixel=pixel, ra=83.94750, dec=-3.81500, crpix=(32.5, 32.5),
+    header = base_header(shape, pixel=pixel, ra=75.54500, dec=45.60700, crpix=(32.5, 32.5),
                          projection="SFL", obj="Quillwort-C4", telescope="SYNTHETIC-DISH")
-    add_spectral_axis(header, "VRAD", -4000.0, 250.0, "m/s", rest_ghz * 1e9)
+    add_spectral_axis(header, "VRAD", -24600.0, 250.0, "m/s", rest_ghz * 1e9)
     add_beam(header, beam, beam, 0.0)
     header["BUNIT"] = "K"
     header["COMMENT"] = "Main-beam brightness temperature (Rayleigh-Jeans), synthetic data."
-    vel = channel_values(-4.0, 0.25, shape[0])            # km/s
+    vel = channel_values(-24.6, 0.25, shape[0])           # km/s
 
     ny, nx = shape[1:]
     y, x = np.mgrid[0:ny, 0:nx].astype(float)
     # A filament with a velocity gradient along it, and a dense core at another velocity.
     fil = {"centre_pixel": (30.0, 34.0), "pa": 60.0, "length_fwhm": 330.0, "width_fwhm": 75.0,
-           "peak": 5.5, "v_centre": 7.2, "gradient": 0.9, "sigma": 0.85}
-    core = {"centre_pixel": (42.0, 23.0), "fwhm": 60.0, "peak": 9.0, "v_centre": 11.6, "sigma": 0.55}
+           "peak": 5.5, "v_centre": -13.4, "gradient": 0.9, "sigma": 0.85}
+    core = {"centre_pixel": (42.0, 23.0), "fwhm": 60.0, "peak": 9.0, "v_centre": -9.0, "sigma": 0.55}
     east, north = -(x - fil["centre_pixel"][0]) * pixel, (y - fil["centre_pixel"][1]) * pixel
     pa = np.deg2rad(fil["pa"])
     along = east * np.sin(pa) + north * np.cos(pa)
@@ -816,7 +1118,7 @@ def make_varying_beams(out):
     write_sidecar(out / f"{name}.json", truth)
 
 
-DEMO_NAMES = ("disk", "lensed_spw1", "lensed_spw2", "single_dish", "varying_beams")
+DEMO_NAMES = ("disk", *LENSED_WINDOWS, "single_dish", "varying_beams")
 
 
 def make_all(out=HERE):

@@ -212,30 +212,33 @@ print(write_spectra({"disk": spectrum}, "quillwort_d7_spectrum.ecsv", overwrite=
 # ------------------------------------------------------------------------------------------------
 HIGH_Z = [
     md("""
-# Line identification at high redshift
+# Line identification at high redshift, and what several lines say together
 
-A dusty galaxy behind a foreground galaxy, **Quillwort-L1** (invented), was observed in two
+A dusty galaxy behind a foreground galaxy, **Quillwort-L1** (invented), was observed in six
 spectral windows of one delivery. The windows have different channel widths and pixel grids. We
 know neither the redshift nor which lines we see. This notebook finds the lines, solves for the
-redshift, measures the fluxes and turns them into line luminosities, correcting for the lensing
-magnification.
+redshift, measures the fluxes, turns them into line luminosities (correcting for the lensing
+magnification) and puts the CO and water lines on population diagrams.
 
 *Quick-look numbers: final fluxes need calibrated, primary-beam-corrected products.*
 """),
     code("""
+import astropy.constants as const
 import astropy.units as u
 import matplotlib.pyplot as plt
 import numpy as np
 from astropy.coordinates import SkyCoord
+from astropy.table import QTable
 
 from cubeloupe.analysis import (
-    demo_path, demo_truth, find_line, fit_baseline, line_luminosity, lines_in_band, measure_line, open_cube,
-    redshift_candidates, redshift_summary, region_spectrum, velocity,
+    demo_names, demo_path, demo_truth, find_line, fit_baseline, line_luminosity, lines_in_band, measure_line,
+    open_cube, redshift_candidates, redshift_summary, region_spectrum, velocity,
 )
 from cubeloupe.analysis.check import check_cube
 
 kms = u.km / u.s
-paths = [demo_path("lensed_spw1"), demo_path("lensed_spw2")]
+names = [name for name in demo_names() if name.startswith("lensed_")]
+paths = [demo_path(name) for name in names]
 cubes = [open_cube(p) for p in paths]
 for p, cube in zip(paths, cubes):
     band = cube.spectral_axis.to(u.GHz)
@@ -247,7 +250,7 @@ for p, cube in zip(paths, cubes):
 
 Lensing stretches the galaxy into a ring around the foreground galaxy. An aperture that follows
 the ring collects the line flux with much less noise than the whole image. It is defined on the
-sky, so the same ring is used on both pixel grids.
+sky, so the same ring is used on every pixel grid.
 """),
     code("""
 def ring_mask(cube, centre, inner, outer):
@@ -260,44 +263,46 @@ def ring_mask(cube, centre, inner, outer):
 centre = SkyCoord(cubes[0].wcs.celestial.wcs.crval[0], cubes[0].wcs.celestial.wcs.crval[1], unit="deg")
 masks = [ring_mask(cube, centre, 0.5 * u.arcsec, 1.6 * u.arcsec) for cube in cubes]
 
-fig, axes = plt.subplots(1, 2, figsize=(9, 4))
-for ax, cube, mask in zip(axes, cubes, masks):
+fig, axes = plt.subplots(2, 3, figsize=(12, 8))
+for ax, cube, mask, name in zip(axes.flat, cubes, masks, names):
     ax.imshow(np.nansum(cube.unmasked_data[:].value, axis=0), origin="lower", cmap="inferno")
     ax.contour(mask, levels=[0.5], colors="cyan")
-    ax.set_title(cube.meta["cubeloupe_source"]["path"].split("/")[-1])
+    ax.set_title(name)
 spectra = [region_spectrum(cube, mask) for cube, mask in zip(cubes, masks)]
 """),
     md("""
 ## 2. Find the lines and solve for the redshift
 
-The delivery check flags channels where emission stands out; two or more lines, in either
+The delivery check flags channels where emission stands out; two or more lines, in any
 window, are enough for the redshift solver to try every catalog pair.
 """),
     code("""
 peaks = []
-for cube in cubes:
+for name, cube in zip(names, cubes):
     for feature in check_cube(cube).lines.features:
-        print(f"line near {feature.frequency:.3f} (peak S/N {feature.peak_snr:.1f})")
+        print(f"{name}: line near {feature.frequency:.3f} (peak S/N {feature.peak_snr:.1f})")
         peaks.append(feature.frequency.to_value(u.GHz))
 
 candidates = redshift_candidates(peaks * u.GHz)
 for c in candidates[:3]:
     print(f"z = {c.z:.4f} +/- {c.z_uncertainty:.4f}: {c.lines}, rms residual {c.rms_residual:.0f}")
 z = candidates[0].z
+identified = {name for name in candidates[0].lines if name is not None}
 """),
     md("""
 ## 3. The line overlay
 
-At that redshift, the catalog says which lines fall in each window. Grey bands mark the channels
-kept free of any line (more than 650 km/s away), where the baseline is fitted. The continuum
-rises with frequency, as dust emission does.
+At that redshift, the catalog says where each identified line falls. Grey bands mark the
+channels kept free of them (more than 650 km/s away), where the baseline is fitted. The
+continuum rises with frequency, as dust emission does.
 """),
     code("""
-fig, axes = plt.subplots(1, 2, figsize=(13, 3.8))
+fig, axes = plt.subplots(2, 3, figsize=(15, 7.5))
 in_band, line_free = [], []
-for ax, spectrum in zip(axes, spectra):
+for ax, spectrum, name in zip(axes.flat, spectra, names):
     freq = spectrum.spectral_axis.to(u.GHz)
-    lines = lines_in_band(freq.min(), freq.max(), z=z, max_E_up=400 * u.K)
+    lines = lines_in_band(freq.min(), freq.max(), z=z)
+    lines = lines[np.isin(lines["name"], sorted(identified))]
     in_band.append(lines)
     free = np.ones(freq.size, bool)
     for rest in lines["rest_frequency"]:
@@ -314,7 +319,7 @@ for ax, spectrum in zip(axes, spectra):
         ax.axvline(row["observed_frequency"].value, color="tab:blue", ls=":")
         ax.text(row["observed_frequency"].value, ax.get_ylim()[1], row["name"], rotation=90,
                 va="top", ha="right", fontsize=8)
-    ax.set(xlabel="observed frequency (GHz)", ylabel="flux density (mJy)")
+    ax.set(title=name, xlabel="observed frequency (GHz)", ylabel="flux density (mJy)")
 plt.tight_layout()
 """),
     md("""
@@ -322,35 +327,76 @@ plt.tight_layout()
 
 Each identified line is measured over +/- 550 km/s of its redshifted frequency, after the baseline. The
 lensing magnification comes from a lens model, which is outside this tool; for this invented
-system the model gives the value recorded with the demo cube.
+system the model gives the value recorded with the demo cubes.
 """),
     code("""
-magnification = demo_truth("lensed_spw1")["lens"]["magnification"]
+magnification = demo_truth(names[0])["lens"]["magnification"]
 print(f"z = {z:.4f}; lensing magnification mu = {magnification:.1f} (from the lens model)")
 summary = redshift_summary(z)
 print(f"luminosity distance {summary.luminosity_distance:.0f}, {summary.angular_scale:.2f}, "
       f"age of the universe then {summary.age:.2f} ({summary.cosmology})")
 
-identified = {name for name in candidates[0].lines if name is not None}
 rows = []
 for spectrum, lines, ranges in zip(spectra, in_band, line_free):
     for row in lines:
-        if row["name"] not in identified:
-            continue
         measured = measure_line(spectrum, (-550, 550) * kms, line_free=ranges,
                                 rest_frequency=row["rest_frequency"], z=z)
         lum = line_luminosity(measured.flux, z, row["rest_frequency"], magnification=magnification)
-        rows.append((row["name"], measured.flux, measured.flux_error, measured.snr, lum.l_prime))
+        rows.append({"line": row["name"], "flux": measured.flux, "flux_error": measured.flux_error,
+                     "l_prime": lum.l_prime})
         print(f"{row['name']:<16} {measured.flux:.2f} +/- {measured.flux_error:.2f} (S/N {measured.snr:.0f}); "
               f"L' = {lum.l_prime:.2e} after dividing by mu")
+measured_lines = QTable(rows=rows)
 """),
     md("""
-## 5. Both windows in the interactive suite
+## 5. Population diagrams: CO and water together
+
+In local thermodynamic equilibrium, with optically thin lines, the number of molecules in a
+line's upper level follows from its flux, N_u = 4 pi D_L^2 (S dv) / ((1 + z) c h A_ul mu), and
+ln(N_u / g_u) falls on a straight line against the upper level's energy with slope -1/T
+(Goldsmith & Langer 1999, ApJ 517, 209). Ortho and para water are separate species, each
+counted from its own lowest level. The apertures miss a few per cent of the flux, so the
+points sit slightly below the lines of the model the demo was made from (dashed, from the
+demo's record); the slopes, which give the temperature, agree.
+"""),
+    code("""
+d_l = summary.luminosity_distance
+points = []
+for row in measured_lines:
+    line = find_line(row["line"])
+    if line["species"] not in ("CO", "H2O"):
+        continue
+    n_up = (4 * np.pi * d_l**2 * row["flux"] / ((1 + z) * const.c * const.h * line["einstein_A"] * magnification)
+            ).decompose()
+    points.append((str(line["spin_isomer"]) if line["species"] == "H2O" else "CO", line["E_up"].to_value(u.K),
+                   np.log(n_up.value / line["g_up"]), (row["flux_error"] / row["flux"]).decompose().value))
+
+model = demo_truth(names[0])["lte_model"]["species"]
+fig, ax = plt.subplots(figsize=(7, 4.5))
+for kind, colour in [("CO", "tab:red"), ("ortho", "tab:blue"), ("para", "tab:green")]:
+    e_up, y, error = (np.array(v) for v in zip(*[p[1:] for p in points if p[0] == kind]))
+    ax.errorbar(e_up, y, yerr=error, fmt="o", color=colour, label=f"{kind} (measured)")
+    species = model["CO"] if kind == "CO" else model["H2O"][kind]
+    number = model["CO"]["total_number"] if kind == "CO" else species["number"]
+    temperature = (model["CO"] if kind == "CO" else model["H2O"])["temperature"].to_value(u.K)
+    grid = np.linspace(0, 300, 50)
+    ax.plot(grid, np.log(number.value / species["partition_function"])
+            - (grid - species["energy_zero"].to_value(u.K)) / temperature, "--", color=colour,
+            label=f"{kind} model, T = {temperature:.0f} K")
+    if len(e_up) >= 2:
+        slope, _ = np.polyfit(e_up, y, 1, w=1 / error)
+        print(f"{kind}: excitation temperature from {len(e_up)} lines {-1 / slope:.0f} K "
+              f"(the model: {temperature:.0f} K)")
+ax.set(xlabel="E_up / k (K)", ylabel="ln(N_u / g_u)")
+ax.legend(fontsize=8);
+"""),
+    md("""
+## 6. All windows in the interactive suite
 
 `Loupe` takes the list of windows; the catalog overlay follows `z`, and the magnification is
-divided out of the luminosities in its measurement table. These two windows lie far apart, so the
+divided out of the luminosities in its measurement table. These windows lie far apart, so the
 spectrum spans the window shown on the sky ("Sky shows" switches it); "Spectrum spans: all windows"
-puts both on one axis.
+puts them on one axis.
 """),
     code("""
 from cubeloupe.widgets import Loupe

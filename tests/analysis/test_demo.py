@@ -7,9 +7,11 @@ stated noise (3 sigma of the measurement's own error unless said otherwise).
 
 import json
 
+import astropy.constants as const
 import astropy.units as u
 import numpy as np
 import pytest
+from astropy.cosmology import Planck18
 from astropy.io import fits
 from astropy.tests.helper import assert_quantity_allclose
 from regions import CirclePixelRegion, PixCoord
@@ -21,6 +23,8 @@ from cubeloupe.analysis import (
     demo_path,
     demo_truth,
     find_line,
+    load_catalog,
+    partition_function,
     fit_baseline,
     measure_line,
     moment_maps,
@@ -31,7 +35,10 @@ from cubeloupe.analysis import (
 from cubeloupe.demo_cubes import make_demo_cubes
 
 KMS = u.km / u.s
-NAMES = ["disk", "lensed_spw1", "lensed_spw2", "single_dish", "varying_beams"]
+LENSED = [f"lensed_spw{k}" for k in range(1, 7)]
+NAMES = ["disk", *LENSED, "single_dish", "varying_beams"]
+# The demo folder's size budget (FITS files and sidecars), stated in make_demo_cubes.py.
+BUDGET_BYTES = 13e6
 
 
 def within(measured, expected, error, n_sigma=3):
@@ -59,15 +66,18 @@ def test_unknown_name_lists_the_choices():
 
 
 def test_small_enough_to_ship():
-    total = sum(demo_path(name).stat().st_size for name in NAMES)
-    assert total < 10e6
+    files = [demo_path(name) for name in NAMES] + [demo_path(name).with_suffix(".json") for name in NAMES]
+    assert sum(path.stat().st_size for path in files) < BUDGET_BYTES
 
 
 @pytest.mark.slow
 def test_generator_is_deterministic(tmp_path):
-    """Rerunning the generator gives the shipped files: same data, headers and sidecars."""
+    """Rerunning the generator gives the shipped files byte for byte: same data, headers and sidecars."""
     make_demo_cubes.make_all(tmp_path)
     for name in NAMES:
+        for suffix in (".fits", ".json"):
+            assert (tmp_path / f"{name}{suffix}").read_bytes() == demo_path(name).with_suffix(suffix).read_bytes(), (
+                f"{name}{suffix} differs from a fresh run; rerun demo_cubes/make_demo_cubes.py")
         with fits.open(demo_path(name)) as shipped, fits.open(tmp_path / f"{name}.fits") as fresh:
             assert len(shipped) == len(fresh)
             for a, b in zip(shipped, fresh):
@@ -128,13 +138,108 @@ def test_sidecar_lines_agree_with_catalog_and_band(name):
 
 
 def test_lensed_windows_share_a_source_and_differ_in_grid():
-    one, two = demo_truth("lensed_spw1"), demo_truth("lensed_spw2")
-    assert one["z"] == two["z"] and one["source"]["name"] == two["source"]["name"]
-    assert one["spectral_axis"]["cdelt"] != two["spectral_axis"]["cdelt"]
-    assert one["pixel_size"] != two["pixel_size"]
-    spins = {line.get("spin_isomer") for line in two["lines"]}
-    assert spins == {"ortho", "para"}
-    assert {line["species"] for line in one["lines"]} == {"CO", "[CI]"}
+    truths = [demo_truth(name) for name in LENSED]
+    first = truths[0]
+    for truth in truths[1:]:
+        assert truth["z"] == first["z"] and truth["source"] == first["source"]
+        assert truth["lte_model"] == first["lte_model"]
+    assert len({t["spectral_axis"]["cdelt"] for t in truths}) == len(LENSED)
+    assert len({t["pixel_size"].to_value(u.arcsec) for t in truths}) > 3
+    assert first["delivery"]["windows"] == LENSED
+
+
+def test_lensed_windows_hold_enough_lines_for_population_diagrams():
+    """At least three CO lines and two ortho and two para water lines, each at its own E_up."""
+    lines = [line for name in LENSED for line in demo_truth(name)["lines"]]
+    e_up = {}
+    for line in lines:
+        if line["from_lte_model"]:
+            key = (line["species"], line.get("spin_isomer"))
+            e_up.setdefault(key, set()).add(round(find_line(line["catalog_name"])["E_up"].to_value(u.K), 1))
+    assert len(e_up[("CO", None)]) >= 3
+    assert len(e_up[("H2O", "ortho")]) >= 2 and len(e_up[("H2O", "para")]) >= 2
+
+
+def test_every_model_line_in_a_window_is_injected():
+    """No CO or H2O line of the catalog with an Einstein A falls in a window without being injected.
+
+    A line at redshift z is seen at f_rest / (1 + z) (common practice)."""
+    catalog = load_catalog()
+    model = demo_truth(LENSED[0])["lte_model"]["species"]
+    for name in LENSED:
+        truth = demo_truth(name)
+        band = open_cube(demo_path(name)).spectral_axis.to(u.GHz)
+        injected = {line["catalog_name"] for line in truth["lines"]}
+        for row in catalog[np.isin(catalog["species"], list(model))]:
+            if not np.isfinite(row["einstein_A"].value):
+                continue
+            observed = row["rest_frequency"] / (1 + truth["z"])
+            if band.min() <= observed <= band.max():
+                assert row["name"] in injected, f"{name}: {row['name']} at {observed:.3f} is in the band"
+
+
+def _lte_flux(line, model, z):
+    """The optically thin LTE flux of a line, from the sidecar's model and the catalog's constants.
+
+    N_u = N g_u exp(-(E_u - E_0) / kT) / Q(T) and N_u = 4 pi D_L^2 (S dv) / ((1 + z) c h A_ul mu)
+    (Goldsmith & Langer 1999, ApJ 517, 209: optically thin line strength and upper-level
+    population, here for an unresolved source at luminosity distance D_L), with astropy's
+    constants and Planck18 cosmology.
+    """
+    row = find_line(line["catalog_name"])
+    species = model["species"][line["species"]]
+    spin = line.get("spin_isomer")
+    number = species["total_number"]
+    if spin is None:
+        q, zero = species["partition_function"], species["energy_zero"]
+    else:
+        ratio = species["ortho_para_ratio"]
+        number = number * (ratio / (1 + ratio) if spin == "ortho" else 1 / (1 + ratio))
+        q, zero = species[spin]["partition_function"], species[spin]["energy_zero"]
+    n_up = number * row["g_up"] * np.exp(-(row["E_up"] - zero) / species["temperature"]) / q
+    d_l = Planck18.luminosity_distance(z)
+    return (n_up * (1 + z) * const.c * const.h * row["einstein_A"] * model["magnification"]
+            / (4 * np.pi * d_l ** 2)).to(u.Jy * KMS)
+
+
+@pytest.mark.parametrize("name", LENSED)
+def test_lte_fluxes_follow_the_optically_thin_formula(name):
+    truth = demo_truth(name)
+    model = truth["lte_model"]
+    assert_quantity_allclose(model["luminosity_distance"], Planck18.luminosity_distance(truth["z"]), rtol=1e-7)
+    assert model["magnification"] == pytest.approx(truth["lens"]["magnification"], rel=1e-4)
+    for line in truth["lines"]:
+        if not line["from_lte_model"]:
+            continue
+        row = find_line(line["catalog_name"])
+        assert line["g_up"] == row["g_up"]
+        assert_quantity_allclose(line["E_up"], row["E_up"])
+        assert_quantity_allclose(line["einstein_A"], row["einstein_A"])
+        # The sidecar rounds the magnification to 6 significant digits: 1e-5 covers that.
+        assert_quantity_allclose(line["flux"], _lte_flux(line, model, truth["z"]), rtol=1e-5)
+        assert_quantity_allclose(line["intrinsic_flux"] * model["magnification"], line["flux"], rtol=1e-5)
+
+
+def test_lte_partition_functions_agree_with_published_ones():
+    species = demo_truth(LENSED[0])["lte_model"]["species"]
+    # CO: the rigid-rotor expansion Q = kT/(hB) + 1/3 (Mangum & Shirley 2015, PASP 127, 266,
+    # eq. 52), B = 57.6359683 GHz (CDMS, from memory).
+    t_co = species["CO"]["temperature"]
+    rigid = (const.k_B * t_co / (const.h * 57.6359683 * u.GHz)).decompose().value + 1 / 3
+    assert species["CO"]["partition_function"] == pytest.approx(rigid, rel=3e-3)
+    # H2O: the ortho and para sums, each from its own lowest level, add up to JPL's published
+    # total over both spin species with the ortho spin weight 3 (Pickett et al. 1998, JQSRT 60,
+    # 883; bundled by cubeloupe.analysis.partition_function); 1 % covers the table's log-log
+    # interpolation between its 37.5 and 75 K entries.
+    water = species["H2O"]
+    t = water["temperature"]
+    total = (water["para"]["partition_function"]
+             + 3 * np.exp(-(water["ortho"]["energy_zero"] / t).decompose().value) * water["ortho"]["partition_function"])
+    assert total == pytest.approx(partition_function("H2O", t).value, rel=0.01)
+    # Ortho-H2O's lowest level 1_01 lies 23.794 cm^-1 above para 0_00 (LAMDA o-H2O file; Schoier
+    # et al. 2005, A&A 432, 369): E/k = h c 23.794 cm^-1 / k.
+    assert_quantity_allclose(water["ortho"]["energy_zero"],
+                             (const.h * const.c * 23.794356 / u.cm / const.k_B).to(u.K), rtol=1e-6)
 
 
 # ------------------------------------------------------------------------------------------------
@@ -220,7 +325,7 @@ def test_disk_moment1_follows_the_rotation_model():
     assert maps.m1.to_value(KMS)[ry, rx] > v_sys.value + 100
 
 
-@pytest.mark.parametrize("name", ["lensed_spw1", "lensed_spw2"])
+@pytest.mark.parametrize("name", LENSED)
 def test_lensed_lines_and_sloping_continuum(name):
     truth = demo_truth(name)
     ring = truth["ring_aperture"]
@@ -264,7 +369,9 @@ def test_single_dish_core_in_kelvin_and_jansky():
     assert cube.unit == u.K and cube.ndim == 3  # the Stokes axis is dropped
     centre = np.zeros(cube.shape[1:], bool)
     centre[int(core["centre_pixel"]["y"]), int(core["centre_pixel"]["x"])] = True
-    line_free = [(-3.5, 1.5), (14.5, 20.5)] * KMS
+    # Line-free: beyond the core's and the filament's emission on either side (the filament spans
+    # about -5 to +3 km/s from the core's velocity across the map).
+    line_free = core["velocity"] + [(-15.1, -10.1), (2.9, 8.9)] * KMS
     window = core["velocity"] + [-2.0, 2.0] * KMS
     # Velocities come from the file's own VRAD axis: no rest frequency is needed.
     measured = measure_line(region_spectrum(cube, centre), window, line_free=line_free)
