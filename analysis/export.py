@@ -168,9 +168,16 @@ def _checked_output_path(path, overwrite):
     if len(os.fsencode(path.name)) > name_max:
         raise ExportError(f"cannot write {_shown(path)}: its name has {len(os.fsencode(path.name))} bytes and "
                           f"this file system allows {name_max}; choose a shorter name")
-    if not os.access(folder, os.W_OK | os.X_OK):
-        raise ExportError(f"cannot write {_shown(path)}: the folder {_shown(folder)} is not writable "
-                          "(permission denied or read-only); choose a folder you can write to")
+    # os.access misses read-only mounts, ACLs and root without its capabilities: creating a file is the test.
+    try:
+        handle, probe = tempfile.mkstemp(dir=folder, prefix=".cubeloupe-", suffix=".probe")
+    except OSError as exc:
+        if exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+            raise ExportError(f"cannot write {_shown(path)}: the folder {_shown(folder)} is not writable "
+                              f"({os.strerror(exc.errno)}); choose a folder you can write to") from None
+        raise
+    os.close(handle)
+    os.unlink(probe)
     return path
 
 
@@ -362,10 +369,10 @@ def _reads_back_as_text(value):
 def _ecsv_ready(table):
     """A copy of ``table`` whose column names and text values read back exactly from ECSV."""
     for name in table.colnames:
-        if not name or not name.isprintable():
+        if name.splitlines() != [name]:
             raise ExportContentError(
-                f"the column name {_shown(name)} cannot be written to ECSV (empty, or holds a line break or "
-                "another control character); rename the column"
+                f"the column name {_shown(name)} cannot be written to ECSV: it holds a line break, which "
+                "ECSV's header line cannot carry; rename the column"
             )
     table = Table(table, copy=True)
     for name in table.colnames:
@@ -382,7 +389,11 @@ def _ecsv_ready(table):
 def _write_ecsv(table, path, overwrite):
     table = _ecsv_ready(table)
     with _replacing(path, overwrite) as temporary:
-        table.write(temporary, format="ascii.ecsv", overwrite=True)
+        try:
+            table.write(temporary, format="ascii.ecsv", overwrite=True)
+        except (TypeError, ValueError) as exc:  # astropy's refusals of what a column holds
+            raise ExportContentError(f"cannot write the table to {_shown(path)}: {exc}; "
+                                     "convert that column to numbers or text first") from None
     return path
 
 
@@ -458,7 +469,8 @@ def write_table(table, path, *, overwrite=False):
     Raises
     ------
     ExportContentError
-        A column name that ECSV cannot hold (empty, or with a line break).
+        A column name that ECSV cannot hold (one with a line break), or a
+        column astropy cannot write (e.g. Python sets).
     OutputExistsError, CubeFileError, ExportError
         See `write_map`.
     """

@@ -89,7 +89,7 @@ def check_redshift(z, *, argname="z"):
         if z.unit != u.dimensionless_unscaled:
             raise RedshiftError(f"{argname} must be a plain number; got {z}")
         z = z.value
-    if not isinstance(z, numbers.Real) and not (np.ndim(z) == 0 and np.isreal(z)):
+    if z is None or not isinstance(z, numbers.Real) and not (np.ndim(z) == 0 and np.isreal(z)):  # np.isreal(None) is True
         raise RedshiftError(f"{argname} must be a number; got {z!r}")
     z = float(z)
     if not np.isfinite(z) or z <= -1 or z > Z_MAX:
