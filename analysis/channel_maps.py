@@ -30,11 +30,11 @@ Examples
 """
 
 import math
-import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
 import astropy.units as u
+import contourpy
 import numpy as np
 
 from .beams import map_beam
@@ -187,6 +187,24 @@ def channel_panels(cube, window, *, n=16, average=True, rest_frequency=None, z=0
     )
 
 
+def _contour_lines(image, levels):
+    """Contours of ``image`` as one NaN-separated (x, y) pair per level, in pixel coordinates.
+
+    Traced by contourpy (matplotlib's tracer) straight into NaN-separated
+    arrays: on noisy 512 x 512 panels, with tens of thousands of small loops,
+    matplotlib's ``contour`` took over 1 s for 16 panels and joining separate
+    pieces in Python (`display.contour_paths`) several seconds.
+    """
+    generator = contourpy.contour_generator(z=np.ma.masked_invalid(np.asarray(image, dtype=float)),
+                                            line_type=contourpy.LineType.ChunkCombinedNan)
+    lines = []
+    for level in levels:
+        chunks = [chunk for chunk in generator.lines(float(level))[0] if chunk is not None]
+        points = np.concatenate(chunks) if chunks else np.empty((0, 2))
+        lines.append((points[:, 0], points[:, 1]))
+    return lines
+
+
 def _label(value, unit):
     text = unit.to_string().replace(" / ", "/")
     if unit.is_equivalent(_KMS):
@@ -300,10 +318,12 @@ def channel_maps(cube, window, *, n=16, average=True, rest_frequency=None, z=0.0
             ax.set_yticks([])
         shown = ax.imshow(image, origin="lower", cmap=cmap, vmin=low, vmax=high, interpolation="nearest")
         if levels and np.isfinite(image).any():
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", UserWarning)  # "no contour levels were found" on empty panels
-                ax.contour(image, levels=[-levels[0]] + levels, colors=["0.75"] + ["white"] * len(levels),
-                           linestyles=["dashed"] + ["solid"] * len(levels), linewidths=0.6)
+            drawn = [-levels[0]] + levels
+            for (x, y), level, colour, style in zip(_contour_lines(image, drawn), drawn,
+                                                    ["0.75"] + ["white"] * len(levels), ["--"] + ["-"] * len(levels)):
+                if x.size:
+                    ax.plot(x, y, color=colour, linestyle=style, linewidth=0.6, scalex=False, scaley=False,
+                            gid=f"contour {float(level)!r}")
         ax.text(0.04, 0.95, _label(panels.centers[i].value, panels.centers.unit), transform=ax.transAxes,
                 ha="left", va="top", color="white", fontsize=8)
         if i == labelled:

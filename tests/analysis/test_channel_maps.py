@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 from astropy.visualization.wcsaxes import WCSAxes
 from numpy.testing import assert_allclose
+from scipy.ndimage import map_coordinates
 
 from cubefactory import velocity_axis_kms, write_cube
 from cubeloupe.analysis import SpectralRangeError, open_cube
@@ -81,8 +82,18 @@ def test_figure_has_one_colour_scale_contours_at_rms_multiples_and_labels(noise_
     sky = [ax for ax in image_axes if isinstance(ax, WCSAxes)]
     assert len(sky) == 1 and sky[0] is image_axes[2]          # lower-left panel of a 2 x 2 grid
     rms = panels.rms.to_value(cube.unit)
-    levels = [c.levels for ax in image_axes for c in ax.collections if hasattr(c, "levels")]
-    assert_allclose(levels[0], np.array([-3, 3, 6, 12, 24, 48]) * rms)
+    # Contours at -3, 3, 6, ... x rms: every vertex of a level's line interpolates to that level (contour
+    # tracing interpolates linearly along pixel edges, where bilinear interpolation reduces to the same).
+    expected = set(np.array([-3, 3, 6, 12, 24, 48]) * rms)
+    for ax, image in zip(image_axes, panels.images.value):
+        for line in ax.lines:
+            level = float(line.get_gid().split()[1])
+            assert min(abs(level - e) for e in expected) < 1e-9 * rms
+            x, y = line.get_data()
+            good = np.isfinite(x)
+            values = map_coordinates(image.astype(float), [y[good], x[good]], order=1)
+            assert_allclose(values, level, rtol=1e-4, atol=1e-6 * rms)
+    assert any(float(line.get_gid().split()[1]) < 0 for ax in image_axes for line in ax.lines)
     labels = [t.get_text() for ax in image_axes for t in ax.texts]
     assert labels == [f"{v:.1f} km/s" for v in panels.centers.to_value(KMS)]
     fig.savefig(tmp_path / "maps.png")
