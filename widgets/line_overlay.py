@@ -167,13 +167,12 @@ class LineOverlay(w.VBox):
                                                    "velocity axis, in the channel readout and in measurements; "
                                                    "the first entry is the cube's own rest frequency",
                                            style={"description_width": "initial"},
-                                           layout=w.Layout(width="250px"))
+                                           layout=w.Layout(width="300px"))
         self.reference_choice.add_class("cubeloupe-reference-line")
         w.link((self.reference_choice, "value"), (self, "reference_line"))
-        self.candidate_choice = w.Select(options=[], rows=3, description="Candidate z",
+        self.candidate_choice = w.Select(options=[], rows=3,
                                          tooltip="Redshifts that explain the peaks you marked, best first",
-                                         style={"description_width": "initial"},
-                                         layout=w.Layout(width="100%"))
+                                         layout=w.Layout(width="auto"))
         self.candidate_choice.add_class("cubeloupe-z-candidates")
         self.use_candidate = w.Button(description="Use this z", icon="check", layout=w.Layout(width="104px"),
                                       tooltip="Set the redshift to the chosen candidate")
@@ -191,13 +190,14 @@ class LineOverlay(w.VBox):
                 row([self.z_input, self.reference_choice]),
                 self.velocity_slider,
                 self.summary,
-            ], width="450px", css_class="cubeloupe-redshift-group"),
+            ], width="500px", css_class="cubeloupe-redshift-group"),
             section("Catalog lines shown", [
                 row([self.species_choice, w.VBox([self.isomer_choice, self.eup_input, self.all_species_button])],
                     align_items="flex-start"),
                 self._species_note,
             ], width="384px", css_class="cubeloupe-filter-group"),
-            section("Redshift from peaks", [peaks_hint, self.candidate_choice, self.use_candidate],
+            section("Redshift from peaks", [peaks_hint, w.HTML("Candidate redshifts, best first:"),
+                                            self.candidate_choice, self.use_candidate],
                     css_class="cubeloupe-peaks-group"),
         ]
         for group in self.groups[:2]:

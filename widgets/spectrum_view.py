@@ -112,7 +112,7 @@ class SpectrumView(w.VBox):
         self.y_scale = LinearScale()
         self.band_scale = LinearScale(min=0.0, max=1.0, allow_padding=False)
         self.x_axis = Axis(scale=self.x_scale, label="observed frequency (GHz)", grid_lines="none")
-        self.y_axis = Axis(scale=self.y_scale, side="left", label="", grid_lines="dashed")
+        self.y_axis = Axis(scale=self.y_scale, side="left", label="", grid_lines="dashed", label_offset="58px")
         band = {"x": self.x_scale, "y": self.band_scale}
         self.free_mark = Lines(x=[], y=[], scales=band, fill="inside", colors=[LINE_FREE_FILL],
                                fill_colors=[LINE_FREE_FILL], fill_opacities=[0.3], stroke_width=0)
@@ -125,8 +125,8 @@ class SpectrumView(w.VBox):
         self.zero_mark = Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale},
                                colors=[BASELINE_COLOR], stroke_width=0.8)
         self.figure = Figure(marks=[], axes=[self.x_axis, self.y_axis],
-                             fig_margin={"top": 30, "bottom": 45, "left": 65, "right": 32},
-                             layout=w.Layout(width="100%", height="360px"))
+                             fig_margin={"top": 30, "bottom": 45, "left": 72, "right": 84},
+                             layout=w.Layout(width="calc(100% - 4px)", height="360px"))
         self.figure.add_class("cubeloupe-spectrum-figure")
         # The pointer is followed in every mode. bqplot lays its interaction layer over the marks,
         # so marks never see the mouse: line markers are found from the pointer's position instead
@@ -158,7 +158,7 @@ class SpectrumView(w.VBox):
         w.link((self.convention_choice, "value"), (self, "convention"))
         self.mode_buttons = w.ToggleButtons(options=[(label, key) for key, (label, _) in CLICK_MODES.items()],
                                             tooltips=[tip for _, tip in CLICK_MODES.values()],
-                                            style=w.ToggleButtonsStyle(button_width="98px"))
+                                            style=w.ToggleButtonsStyle(button_width="112px"))
         self.mode_buttons.add_class("cubeloupe-spectrum-mode")
         w.link((self.mode_buttons, "value"), (self, "mode"))
         self.order_choice = w.BoundedIntText(value=1, min=0, max=MAX_ORDER, description="Baseline order",
