@@ -223,6 +223,22 @@ def test_partly_outside_region_uses_the_inside_part(cube_path, rng):
     assert_allclose(spec.value, data[:, :3, :3].mean(axis=(1, 2)), rtol=1e-6)
 
 
+
+def test_region_far_larger_than_the_image_is_rasterised_over_the_overlap(cube_path, rng):
+    """Regression test for #14: a 3000-pixel circle on a 10 x 10 image is read over the image only."""
+    from cubeloupe.analysis.spectra import region_pixels
+
+    data = rng.normal(0, 1, (3, 10, 10))
+    cube = open_cube(cube_path(data))
+    region = CirclePixelRegion(PixCoord(4.5, 4.5), radius=3000)
+    box, inside, n_outside = region_pixels(cube, region)
+    assert box == (slice(0, 10), slice(0, 10)) and inside.all()
+    # Off the image: the circle's area pi r^2 (in pixels) less the 100 inside, the documented estimate.
+    assert n_outside == round(np.pi * 3000**2) - 100
+    with pytest.warns(PartialRegionWarning, match=f"{n_outside} of {n_outside + 100} pixels"):
+        spec = region_spectrum(cube, region, statistic="mean")
+    assert_allclose(spec.value, data.mean(axis=(1, 2)), rtol=1e-6)
+
 @pytest.mark.parametrize("region, match", [
     (CirclePixelRegion(PixCoord(-20, 5), radius=3), "wholly outside"),
     (CirclePixelRegion(PixCoord(5, 60), radius=3), "wholly outside"),
