@@ -229,3 +229,23 @@ def test_given_guesses_are_used():
     fit = fit_gaussians(spec, n_components=2, window=WINDOW, line_free=LINE_FREE, order=0,
                         guesses=[(1 * u.K, -20 * KMS, 20 * KMS), (0.5 * u.K, 30 * KMS, 20 * KMS)])
     assert [round(c.center.value / 10) for c in fit.components] == [-3, 4]
+
+
+def test_hyperfine_fit_by_catalog_group_name():
+    if "hyperfine_group" not in load_catalog().colnames:
+        pytest.skip("the bundled catalog has no hyperfine groups yet")
+    lines = hyperfine_lines("N2H+ J=1-0")
+    reference = lines["rest_frequency"][int(np.argmax(lines["relative_intensity"]))]
+    rng = np.random.default_rng(22)
+    v = np.arange(-15.0, 25.0, 0.05)
+    offsets = (constants.c * (1 - (lines["rest_frequency"] / reference).to_value(u.one))).to_value(KMS)
+    # Same radiative transfer as above (Mangum & Shirley 2015, eqs. 27-31), with the catalog's own components.
+    tau_v = 2.0 * np.sum(lines["relative_intensity"][None, :]
+                         * np.exp(-FOUR_LN2 * (v[:, None] - 1.5 - offsets[None, :]) ** 2 / 0.5**2), axis=1)
+    y = 4.0 * -np.expm1(-tau_v) + rng.normal(0, 0.05, v.size)
+    fit = fit_gaussians(y * u.K, spectral_axis=v * KMS, hyperfine="N2H+ J=1-0")
+    h = fit.hyperfine
+    assert h.group == "N2H+ J=1-0"
+    assert h.optical_depth == pytest.approx(2.0, abs=3 * h.optical_depth_error)
+    assert h.center.to_value(KMS) == pytest.approx(1.5, abs=3 * h.center_error.to_value(KMS))
+    assert_allclose(h.reference_frequency.to_value(u.GHz), reference.to_value(u.GHz))
