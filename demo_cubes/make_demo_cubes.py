@@ -25,8 +25,9 @@ Cubes
     it; dust continuum rising with frequency.
 ``single_dish``
     Quillwort-C4, a Galactic molecular cloud in the outer Galaxy (invented
-    position and velocities) mapped in CO(1-0) by a single dish: main-beam brightness temperature in K, VRAD axis in m/s, a
-    degenerate Stokes axis (4-D file).
+    position and velocities) mapped in CO(1-0) by a single dish: main-beam
+    brightness temperature in K, VRAD axis in m/s, a degenerate Stokes axis
+    (4-D file).
 ``varying_beams``
     Quillwort-N2, the nucleus of a nearby galaxy in CO(3-2): one restoring
     beam per channel (a BEAMS table) and blanked (NaN) edge channels.
@@ -55,6 +56,7 @@ and sidecars) stays under 13 MB.
 """
 
 import argparse
+import functools
 import json
 import zlib
 from pathlib import Path
@@ -80,10 +82,15 @@ FALLBACK_REST_GHZ = {
     ("CO", "J=1-0"): 115.2712018,
     ("CO", "J=2-1"): 230.5380000,
     ("CO", "J=3-2"): 345.7959899,
+    ("CO", "J=5-4"): 576.2679305,
     ("CO", "J=7-6"): 806.6518060,
+    ("CO", "J=9-8"): 1036.9123930,
     ("[CI]", "3P2-3P1"): 809.3419700,
     ("H2O", "3_12-3_03"): 1097.3647910,
     ("H2O", "1_11-0_00"): 1113.3429640,
+    ("H2O", "1_10-1_01"): 556.9359877,
+    ("H2O", "2_02-1_11"): 987.9267440,
+    ("H2O", "2_11-2_02"): 752.0331430,
 }
 
 
@@ -508,6 +515,7 @@ PARA_H2O_LADDER = (
 CO_ROTATIONAL_CONSTANT_GHZ = 57.6359683
 
 
+@functools.lru_cache(maxsize=1)
 def _catalog_table():
     from astropy.table import Table
 
@@ -771,7 +779,6 @@ def make_lensed(out, name):
     dust = np.exp(-0.5 * (de ** 2 + dn ** 2) / (LENS["dust_fwhm"] / FWHM_PER_SIGMA) ** 2)
     pa = np.deg2rad(LENS["gradient_pa"])
     vfield = LENS["gradient_v"] * np.tanh((de * np.sin(pa) + dn * np.cos(pa)) / LENS["gradient_r"])
-    sub_area = (pixel / sub) ** 2
     # One magnification for every window, from a grid finer than any window's (lens_magnification).
     mu_gas = lens_magnification(LENS["gas_fwhm"])
     mu_dust = lens_magnification(LENS["dust_fwhm"])

@@ -5,8 +5,9 @@ Usage::
     cubeloupe demo [--dir DIR] [--port PORT] [--no-browser] [--reset]
 
 Copies the example notebooks and the demo cubes into a working folder
-(default ``./cubeloupe-demo``), so the installed files are never edited, then
-starts JupyterLab on 127.0.0.1 with the quick-look notebook open. A file
+(default ``~/cubeloupe-demo``, see `default_workdir`), so the installed files
+are never edited, then starts JupyterLab on 127.0.0.1 with the quick-look
+notebook open. A file
 already in the working folder that differs from the installed one (a notebook
 you edited) is kept unless ``--reset`` is given.
 
@@ -24,8 +25,9 @@ from pathlib import Path
 
 from . import launcher
 
-__all__ = ["register", "run", "prepare_workdir", "WorkdirReport", "DEFAULT_DIR", "QUICK_LOOK"]
+__all__ = ["register", "run", "prepare_workdir", "default_workdir", "WorkdirReport", "DEFAULT_DIR", "QUICK_LOOK"]
 
+# The working folder's name, in the user's home folder by default.
 DEFAULT_DIR = "cubeloupe-demo"
 DEFAULT_PORT = 8888
 QUICK_LOOK = "quick_look.ipynb"
@@ -44,8 +46,8 @@ def register(subparsers):
         ),
         epilog="Stop JupyterLab with Ctrl-C. Exit status: 0 after a normal stop, 1 if it could not start.",
     )
-    parser.add_argument("--dir", default=DEFAULT_DIR, metavar="DIR", type=Path,
-                        help=f"working folder for the copies (default: ./{DEFAULT_DIR})")
+    parser.add_argument("--dir", default=None, metavar="DIR", type=Path,
+                        help=f"working folder for the copies (default: ~/{DEFAULT_DIR})")
     parser.add_argument("--port", type=int, default=DEFAULT_PORT, metavar="PORT",
                         help=f"port for JupyterLab on 127.0.0.1 (default: {DEFAULT_PORT})")
     parser.add_argument("--no-browser", action="store_true",
@@ -65,6 +67,17 @@ class WorkdirReport:
     unchanged: list = field(default_factory=list)
     kept: list = field(default_factory=list)
     replaced: list = field(default_factory=list)
+
+
+def default_workdir():
+    """The working folder used without ``--dir``: ``cubeloupe-demo`` in the user's home folder.
+
+    Not the current folder: the Quick start runs ``cubeloupe demo`` in the
+    source checkout, whose tree would then fill with untracked copies. A folder
+    in the home folder is the same on every run, so edits to the notebooks are
+    found again.
+    """
+    return Path.home() / DEFAULT_DIR
 
 
 def _installed_files():
@@ -125,10 +138,11 @@ def run(args, out=None, err=None):
               f"JupyterLab or server may be running there). Stop that server, or choose another port, "
               f"e.g. --port {launcher.free_port()}", file=err)
         return 1
+    folder = default_workdir() if args.dir is None else args.dir
     try:
-        report = prepare_workdir(args.dir, reset=args.reset)
+        report = prepare_workdir(folder, reset=args.reset)
     except OSError as exc:
-        print(f"cubeloupe demo: cannot prepare the working folder {args.dir} ({exc}); choose a "
+        print(f"cubeloupe demo: cannot prepare the working folder {folder} ({exc}); choose a "
               "writable folder with --dir", file=err)
         return 1
     if not (report.folder / QUICK_LOOK).is_file():

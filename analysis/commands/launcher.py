@@ -9,6 +9,12 @@ which then asks JupyterLab to stop with SIGTERM (its graceful shutdown, which
 also stops the kernels) instead of triggering JupyterLab's interactive
 "Shutdown this server?" prompt.
 
+The server reads its default settings from a folder of its own inside the
+working folder (``.cubeloupe-lab-settings/overrides.json``, hidden from the
+file browser), seeded with the installation's defaults: JupyterLab's news and
+update prompt is turned off there, so no notification covers the suite (#17).
+The user's own JupyterLab settings still apply on top of these defaults.
+
 Examples
 --------
 >>> port_is_free(free_port())
@@ -16,6 +22,7 @@ True
 """
 
 import errno
+import json
 import os
 import secrets
 import signal
@@ -27,10 +34,20 @@ import time
 import urllib.error
 import urllib.parse
 import urllib.request
+from pathlib import Path
 
-__all__ = ["HOST", "port_is_free", "free_port", "lab_command", "lab_url", "run_lab"]
+__all__ = ["HOST", "LAB_SETTINGS", "SETTINGS_SUBDIR", "port_is_free", "free_port", "lab_command", "lab_url",
+           "run_lab", "write_lab_settings"]
 
 HOST = "127.0.0.1"
+#: Default settings of the demo's JupyterLab (plugin id -> settings), written to its overrides.json:
+#: never ask about (or fetch) the Jupyter news feed, never check for new versions.
+LAB_SETTINGS = {
+    "@jupyterlab/apputils-extension:notification": {"fetchNews": "false", "checkForUpdates": False},
+}
+#: The demo server's own app settings folder, inside the working folder (hidden: its name starts with ".").
+SETTINGS_SUBDIR = ".cubeloupe-lab-settings"
+OVERRIDES = "overrides.json"
 READY_POLL_SECONDS = 0.25
 STOP_GRACE_SECONDS = 20.0
 
@@ -68,8 +85,66 @@ def lab_url(port, notebook, token=None, host=HOST):
     return f"http://{host}:{port}{path}{query}"
 
 
-def lab_command(root_dir, notebook, port, *, open_browser=True, host=HOST):
-    """The command line that starts JupyterLab on ``host:port`` serving ``root_dir``."""
+def _installed_settings_dir():
+    """JupyterLab's own app settings folder (where an installation keeps overrides.json), or None."""
+    try:
+        from jupyterlab.commands import get_app_dir   # heavy: only when a server is about to start
+    except ImportError:
+        return None
+    return Path(get_app_dir()) / "settings"
+
+
+def write_lab_settings(folder, installed=None):
+    """Write the demo server's app settings folder: the installation's files plus `LAB_SETTINGS`.
+
+    JupyterLab takes default settings from ``overrides.json`` in its app settings
+    folder; the demo server is pointed at ``folder`` instead (`lab_command`). The
+    installation's ``overrides.json`` and ``page_config.json``, if any, are
+    copied in first, so other extensions' defaults are kept; `LAB_SETTINGS` is
+    merged over them. Rewritten on every start.
+
+    Parameters
+    ----------
+    folder : path-like
+        The settings folder to write (created if missing).
+    installed : path-like, optional
+        The installation's app settings folder (default: JupyterLab's).
+
+    Returns
+    -------
+    pathlib.Path
+        ``folder``.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    installed = _installed_settings_dir() if installed is None else Path(installed)
+    overrides = {}
+    if installed is not None:
+        for name in ("page_config.json", OVERRIDES):
+            source = installed / name
+            if not source.is_file():
+                continue
+            try:
+                content = json.loads(source.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                continue          # an unreadable file of the installation: start from nothing
+            if name == OVERRIDES:
+                overrides = content if isinstance(content, dict) else {}
+            else:
+                (folder / name).write_text(json.dumps(content, indent=2), encoding="utf-8")
+    for plugin, values in LAB_SETTINGS.items():
+        merged = overrides.get(plugin)
+        overrides[plugin] = {**(merged if isinstance(merged, dict) else {}), **values}
+    (folder / OVERRIDES).write_text(json.dumps(overrides, indent=2) + "\n", encoding="utf-8")
+    return folder
+
+
+def lab_command(root_dir, notebook, port, *, open_browser=True, host=HOST, settings_dir=None):
+    """The command line that starts JupyterLab on ``host:port`` serving ``root_dir``.
+
+    ``settings_dir``, when given, is the app settings folder the server reads its
+    default settings from (see `write_lab_settings`).
+    """
     command = [
         sys.executable, "-m", "jupyterlab", str(notebook),
         f"--ServerApp.ip={host}",
@@ -78,7 +153,11 @@ def lab_command(root_dir, notebook, port, *, open_browser=True, host=HOST):
         f"--ServerApp.root_dir={root_dir}",
         f"--ServerApp.open_browser={open_browser}",
         "--ServerApp.log_level=WARN",
+        # No server-side "a new version is available" notice either.
+        "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate",
     ]
+    if settings_dir is not None:
+        command.append(f"--LabApp.app_settings_dir={settings_dir}")
     if hasattr(os, "geteuid") and os.geteuid() == 0:
         # JupyterLab refuses to run as root unless told; containers commonly run as root.
         command.append("--ServerApp.allow_root=True")
@@ -148,7 +227,9 @@ def run_lab(root_dir, notebook, port, *, open_browser=True, ready_timeout=120.0,
         popen_kw["creationflags"] = subprocess.CREATE_NEW_PROCESS_GROUP
     else:
         popen_kw["start_new_session"] = True
-    process = subprocess.Popen(lab_command(root_dir, notebook, port, open_browser=open_browser),
+    settings_dir = write_lab_settings(Path(root_dir) / SETTINGS_SUBDIR)
+    process = subprocess.Popen(lab_command(root_dir, notebook, port, open_browser=open_browser,
+                                           settings_dir=settings_dir),
                                cwd=root_dir, env=env, stdin=subprocess.DEVNULL, **popen_kw)
     in_main_thread = threading.current_thread() is threading.main_thread()
     previous = signal.signal(signal.SIGTERM, _interrupt) if in_main_thread else None

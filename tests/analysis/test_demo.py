@@ -233,8 +233,8 @@ def test_lte_partition_functions_agree_with_published_ones():
     # interpolation between its 37.5 and 75 K entries.
     water = species["H2O"]
     t = water["temperature"]
-    total = (water["para"]["partition_function"]
-             + 3 * np.exp(-(water["ortho"]["energy_zero"] / t).decompose().value) * water["ortho"]["partition_function"])
+    ortho_from_ground = np.exp(-(water["ortho"]["energy_zero"] / t).decompose().value) * water["ortho"]["partition_function"]
+    total = water["para"]["partition_function"] + 3 * ortho_from_ground
     assert total == pytest.approx(partition_function("H2O", t).value, rel=0.01)
     # Ortho-H2O's lowest level 1_01 lies 23.794 cm^-1 above para 0_00 (LAMDA o-H2O file; Schoier
     # et al. 2005, A&A 432, 369): E/k = h c 23.794 cm^-1 / k.

@@ -18,6 +18,7 @@ import pytest
 
 from cubeloupe.analysis.commands import demo_command, launcher
 
+NOTIFICATION = "@jupyterlab/apputils-extension:notification"
 URL_PATTERN = re.compile(r"http://127\.0\.0\.1:(\d+)/lab/tree/(\S+)\?token=([0-9a-f]+)")
 
 
@@ -85,6 +86,12 @@ def test_demo_serves_the_quick_look_notebook(tmp_path):
         assert (workdir / demo_command.QUICK_LOOK).is_file()
         assert (workdir / "demo_cubes" / "disk.fits").is_file()
 
+        # No news or update prompt: the server's default for the notification plugin says so.
+        status, plugin = get_json(f"http://127.0.0.1:{port}/lab/api/settings/{NOTIFICATION}", token)
+        assert status == 200
+        defaults = {key: value.get("default") for key, value in plugin["schema"]["properties"].items()}
+        assert defaults["fetchNews"] == "false" and defaults["checkForUpdates"] is False
+
         # Token on: the same request without it is refused.
         with pytest.raises(urllib.error.HTTPError) as refused:
             urllib.request.urlopen(f"http://127.0.0.1:{port}/api/contents/{demo_command.QUICK_LOOK}", timeout=10)
@@ -135,3 +142,36 @@ def test_working_copy_keeps_edits_unless_reset(tmp_path):
     # The installed notebook was only read.
     installed = Path(str(demo_command.resources.files("cubeloupe.example_notebooks") / demo_command.QUICK_LOOK))
     assert "My quick look" not in installed.read_text()
+
+
+def test_lab_settings_turn_off_the_news_prompt_and_keep_the_installation_defaults(tmp_path):
+    """overrides.json of the demo server: news and update checks off, other installed defaults kept.
+
+    JupyterLab reads default settings from overrides.json in its app settings folder
+    (JupyterLab user guide, "Overriding default settings")."""
+    installed = tmp_path / "installed"
+    installed.mkdir()
+    (installed / "overrides.json").write_text(json.dumps({
+        "@jupyterlab/apputils-extension:themes": {"theme": "JupyterLab Dark"},
+        NOTIFICATION: {"fetchNews": "true", "doNotDisturbMode": True},
+    }))
+    (installed / "page_config.json").write_text(json.dumps({"disabledExtensions": {"some-extension": True}}))
+    folder = launcher.write_lab_settings(tmp_path / "demo" / launcher.SETTINGS_SUBDIR, installed=installed)
+    overrides = json.loads((folder / "overrides.json").read_text())
+    assert overrides[NOTIFICATION] == {"fetchNews": "false", "checkForUpdates": False, "doNotDisturbMode": True}
+    assert overrides["@jupyterlab/apputils-extension:themes"] == {"theme": "JupyterLab Dark"}
+    assert json.loads((folder / "page_config.json").read_text()) == {"disabledExtensions": {"some-extension": True}}
+    # The installation's files were only read.
+    assert json.loads((installed / "overrides.json").read_text())[NOTIFICATION]["fetchNews"] == "true"
+
+    command = launcher.lab_command(tmp_path, demo_command.QUICK_LOOK, 8888, settings_dir=folder)
+    assert f"--LabApp.app_settings_dir={folder}" in command
+    assert "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate" in command
+
+
+def test_default_working_folder_is_outside_the_source_tree(monkeypatch, tmp_path):
+    """Without --dir the copies go to ~/cubeloupe-demo, never into the checkout the command runs from."""
+    checkout = Path(demo_command.__file__).resolve().parents[2]
+    assert not demo_command.default_workdir().resolve().is_relative_to(checkout)
+    monkeypatch.setenv("HOME", str(tmp_path))
+    assert demo_command.default_workdir() == tmp_path / demo_command.DEFAULT_DIR
