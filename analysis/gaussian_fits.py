@@ -444,13 +444,17 @@ def _covariance(jac, rms, correlation):
 # The fit
 # ---------------------------------------------------------------------------
 
-def _fit_axis(spectrum, rest_frequency, z, convention, hyperfine):
-    """The channel coordinates to fit on: velocities (km/s) when possible as the docstring says, else GHz."""
-    native = spectrum.spectral_axis
+def _velocities_as_given(spectrum):
+    """True for a velocity axis without a rest frequency of its own: its velocities are used as they are."""
     header = getattr(getattr(spectrum, "wcs", None), "wcs", None)
     own_rest = getattr(header, "restfrq", 0) or getattr(header, "restwav", 0)
-    if native.unit.is_equivalent(_KMS) and not own_rest:
-        # A velocity axis with no rest frequency of its own: its velocities are taken as given.
+    return spectrum.spectral_axis.unit.is_equivalent(_KMS) and not own_rest
+
+
+def _fit_axis(spectrum, rest_frequency, z, convention, hyperfine):
+    """The channel coordinates to fit on: velocities (km/s) with a rest frequency or a velocity axis, else GHz."""
+    native = spectrum.spectral_axis
+    if _velocities_as_given(spectrum):
         return native.to(_KMS)
     if rest_frequency is not None or native.unit.is_equivalent(_KMS) or hyperfine:
         return axis_in(spectrum, _KMS, rest_frequency=rest_frequency, z=z, convention=convention)
@@ -540,8 +544,10 @@ def _fit_gaussians(spectrum, n_components, window, line_free, order, rest_freque
         if rest_frequency is None:
             rest_frequency = lines["rest_frequency"][int(np.argmax(lines["relative_intensity"]))]
     spectrum = as_spectrum(spectrum, spectral_axis)
-    frame = dict(rest_frequency=rest_frequency, z=z, convention=convention)
     axis_source = CachedAxis(spectrum)
+    frame = dict(rest_frequency=rest_frequency, z=z, convention=convention)
+    if lines is not None and _velocities_as_given(axis_source):
+        frame = dict(rest_frequency=None, z=0.0, convention=convention)  # ranges in the axis' own velocities
     x_axis = _fit_axis(axis_source, rest_frequency, z, convention, lines is not None)
     x_all = np.asarray(x_axis.value, dtype=float)
     values = u.Quantity(spectrum)
@@ -554,7 +560,7 @@ def _fit_gaussians(spectrum, n_components, window, line_free, order, rest_freque
 
     baseline = None
     if line_free is not None:
-        free = line_free_mask(axis_source, line_free, rest_frequency, z, convention)
+        free = line_free_mask(axis_source, line_free, **frame)
         if window is not None:
             free = line_free_outside_window(free, in_window, line_free=line_free, window=window,
                                             min_channels=order + 2)

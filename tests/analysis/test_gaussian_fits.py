@@ -184,7 +184,9 @@ def test_hyperfine_fit_on_an_optically_thin_group_has_a_large_relative_tau_error
     profile = np.sum(N2HP_10["relative_intensity"][None, :]
                      * np.exp(-FOUR_LN2 * (v[:, None] - 2.0 - offsets[None, :]) ** 2 / 0.8**2), axis=1)
     y = 5.0 * -np.expm1(-0.05 * profile) + rng.normal(0, 0.01, v.size)
-    fit = fit_gaussians(y * u.K, spectral_axis=v * KMS, hyperfine=N2HP_10, rest_frequency=reference)
+    # A velocity axis without a rest frequency of its own: window and line-free ranges in its own velocities.
+    fit = fit_gaussians(y * u.K, spectral_axis=v * KMS, hyperfine=N2HP_10, rest_frequency=reference,
+                        window=(-10, 15) * KMS, line_free=[(-15, -10.5), (15.5, 25)] * KMS, order=0)
     assert fit.hyperfine.optical_depth_error > 0.3 * fit.hyperfine.optical_depth
     assert fit.hyperfine.center.to_value(KMS) == pytest.approx(2.0, abs=0.05)
 
