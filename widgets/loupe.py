@@ -38,7 +38,7 @@ from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
 from .region_list import RegionList
 from .replay import to_code  # sessions and replay (#19)
-from .session import SessionState, current_moment_settings, read_session, write_session  # (#19)
+from .session import read_session, write_session  # sessions and replay (#19)
 from .sky_view import SkyView
 from .snapshot import render_sky, render_spectrum
 from .spectrum_view import SpectrumView
@@ -257,12 +257,8 @@ class Loupe(w.VBox):
         for i, name in enumerate(("Moment maps", "Measurements", "Export")):
             tabs.set_title(i, name)
         tabs.add_class("cubeloupe-actions")
-        # Sessions and replay (#19): the script of the current state in its own tab, written while shown.
-        self.code_view = CodeView(self)
-        tabs.children = (*tabs.children, self.code_view)
-        tabs.set_title(len(tabs.children) - 1, "Code")
-        w.dlink((tabs, "selected_index"), (self.code_view, "showing"),
-                transform=lambda index, last=len(tabs.children) - 1: index == last)
+        # Sessions and replay (#19): the script of the current state, in a "Code" tab.
+        self.code_view = CodeView(self, tabs)
         self.spectrum_view.figure.layout.height = "330px"
         sky = section("Sky", [self.window_choice, self.sky_view], width=f"{SKY_COLUMN}px",
                       css_class="cubeloupe-sky-section")
@@ -627,35 +623,15 @@ class Loupe(w.VBox):
         raise CubeloupeError(f"unknown view {view!r}; choose 'sky' or 'spectrum'")
 
     # ------------------------------------------------ sessions and replay (#19)
-    @observe("moments")
-    def _record_moment_settings(self, change):
-        # The settings the maps were made with, for sessions and scripts (they may change afterwards).
-        self.moments_made_with = current_moment_settings(self) if change.new is not None else None
-
     def to_code(self):
-        """The current state as a script that re-makes it (see `cubeloupe.widgets.replay.to_code`)."""
+        """The current state as a script that re-makes it (`cubeloupe.widgets.replay.to_code`)."""
         return to_code(self)
 
     def save_session(self, path, overwrite=False):
-        """Write the session (cubes, regions, ranges, settings, view) to a JSON file; returns its path.
-
-        Cube paths are stored relative to the session file where possible. Refuses to replace an
-        existing file unless ``overwrite``.
-        """
+        """Write the session to a JSON file (never replacing one unless ``overwrite``); returns its path."""
         return write_session(self, path, overwrite=overwrite)
 
     @classmethod
     def from_session(cls, path, **kwargs):
-        """A new suite in the state saved in session file ``path`` (checked before anything is built).
-
-        Raises
-        ------
-        SessionError, CubeFileError
-            The file is not a session, of an unknown version, has a bad field, or names a missing cube.
-        """
-        state = read_session(path)
-        return state.restore(cls, folder=os.path.dirname(os.path.abspath(path)), **kwargs)
-
-    def session_state(self):
-        """The state as a `SessionState` (cube paths absolute)."""
-        return SessionState.from_loupe(self)
+        """A new suite in the state saved in session file ``path`` (checked before anything is built)."""
+        return read_session(path).restore(cls, folder=os.path.dirname(os.path.abspath(path)), **kwargs)

@@ -1,0 +1,132 @@
+"""`to_code`: the suite's state as a script that, run in a fresh interpreter, makes the same numbers (#19)."""
+
+import ast
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from cubeloupe.widgets.replay import to_code
+from session_steps import CASES, drive
+
+# Run in a fresh interpreter: the script, then what it made, written for the test to compare.
+RUNNER = """
+import json, runpy, sys
+import numpy as np
+from cubeloupe.widgets.measurement_table import rows_from_table
+ns = runpy.run_path(sys.argv[1], run_name="__main__")
+table, moments, loupe = ns["table"], ns["moments"], ns["loupe"]
+rows = rows_from_table(table)
+for row, r in zip(rows, table):
+    row["centroid_error"] = float(r["centroid_error"].value)
+    row["fwhm_error"] = float(r["fwhm_error"].value)
+arrays = {f"moment_{k}": np.asarray(getattr(moments, k).value) for k in ("m0", "m1", "m2", "m0_error", "rms")}
+for name, spectra in ns["spectra"].items():
+    for i, s in enumerate(spectra):
+        if s is not None:
+            arrays[f"spectrum_{name}_{i}"] = np.asarray(s.value)
+np.savez(sys.argv[2] + ".npz", **arrays)
+with open(sys.argv[2] + ".json", "w") as out:
+    json.dump({"rows": rows, "restored_rows": loupe.measurements,
+               "restored_regions": loupe.regions, "restored_status": loupe.status.history, "restored_m0": loupe.moments.m0.value.tolist()}, out)
+"""
+
+
+def _same(a, b):
+    """Equal bit for bit, NaN equal to NaN."""
+    return a == b or (isinstance(a, float) and isinstance(b, float) and np.isnan(a) and np.isnan(b))
+
+
+def _same_rows(got, expected):
+    assert len(got) == len(expected)
+    for g, e in zip(got, expected):
+        for key, value in e.items():
+            assert _same(g[key], value), (key, g[key], value)
+
+
+@pytest.fixture(scope="module", params=sorted(CASES))
+def driven(request):
+    return request.param, drive(request.param)
+
+
+def test_replay_reproduces_table_and_moments_bit_for_bit(driven, tmp_path):
+    """Fluxes, errors, centroids, widths, spectra and moment maps of the script equal the suite's exactly.
+
+    The script calls the same public functions with the same float64 values (floats are written with
+    Python's round-tripping repr), so no rounding is allowed: equality is exact (NaN where the suite has NaN).
+    """
+    case, loupe = driven
+    script = tmp_path / f"{case}.py"
+    script.write_text(to_code(loupe))
+    runner = tmp_path / "runner.py"
+    runner.write_text(RUNNER)
+    done = subprocess.run([sys.executable, str(runner), str(script), str(tmp_path / "out")],
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr[-3000:]
+    made = json.loads((tmp_path / "out.json").read_text())
+    arrays = np.load(tmp_path / "out.npz")
+    _same_rows(made["rows"], loupe.measurements)
+    assert all(np.isfinite(row["centroid_error"]) for row in made["rows"] if np.isfinite(row["flux"]))
+    for key in ("m0", "m1", "m2", "m0_error", "rms"):
+        np.testing.assert_array_equal(arrays[f"moment_{key}"], getattr(loupe.moments, key).value)
+    for name, spectra in loupe.spectra.items():
+        for i, s in enumerate(spectra):
+            if s is not None:
+                np.testing.assert_array_equal(arrays[f"spectrum_{name}_{i}"], s.value)
+    # The Loupe the script builds shows the same state and numbers.
+    assert made["restored_rows"], made["restored_status"]
+    _same_rows(made["restored_rows"], loupe.measurements)
+    assert made["restored_regions"] == loupe.regions
+    np.testing.assert_array_equal(np.array(made["restored_m0"], dtype=float), loupe.moments.m0.value)
+
+
+def test_script_uses_only_public_names_in_a_fixed_order(driven):
+    case, loupe = driven
+    code = to_code(loupe)
+    assert code == to_code(loupe), "the same state gives the same text"
+    tree = ast.parse(code)
+    imported = [(node.module, alias.name) for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)
+                for alias in node.names]
+    assert all(not name.startswith("_") for _, name in imported)
+    assert {module for module, _ in imported} <= {"astropy.coordinates", "regions", "cubeloupe.analysis",
+                                                    "cubeloupe.widgets"}
+    attributes = [node.attr for node in ast.walk(tree) if isinstance(node, ast.Attribute)]
+    assert not [a for a in attributes if a.startswith("_")]
+    for call in ("open_cube(", "region_spectrum(", "measurement_table(", "moment_maps(", "Loupe("):
+        assert call in code
+
+
+def test_drawn_regions_are_written_as_drawn_with_their_sky_shape(driven):
+    """A drawn shape is used as its exact pixel shape; its sky equivalent sits beside it."""
+    case, loupe = driven
+    code = to_code(loupe)
+    ns = {}
+    region_part = code[:code.index("# The spectrum of every region")]
+    exec(compile(region_part.replace("cubes = [open_cube(path) for path in paths]", "cubes = None"), "script", "exec"),
+         ns)
+    for name in ("box", "oval", "outline"):
+        shape = loupe.region_list.region_for(name, loupe.cubes[0])
+        drawn = ns["as_drawn"][name]
+        assert type(drawn) is type(shape)
+        assert drawn.center == shape.center if hasattr(shape, "center") else \
+            np.array_equal(drawn.vertices.x, shape.vertices.x)
+        # the sky shape is the region's own dict (what another grid of the field gets)
+        assert ns["on_sky"][name] == loupe.region_list.sky_region(name)
+    assert set(ns["on_sky"]) == set(loupe.region_list.names)
+
+
+def test_cube_made_in_memory_has_no_script(line_cube):
+    """A cube with no file cannot be opened again by a script: the message says so."""
+    from spectral_cube import SpectralCube
+
+    from cubeloupe.analysis import open_cube
+    from cubeloupe.widgets import Loupe
+    from cubeloupe.widgets.session import SessionError
+
+    opened = open_cube(line_cube)
+    in_memory = SpectralCube(data=opened.filled_data[:], wcs=opened.wcs)
+    loupe = Loupe(in_memory, first_view=False)
+    with pytest.raises(SessionError, match="made in memory"):
+        to_code(loupe)

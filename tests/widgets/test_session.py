@@ -1,0 +1,223 @@
+"""Sessions: save the suite's state to a versioned JSON file and open it again, whole or not at all (#19)."""
+
+import json
+import os
+import shutil
+from pathlib import Path
+
+import numpy as np
+import pytest
+from regions import PixCoord, RectanglePixelRegion
+
+from cubeloupe.analysis import CubeFileError, CubeloupeError, OutputExistsError, demo_path
+from cubeloupe.widgets import Loupe
+from cubeloupe.widgets.session import (
+    LOUPE_SETTINGS, SESSION_VERSION, VIEW_SETTINGS, SessionError, SessionState, read_session, session_state,
+)
+from session_steps import drive
+
+SESSIONS = Path(__file__).resolve().parents[1] / "data" / "sessions"
+
+
+def _settings(loupe):
+    return {name: getattr(loupe, name) for name, _, _ in LOUPE_SETTINGS}
+
+
+def _views(loupe):
+    return {part: {name: getattr(getattr(loupe, part), name) for name, _, _ in table}
+            for part, table in VIEW_SETTINGS.items()}
+
+
+def _same_rows(got, expected):
+    assert len(got) == len(expected)
+    for g, e in zip(got, expected):
+        for key, value in e.items():
+            assert g[key] == value or (np.isnan(g[key]) and np.isnan(value)), (key, g[key], value)
+
+
+def _set_everything(loupe):
+    """Every setting a user can change, away from its default."""
+    f = loupe.spectrum_view.band
+    loupe.line_overlay.velocity_range = 2500.0
+    loupe.velocity_offset = 310.0
+    loupe.axis_kind = "velocity"
+    loupe.show_subtracted = True
+    loupe.peaks = [float(np.mean(f))]
+    loupe.magnification = 3.5
+    loupe.cosmology = "WMAP9"
+    loupe.sky_view.palette = [p for p in type(loupe.sky_view).class_traits()["palette"].values
+                              if p != loupe.sky_view.palette][0]
+    loupe.sky_view.lower_percentile = 2.0
+    loupe.sky_view.upper_percentile = 98.0
+    loupe.sky_view.vmin = -0.001
+    loupe.sky_view.vmax = 0.02
+    loupe.sky_view.show_beam = False
+    loupe.sky_view.contour_source = "moment 0"
+    loupe.sky_view.contour_levels = [0.1, 0.2, 0.4]
+    loupe.line_overlay.species = ["CO"]
+    loupe.line_overlay.spin_isomer = "para"
+    loupe.line_overlay.max_E_up = 150.0
+    loupe.spectrum_view.mode = "peak" if "peak" in type(loupe.spectrum_view).class_traits()["mode"].values \
+        else loupe.spectrum_view.mode
+    loupe.region_list.selected = "oval"
+    assert loupe.status.level != "error", loupe.status.message
+
+
+@pytest.mark.parametrize("case", ["disk", "lensed_pair"])
+def test_session_round_trips_every_setting(case, tmp_path):
+    loupe = drive(case)
+    _set_everything(loupe)
+    path = loupe.save_session(tmp_path / "work.cubeloupe.json")
+    again = Loupe.from_session(path)
+    assert _settings(again) == _settings(loupe)
+    assert _views(again) == _views(loupe)
+    assert again.regions == loupe.regions
+    # Drawn regions are used as drawn again: the same pixels, hence the same spectra and numbers.
+    for name in loupe.region_list.names:
+        for a, b in zip(again.spectra[name], loupe.spectra[name]):
+            assert (a is None and b is None) or np.array_equal(a.value, b.value)
+    _same_rows(again.measurements, loupe.measurements)
+    for key in ("m0", "m1", "m2"):
+        np.testing.assert_array_equal(getattr(again.moments, key).value, getattr(loupe.moments, key).value)
+    assert SessionState.from_loupe(again).to_dict() == SessionState.from_loupe(loupe).to_dict()
+
+
+def test_moment_maps_keep_the_settings_they_were_made_with(tmp_path):
+    """Maps made before the line window changed are restored as made, with the suite's later window."""
+    loupe = drive("disk")
+    made = loupe.moments.m0.value.copy()
+    f = loupe.spectrum_view.band
+    loupe.line_window = [f[0] + 0.3 * (f[1] - f[0]), f[0] + 0.6 * (f[1] - f[0])]
+    again = Loupe.from_session(loupe.save_session(tmp_path / "s.cubeloupe.json"))
+    np.testing.assert_array_equal(again.moments.m0.value, made)
+    assert again.line_window == loupe.line_window
+
+
+def test_session_file_format(tmp_path):
+    loupe = drive("disk")
+    path = loupe.save_session(tmp_path / "s.cubeloupe.json")
+    data = json.loads(path.read_text())
+    assert data["format"] == "cubeloupe-session" and data["version"] == SESSION_VERSION
+    assert data["cubeloupe_version"]
+    # the cube path is relative to the session file where possible, and absolute beside it
+    assert not os.path.isabs(data["cubes"][0]["path"])
+    assert os.path.samefile(tmp_path / data["cubes"][0]["path"], demo_path("disk"))
+    assert data == session_state(loupe, relative_to=tmp_path)
+    json.dumps(session_state(loupe))  # plain JSON, for exports' metadata
+
+
+def test_writing_is_atomic_and_never_overwrites(tmp_path):
+    loupe = drive("disk")
+    path = tmp_path / "s.cubeloupe.json"
+    path.write_text("precious")
+    with pytest.raises(OutputExistsError, match="overwrite=True"):
+        loupe.save_session(path)
+    assert path.read_text() == "precious"
+    loupe.save_session(path, overwrite=True)
+    assert json.loads(path.read_text())["format"] == "cubeloupe-session"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.cubeloupe.json"], "no temporary file left"
+
+
+def test_a_moved_folder_of_cubes_and_session_opens(tmp_path):
+    """Paths relative to the session file: the folder can move as a whole (common practice for projects)."""
+    (tmp_path / "a" / "cubes").mkdir(parents=True)
+    cube = shutil.copy(demo_path("disk"), tmp_path / "a" / "cubes" / "disk.fits")
+    loupe = Loupe(cube, first_view=False)
+    loupe.add_region(RectanglePixelRegion(PixCoord(35.5, 35.5), width=6, height=6), name="core")
+    loupe.save_session(tmp_path / "a" / "s.cubeloupe.json")
+    shutil.move(tmp_path / "a", tmp_path / "b")
+    again = Loupe.from_session(tmp_path / "b" / "s.cubeloupe.json")
+    assert Path(again.cubes[0].meta["cubeloupe_source"]["path"]).resolve() == \
+        (tmp_path / "b" / "cubes" / "disk.fits").resolve()
+    assert again.regions == loupe.regions
+
+
+@pytest.fixture
+def saved(tmp_path):
+    loupe = drive("disk")
+    path = loupe.save_session(tmp_path / "s.cubeloupe.json")
+    return path, json.loads(path.read_text())
+
+
+def _tampered(saved, change):
+    path, data = saved
+    change(data)
+    path.write_text(json.dumps(data))
+    return path
+
+
+@pytest.mark.parametrize("change, error, match", [
+    (lambda d: d.update(version=SESSION_VERSION + 1), SessionError, "version 2.*update cubeloupe"),
+    (lambda d: d.update(format="something else"), SessionError, "not a cubeloupe session"),
+    (lambda d: d["settings"].update(z="two"), SessionError, r"settings\.z"),
+    (lambda d: d["settings"].pop("line_window"), SessionError, r"settings\.line_window' is missing"),
+    (lambda d: d["settings"].update(convention="sideways"), SessionError, r"settings\.convention"),
+    (lambda d: d["settings"].update(window=3), SessionError, r"settings\.window.*1 cube"),
+    (lambda d: d["settings"].update(baseline_order=9), SessionError, r"settings\.baseline_order"),
+    (lambda d: d["regions"][0].update(kind="star"), SessionError, r"regions\[0\]\.kind"),
+    (lambda d: d["regions"][0].pop("ra"), SessionError, r"regions\[0\]\.ra"),
+    (lambda d: d["regions"][0]["drawn"].update(width=-2), SessionError, r"regions\[0\]\.drawn\.width"),
+    (lambda d: d["regions"].append(dict(d["regions"][0])), SessionError, "two regions are named"),
+    (lambda d: d["views"]["sky_view"].update(vmin="low"), SessionError, r"views\.sky_view\.vmin"),
+    (lambda d: d.update(extra=1), SessionError, r"unknown field\(s\) \['extra'\]"),
+    (lambda d: d.update(moments=None), SessionError, "sky_source.*no moment maps"),
+    (lambda d: d["cubes"][0].update(path="gone.fits", absolute="/nowhere/gone.fits"), CubeFileError,
+     "window 0 is missing.*gone.fits"),
+])
+def test_tampered_file_gives_a_clear_error(saved, change, error, match):
+    path = _tampered(saved, change)
+    with pytest.raises(error, match=match):
+        read_session(path).restore(_Counting)
+    assert issubclass(error, CubeloupeError)
+    assert not _Counting.made, "nothing is built from a file that does not check"
+
+
+def test_not_json_and_no_file(tmp_path):
+    bad = tmp_path / "bad.cubeloupe.json"
+    bad.write_text("{ not json")
+    with pytest.raises(SessionError, match="not valid JSON"):
+        Loupe.from_session(bad)
+    with pytest.raises(CubeFileError, match="no session file"):
+        Loupe.from_session(tmp_path / "absent.json")
+
+
+class _Counting(Loupe):
+    made = []
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        _Counting.made.append(self)
+
+
+@pytest.fixture(autouse=True)
+def _no_suites_counted():
+    _Counting.made.clear()
+    yield
+    _Counting.made.clear()
+
+
+def test_refused_value_closes_the_half_built_suite(saved):
+    """A value that checks as a field but that the suite refuses: the new suite is closed, the error names it."""
+    path = _tampered(saved, lambda d: d["views"]["sky_view"].update(stretch="sideways"))
+    with pytest.raises(SessionError, match=r"views\.sky_view\.stretch = 'sideways'"):
+        read_session(path).restore(_Counting)
+    assert len(_Counting.made) == 1 and _Counting.made[0].comm is None, "the half-built suite is closed"
+
+
+def test_another_cube_at_the_path_is_refused(saved, tmp_path):
+    path = _tampered(saved, lambda d: d["cubes"][0].update(shape=[10, 72, 72]))
+    with pytest.raises(SessionError, match=r"shape \[100, 72, 72\].*another file"):
+        Loupe.from_session(path)
+
+
+@pytest.mark.parametrize("fixture", sorted(p.name for p in SESSIONS.glob("*.cubeloupe.json")))
+def test_sessions_of_earlier_versions_still_open(fixture):
+    """Files written by earlier versions (kept in tests/data/sessions) open with every setting as saved."""
+    data = json.loads((SESSIONS / fixture).read_text())
+    loupe = Loupe.from_session(SESSIONS / fixture)
+    assert _settings(loupe) == data["settings"]
+    assert loupe.regions == [{k: v for k, v in r.items() if k != "drawn"} for r in data["regions"]]
+    for part, values in data["views"].items():
+        for name, value in values.items():
+            assert getattr(getattr(loupe, part), name) == value
+    assert loupe.measurements and loupe.moments is not None

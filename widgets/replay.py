@@ -1,0 +1,286 @@
+"""Replay: the suite's current state written out as a plain Python script.
+
+`to_code` writes what a user would type by hand with the public analysis API:
+imports, `open_cube`, the regions exactly as the suite uses them (the pixel
+shape on the grid it was drawn on, each with its sky-coordinate equivalent
+beside it for another grid of the same field), `region_spectrum`,
+`measurement_table` and `moment_maps` with the suite's own parameters, and the
+`Loupe` that shows the same state again. Run top to bottom in a fresh
+interpreter, it reproduces the suite's measurement table and moment maps
+exactly: the same functions are called with the same float64 values (every
+float is written with Python's shortest round-tripping repr).
+
+The order of the steps that rebuild the suite comes from
+`cubeloupe.widgets.session.restore_steps`, the one description of state that
+sessions use too.
+
+Examples
+--------
+>>> print(to_code(loupe))                                    # doctest: +SKIP
+>>> exec(to_code(loupe))                                     # doctest: +SKIP
+"""
+
+import inspect
+
+import astropy.units as u
+import numpy as np
+from regions import PixelRegion
+
+from cubeloupe.analysis import display_axis
+
+from .session import MOMENT_SETTINGS, SessionState, drawn_shape, restore_steps
+
+__all__ = ["to_code"]
+
+_SKY_CLASSES = {"box": "RectangleSkyRegion", "oval": "EllipseSkyRegion", "circle": "CircleSkyRegion",
+                "outline": "PolygonSkyRegion", "pixel": "PointSkyRegion"}
+_PIXEL_CLASSES = {"rectangle": "RectanglePixelRegion", "ellipse": "EllipsePixelRegion",
+                  "polygon": "PolygonPixelRegion", "circle": "CirclePixelRegion"}
+
+
+def _ghz(value):
+    """A frequency list or number (GHz) as code."""
+    return f"{value!r} * u.GHz"
+
+
+def _sky_code(item):
+    kind = item["kind"]
+    if kind == "outline":
+        ras = [v[0] for v in item["vertices"]]
+        decs = [v[1] for v in item["vertices"]]
+        return f"PolygonSkyRegion(SkyCoord({ras!r}, {decs!r}, unit=\"deg\"))"
+    centre = f"SkyCoord({item['ra']!r}, {item['dec']!r}, unit=\"deg\")"
+    if kind == "pixel":
+        return f"PointSkyRegion({centre})"
+    if kind == "circle":
+        return f"CircleSkyRegion({centre}, radius={item['radius']!r} * u.arcsec)"
+    return (f"{_SKY_CLASSES[kind]}({centre}, width={item['width']!r} * u.arcsec, "
+            f"height={item['height']!r} * u.arcsec, angle={item['angle']!r} * u.deg)")
+
+
+def _pixel_code(shape):
+    item = drawn_shape(shape)
+    if item["shape"] == "polygon":
+        xs = [v[0] for v in item["vertices"]]
+        ys = [v[1] for v in item["vertices"]]
+        return f"PolygonPixelRegion(PixCoord({xs!r}, {ys!r}))"
+    if item["shape"] == "circle":
+        return f"CirclePixelRegion(PixCoord({item['x']!r}, {item['y']!r}), radius={item['radius']!r})"
+    return (f"{_PIXEL_CLASSES[item['shape']]}(PixCoord({item['x']!r}, {item['y']!r}), width={item['width']!r}, "
+            f"height={item['height']!r}, angle={item['angle']!r} * u.deg)")
+
+
+def _wrapped(start, call, width=110):
+    """``start + call`` on one line, or one argument a line when that is too long."""
+    if len(start) + len(call) <= width:
+        return start + call
+    head, arguments = call.split("(", 1)
+    parts, depth, begin = [], 0, 0
+    for position, char in enumerate(arguments[:-1]):
+        depth += char in "([{"
+        depth -= char in ")]}"
+        if char == "," and depth == 0:
+            parts.append(arguments[begin:position].strip())
+            begin = position + 1
+    parts.append(arguments[begin:-1].strip())
+    return start + head + "(\n" + "".join(f"    {part},\n" for part in parts) + ")"
+
+
+def _ranges_in(cube, ranges):
+    """The [low, high] GHz ranges that overlap ``cube``'s band (as the suite picks a window's line-free ranges)."""
+    f = display_axis(cube, "observed frequency").to_value(u.GHz)
+    return [r for r in ranges if r[1] >= f.min() and r[0] <= f.max()]
+
+
+def _optional_ghz(ranges):
+    return _ghz(ranges) if ranges else "None"
+
+
+def _rest_code(rest):
+    return _ghz(rest) if rest > 0 else "None"
+
+
+def _line_label(settings):
+    """The line name the suite writes in the table's 'line' column."""
+    if settings["reference_line"]:
+        return settings["reference_line"]
+    rest = settings["rest_frequency"]
+    return f"{rest:.4f} GHz" if rest > 0 else "line"
+
+
+def _region_section(loupe, state):
+    """Code of the regions and of their spectra, as the suite made them."""
+    lines = ["# Regions as the suite uses them. 'as_drawn' holds a shape drawn on the sky view: its exact pixel",
+             "# shape on the grid it was drawn on. 'on_sky' holds every region in sky coordinates (ICRS), for",
+             "# another grid of the same field (the suite places it so on the other windows' grids).",
+             "as_drawn = {}", "on_sky = {}"]
+    spectra_lines = ["spectra = {"]
+    masks = []
+    for number, item in enumerate(loupe.regions):
+        name = item["name"]
+        lines.append(_wrapped(f"on_sky[{name!r}] = ", _sky_code(item)))
+        uses = []
+        drawn_on = None
+        for index, cube in enumerate(loupe.cubes):
+            spectrum = loupe.spectra.get(name, [None] * len(loupe.cubes))[index]
+            if spectrum is None:
+                uses.append(f"None,  # no pixel of {name!r} in window {index}")
+                continue
+            shape = loupe.region_list.region_for(name, cube)
+            if isinstance(shape, PixelRegion):
+                if drawn_on is None:
+                    drawn_on = index
+                    lines.append(f"# {name!r} as drawn, in pixels of window {index}:")
+                    lines.append(_wrapped(f"as_drawn[{name!r}] = ", _pixel_code(shape)))
+                uses.append(f"region_spectrum(cubes[{index}], as_drawn[{name!r}]),")
+            elif isinstance(shape, np.ndarray):
+                (y,), (x,) = np.nonzero(shape)
+                variable = f"pixel_{number}_{index}"
+                masks += [f"{variable} = np.zeros({tuple(int(n) for n in shape.shape)!r}, dtype=bool)",
+                          f"{variable}[{int(y)}, {int(x)}] = True  # the pixel (x={int(x)}, y={int(y)}) holding "
+                          f"on_sky[{name!r}] in window {index}"]
+                uses.append(f"region_spectrum(cubes[{index}], {variable}),")
+            else:
+                uses.append(f"region_spectrum(cubes[{index}], on_sky[{name!r}]),")
+        spectra_lines.append(f"    {name!r}: [")
+        spectra_lines += [f"        {use}" for use in uses]
+        spectra_lines.append("    ],")
+    spectra_lines.append("}")
+    if masks:
+        lines += ["", "# One-pixel regions: the pixel that holds the position, on each window's grid."] + masks
+    lines += ["", "# The spectrum of every region in every window (flux density for Jy/beam cubes)."]
+    return lines + spectra_lines
+
+
+def _measure_section(loupe, state):
+    s = state.settings
+    if not s["line_window"] or not loupe.spectra:
+        return ["# No measurement: the suite has no line window or no region yet."]
+    if s["z"] != 0 and s["rest_frequency"] <= 0:
+        return ["# No measurement: velocities at z > 0 need a rest frequency, and the suite has none."]
+    return ["# The measurement table: one line measured in every region and window.",
+            "table = measurement_table(",
+            "    spectra, line_window, line_free=line_free, order=baseline_order, rest_frequency=rest_frequency,",
+            f"    z=z, convention=convention, line={_line_label(s)!r}, cosmology={s['cosmology']!r},",
+            f"    magnification={s['magnification']!r},",
+            ")",
+            "print(table)"]
+
+
+def _moment_section(loupe, state):
+    made = state.moments
+    if made is None:
+        return ["# No moment maps were made in the suite."]
+    cube = loupe.cubes[made["window"]]
+    free = _ranges_in(cube, made["line_free"])
+    return [f"# The moment maps of window {made['window']}, with the settings they were made with.",
+            "moments = moment_maps(",
+            f"    cubes[{made['window']}], window={_ghz(made['line_window'])},",
+            f"    line_free={_optional_ghz(free)},",
+            f"    order={made['baseline_order']!r}, rest_frequency={_rest_code(made['rest_frequency'])}, "
+            f"z={made['z']!r}, convention={made['convention']!r},",
+            f"    clip={made['clip']!r},",
+            ")"]
+
+
+def _loupe_section(loupe, state):
+    s = state.settings
+    arguments = "z=z, rest_frequency=rest_frequency, convention=convention"
+    if "first_view" in inspect.signature(type(loupe)).parameters:
+        arguments += ", first_view=False"
+    lines = ["# The suite in the same state: same cubes, regions, ranges, settings and view.",
+             f"loupe = {type(loupe).__name__}(paths, {arguments})"]
+    current = {name: s[name] for name in MOMENT_SETTINGS}
+    shown = None  # the window the script has shown last: it is set only where it changes
+
+    def show(index):
+        nonlocal shown
+        if index != shown:
+            shown = index
+            lines.append(f"loupe.window = {index!r}")
+
+    for target, name, value in restore_steps(state):
+        if target == "region":
+            item = {k: v for k, v in value.items() if k != "drawn"}
+            if "drawn" in value:
+                show(value["drawn"]["window"])
+                lines.append(f"loupe.add_region(as_drawn[{name!r}], name={name!r}, color={item['color']!r})")
+            else:
+                lines.append(f"loupe.region_list.regions = [*loupe.region_list.regions, {item!r}]")
+        elif target == "moments":
+            differs = [n for n in MOMENT_SETTINGS if value[n] != current[n]]
+            lines += [f"loupe.{n} = {value[n]!r}  # as when the moment maps were made" for n in differs]
+            show(value["window"])
+            lines.append("loupe.make_moments(wait=True)")
+            lines += [f"loupe.{n} = {current[n]!r}" for n in differs]
+        elif (target, name) == ("loupe", "window"):
+            show(value)
+        elif target == "loupe":
+            lines.append(f"loupe.{name} = {value!r}")
+        else:
+            widget = getattr(loupe, target)
+            if value != type(widget).class_traits()[name].default(widget) or name == "velocity_range":
+                lines.append(f"loupe.{target}.{name} = {value!r}")
+    return lines + ["loupe"]
+
+
+def to_code(loupe):
+    """The suite's current state as a readable script that re-runs it.
+
+    Parameters
+    ----------
+    loupe : Loupe
+
+    Returns
+    -------
+    str
+        A script using only the public API (imports, `open_cube`, the regions, `region_spectrum`,
+        `measurement_table`, `moment_maps`, and a `Loupe` restoring the view). Its order is fixed: the
+        same state always gives the same text.
+
+    Raises
+    ------
+    SessionError
+        The suite shows a cube made in memory (with no file to open again).
+    """
+    state = SessionState.from_loupe(loupe)
+    s = state.settings
+    paths = [cube["absolute"] for cube in state.cubes]
+    header = [f'"""cubeloupe session as a script (cubeloupe {state.cubeloupe_version}).',
+              "",
+              "Run it top to bottom to make the same spectra, measurement table and moment maps as the suite.",
+              "Quick-look numbers: final values come from the calibrated, primary-beam-corrected products.",
+              '"""',
+              "",
+              "import astropy.units as u",
+              "import numpy as np",
+              "from astropy.coordinates import SkyCoord",
+              "from regions import (",
+              "    CirclePixelRegion, CircleSkyRegion, EllipsePixelRegion, EllipseSkyRegion, PixCoord, PointSkyRegion,",
+              "    PolygonPixelRegion, PolygonSkyRegion, RectanglePixelRegion, RectangleSkyRegion,",
+              ")",
+              "",
+              "from cubeloupe.analysis import measurement_table, moment_maps, open_cube, region_spectrum",
+              f"from cubeloupe.widgets import {type(loupe).__name__}",
+              "",
+              "# The cubes: the suite's spectral windows, in its order.",
+              "paths = ["] + [f"    {p!r}," for p in paths] + [
+              "]",
+              "cubes = [open_cube(path) for path in paths]",
+              "",
+              "# Redshift, velocity zero, line window and baseline as set in the suite (frequencies observed).",
+              f"z = {s['z']!r}",
+              f"rest_frequency = {_rest_code(s['rest_frequency'])}" + (f"  # {s['reference_line']}"
+                                                                      if s["reference_line"] else ""),
+              f"convention = {s['convention']!r}",
+              f"line_window = {_ghz(s['line_window']) if s['line_window'] else 'None'}",
+              f"line_free = {_optional_ghz(s['line_free'])}",
+              f"baseline_order = {s['baseline_order']!r}",
+              ""]
+    sections = [_region_section(loupe, state), _measure_section(loupe, state), _moment_section(loupe, state),
+                _loupe_section(loupe, state)]
+    body = []
+    for section in sections:
+        body += section + [""]
+    return "\n".join(header + body).rstrip("\n") + "\n"
+
