@@ -51,6 +51,7 @@ from .baseline import BaselineFit, fit_baseline, line_free_mask
 from .lines import LineMeasurement, measure_line
 from .line_table import MEASUREMENT_COLUMNS, measurement_table
 from .first_view import FirstView, first_view
+from .velocity_only import NOMINAL_REST_FREQUENCY, on_nominal_frequencies, velocity_convention_of, velocity_only
 from .velocity_reference import VelocityReference, catalog_line_at, choose_velocity_reference
 from .moments import MomentMaps, moment_maps
 from .moment_mask import DEFAULT_SIGNIFICANCE, SignificantMoments, significant_moments
@@ -94,6 +95,7 @@ __all__ = [
     "region_spectrum", "MAX_ORDER", "check_order", "BaselineFit", "fit_baseline", "line_free_mask",
     "LineMeasurement", "measure_line", "MEASUREMENT_COLUMNS", "measurement_table",
     "VelocityReference", "catalog_line_at", "choose_velocity_reference", "FirstView", "first_view",
+    "NOMINAL_REST_FREQUENCY", "on_nominal_frequencies", "velocity_convention_of", "velocity_only",
     "MomentMaps", "moment_maps", "DEFAULT_SIGNIFICANCE", "SignificantMoments", "significant_moments",
     "ChannelStatistics", "ContinuumMap", "PeakSpectrum", "channel_noise", "channel_statistics", "cube_noise",
     "leftover_continuum", "peak_spectrum",

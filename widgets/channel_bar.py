@@ -5,7 +5,7 @@ import html
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
-from traitlets import Enum, Float, Int, List, Unicode, observe, validate
+from traitlets import Bool, Enum, Float, Int, List, Unicode, observe, validate
 
 from cubeloupe.analysis import (
     CONVENTIONS, CubeloupeError, channel_for, cube_rest_frequency, display_axis, velocity,
@@ -42,6 +42,7 @@ class ChannelBar(w.VBox):
     readout = Unicode("", help="Frequency and velocity of the selected channel, as shown")
     other_bands = List(help="[low, high] observed GHz of the other spectral windows: velocities measured from "
                             "a line in one of them are not shown")
+    velocity_only = Bool(False, help="The cube has a velocity axis and no rest frequency: show velocities only")
     go_message = Unicode("", help="Why the last 'Go to' could not be followed ('' when it was)")
     play_interval = Int(300, help="Milliseconds between channels during playback")
 
@@ -126,6 +127,9 @@ class ChannelBar(w.VBox):
             position = int(text) if text.lstrip("+-").isdigit() else u.Quantity(text)
             if isinstance(position, u.Quantity) and position.unit == u.dimensionless_unscaled:
                 raise ValueError("give a number with a unit (GHz, MHz, km/s) or a whole channel number")
+            if self.velocity_only and isinstance(position, u.Quantity) and not position.unit.is_equivalent(u.km / u.s):
+                raise ValueError("this cube has a velocity axis and no rest frequency: give a velocity (km/s) "
+                                 "or a channel number")
             channel = channel_for(position, self._frequencies, rest_frequency=self._rest(), z=self.z,
                                   convention=self.convention)
         except (ValueError, TypeError, CubeloupeError) as exc:
@@ -191,9 +195,15 @@ class ChannelBar(w.VBox):
             name = f"rest {rest.to_value(u.GHz):.6g} GHz"
         return name + (f" at z = {self.z:g}" if self.z else "")
 
-    @observe("channel", "z", "rest_frequency", "convention", "reference_label", "other_bands")
+    @observe("channel", "z", "rest_frequency", "convention", "reference_label", "other_bands", "velocity_only")
     def _show(self, change=None):
         k = self.channel
+        if self.velocity_only:
+            v = self.channel_velocity()
+            self.readout = f"channel {k} · {v.to_value(u.km / u.s):+.3f} km/s ({self.convention}, the cube's axis)"
+            self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace)'>"
+                                f"{html.escape(self.readout)}</span>")
+            return
         text = f"{self._frequencies[k].to_value(u.GHz):.6f} GHz"
         v = self.channel_velocity()
         if v is not None and np.isfinite(v.value):

@@ -17,7 +17,7 @@ import astropy.units as u
 import ipywidgets as w
 import numpy as np
 from bqplot import Lines, Scatter
-from traitlets import Enum, Float, Instance, List, TraitError, Unicode, observe, validate
+from traitlets import Bool, Enum, Float, Instance, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis import (
     HUBBLE_FLOW_MIN_VELOCITY, SPEED_OF_LIGHT, BandLines, CubeloupeError, check_redshift, in_hubble_flow,
@@ -85,6 +85,7 @@ class LineOverlay(w.VBox):
     lines = Instance(object, allow_none=True, help="The catalog rows shown as markers (astropy Table)")
     candidates = List(help="Redshift candidates for the marked peaks (RedshiftCandidate objects), best first")
     hover_text = Unicode("", help="Details of the marker under the pointer, as shown")
+    velocity_only = Bool(False, help="The cube has a velocity axis and no rest frequency: no lines can be placed")
     velocity_range = Float(1500.0, help="Half-range of the velocity slider (km/s)")
     marker_reach = Float(0.008, help="How near the pointer must come to a marker to point at it, as a fraction "
                                      "of the spectrum's drawn x range")
@@ -204,7 +205,13 @@ class LineOverlay(w.VBox):
             group.layout.margin = "0 16px 4px 0"
         self.groups[2].layout.flex = "1 1 380px"
         self.groups[2].layout.max_width = "560px"
-        self._children = [w.HBox(self.groups, layout=w.Layout(flex_flow="row wrap", align_items="flex-start")),
+        self._velocity_note = w.HTML(
+            "<span style='color:#52606d'>This cube has a velocity axis and no rest frequency, so catalog lines and "
+            "redshifts cannot be placed on it. Open it with <code>Loupe(path, rest_frequency=...)</code> (or "
+            "<code>open_cube(path, rest_frequency=...)</code>) to place them.</span>",
+            layout=w.Layout(display="none"))
+        self._children = [self._velocity_note,
+                          w.HBox(self.groups, layout=w.Layout(flex_flow="row wrap", align_items="flex-start")),
                           self._hover, self.status]
 
     def _default_reference_label(self):
@@ -262,6 +269,15 @@ class LineOverlay(w.VBox):
         # Distances and ages need cosmological integrals: a background worker works them out once z
         # has stopped changing, so the markers move at once and a slider drag is not slowed down.
         self._summary_worker.request(self.z)
+
+    @observe("velocity_only")
+    def _on_velocity_only(self, change):
+        for group in self.groups:
+            group.layout.display = "none" if self.velocity_only else ""
+        self._velocity_note.layout.display = "" if self.velocity_only else "none"
+        if self.velocity_only:
+            self.lines = self.lines[:0] if self.lines is not None else None
+            self._place_markers()
 
     @observe("species", "spin_isomer", "max_E_up")
     def _on_filters(self, change):
@@ -325,6 +341,8 @@ class LineOverlay(w.VBox):
 
     # --------------------------------------------------------------- markers
     def _refresh_lines(self):
+        if self.velocity_only:
+            return
         with self.status.guard("finding catalog lines in the band"):
             if self._band_lines is None:
                 self._band_lines = BandLines(

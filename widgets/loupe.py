@@ -25,8 +25,9 @@ from traitlets import Bool, Enum, Float, Instance, Int, List, TraitError, Unicod
 
 from cubeloupe.analysis import (
     AXIS_KINDS, CONVENTIONS, BeamError, CubeloupeError, RegionError, SpectralAxisError, catalog_line_at,
-    channel_at, choose_velocity_reference, cube_beam, cube_rest_frequency, display_axis, load_catalog,
-    measurement_table, open_cube, region_spectrum, source_name, write_maps, write_spectra,
+    NOMINAL_REST_FREQUENCY, channel_at, choose_velocity_reference, on_nominal_frequencies, velocity_convention_of,
+    velocity_only, cube_beam, cube_rest_frequency, display_axis, load_catalog,
+    measurement_table, open_cube, region_spectrum, source_name, unit_text, write_maps, write_spectra,
 )
 from cubeloupe.analysis import first_view as find_first_view
 
@@ -149,6 +150,10 @@ class Loupe(w.VBox):
                 self.status.error("No cube to show: pass the path of a FITS line cube, e.g. Loupe('cube.fits').")
             return
         problem = self.status.message if self.status.level == "error" else ""
+        self.velocity_only = False
+        if any(velocity_only(c) for c in self.cubes):
+            with self.status.guard("placing a velocity-only cube"):
+                rest_frequency, convention = self._adopt_velocity_axis(rest_frequency, convention)
         self.catalog = self._load_catalog(catalog)
         self._build()
         self.header = title
@@ -167,6 +172,8 @@ class Loupe(w.VBox):
             self._choose_rest_frequency(rest_frequency)
         self._describe_reference()
         self._show_header()
+        if self.velocity_only:
+            self._show_velocity_only()
         self._measure_enabled = True
         if first_view:
             self.show_first_view()
@@ -174,6 +181,33 @@ class Loupe(w.VBox):
             self.status.error(problem)
 
     # ------------------------------------------------------------- building
+    def _adopt_velocity_axis(self, rest_frequency, convention):
+        """Velocity-axis cubes without a rest frequency: put them on a frequency axis (see `on_nominal_frequencies`).
+
+        With ``rest_frequency`` given, that is the real axis. Without, the axis is nominal: the suite
+        then works in the cube's own velocities and convention only, and shows no frequency.
+        """
+        cube_convention = velocity_convention_of(next(c for c in self.cubes if velocity_only(c)))
+        rest = NOMINAL_REST_FREQUENCY if rest_frequency is None else u.Quantity(rest_frequency).to(
+            u.GHz, equivalencies=u.spectral())
+        self.cubes = [on_nominal_frequencies(c, rest) if velocity_only(c) else c for c in self.cubes]
+        if rest_frequency is None:
+            self.velocity_only = True
+            self.status.warn(f"{_source_name(self.cubes[0], 0)} has a velocity axis ({cube_convention} "
+                             "convention) and no rest frequency: the suite works in the file's velocities; "
+                             "frequencies and catalog lines cannot be shown. Pass rest_frequency=... to place "
+                             "them.")
+            return None, cube_convention
+        return rest, convention
+
+    def _show_velocity_only(self):
+        """Lock the frame to the file's velocities: velocity axis, its convention, no lines, no z."""
+        self.axis_kind = "velocity"
+        self.spectrum_view.velocity_only = True
+        self.channel_bar.velocity_only = True
+        self.line_overlay.velocity_only = True
+        self.velocity_reference = "the cube's own velocity axis"
+
     def _load_catalog(self, catalog):
         if isinstance(catalog, Table):
             return catalog
@@ -299,9 +333,14 @@ class Loupe(w.VBox):
                 beam_text = "no beam in the header"
             n, ny, nx = cube.shape
             width = abs(f[-1] - f[0]) / max(n - 1, 1) * 1e3
+            band = f"{f.min():.4f}–{f.max():.4f} GHz ({width:.4g} MHz channels; channel centres)"
+            if self.velocity_only:
+                v = display_axis(cube, "velocity", rest_frequency=NOMINAL_REST_FREQUENCY,
+                                 convention=self.convention).to_value(u.km / u.s)
+                band = (f"{v.min():.2f} to {v.max():.2f} km/s ({abs(v[-1] - v[0]) / max(n - 1, 1):.4g} km/s "
+                        f"channels, {self.convention}; no rest frequency)")
             text = (f"{html.escape(_source_name(cube, index))} · {n} channels × {ny} × {nx} pixels · "
-                    f"{f.min():.4f}–{f.max():.4f} GHz ({width:.4g} MHz channels) · {beam_text} · "
-                    f"{html.escape(str(cube.unit) or 'no unit')}")
+                    f"{band} · {beam_text} · {html.escape(unit_text(cube.unit) or 'no unit')}")
             if len(self.cubes) > 1:
                 text = f"window {index}: {text}"
                 if index == self.window:
@@ -350,6 +389,9 @@ class Loupe(w.VBox):
     @observe("reference_line", "rest_frequency")
     def _describe_reference(self, change=None):
         if not self.cubes or not hasattr(self, "line_overlay"):
+            return
+        if self.velocity_only:
+            self.velocity_reference = "the cube's own velocity axis"
             return
         if change is not None and change.name == "rest_frequency" and self.reference_line:
             # A rest frequency set by hand that is not the chosen line's: the line no longer applies.

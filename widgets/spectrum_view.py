@@ -67,6 +67,8 @@ class SpectrumView(w.VBox):
     peaks = List(Float(), help="Marked peak positions, observed frequency in GHz")
     baseline_order = Int(1, help=f"Order of the polynomial baseline (0 to {MAX_ORDER})")
     show_subtracted = Bool(False, help="Show spectra with the baseline subtracted")
+    velocity_only = Bool(False, help="The cube has a velocity axis and no rest frequency: only the velocity axis, "
+                                     "in the file's convention, can be shown")
     mode = Enum(list(CLICK_MODES), "go", help="What clicking or dragging on the spectrum does")
     cursor_frequency = Float(None, allow_none=True, help="Observed frequency (GHz) of the channel on the sky")
     brushing = Bool(False, help="True while a range is being dragged (heavy work waits until release)")
@@ -181,6 +183,14 @@ class SpectrumView(w.VBox):
                 flex_flow="row wrap"),
             row([self.mode_buttons, self.clear_button], flex_flow="row wrap"),
         ])
+
+    @observe("velocity_only")
+    def _on_velocity_only(self, change):
+        # Frequencies of a velocity-only cube are nominal: neither they nor another convention may be shown.
+        self.axis_choice.options = ["velocity"] if self.velocity_only else list(AXIS_KINDS)
+        self.axis_choice.disabled = self.convention_choice.disabled = self.velocity_only
+        if self.velocity_only:
+            self.axis_kind = "velocity"
 
     def _set_marks(self):
         curves = []

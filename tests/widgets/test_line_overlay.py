@@ -114,7 +114,7 @@ def test_header_names_the_cube(loupe, line_cube):
     text = loupe.header.value
     # cubefactory: 60 channels of 24 x 28 pixels, 1 MHz channels, a 1" round beam, Jy/beam
     assert line_cube.name in text and "60 channels × 24 × 28 pixels" in text
-    assert "1 MHz channels" in text and "beam 1.00″ × 1.00″" in text and "Jy / beam" in text
+    assert "1 MHz channels" in text and "beam 1.00″ × 1.00″" in text and "Jy/beam" in text
 
 
 def test_bad_redshift_is_refused_with_a_message(loupe):

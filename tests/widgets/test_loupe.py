@@ -5,6 +5,7 @@ widgets in the form the bqplot front end sends them.
 """
 
 import astropy.units as u
+import numpy as np
 import pytest
 from astropy.io import fits
 from numpy.testing import assert_allclose
@@ -114,3 +115,32 @@ def test_a_lines_flux_scales_with_one_plus_z_for_the_same_channels(loupe):
     for z in (0.01, 0.5, 2.0):
         loupe.z = z
         assert loupe.measurements[0]["flux"] == pytest.approx(at_rest * (1 + z), rel=1e-9)
+
+
+def test_a_velocity_axis_cube_without_rest_frequency_works_in_its_own_velocities(cube_path, rng):
+    """Issues #13, #17: such a cube opened with a raw traceback from the channel bar."""
+    from cubefactory import gaussian_profile
+    from cubeloupe.analysis import measure_line
+
+    n = 80
+    v_axis = (np.arange(n) - 40) * 0.5  # the factory's VOPT axis: 0.5 km/s channels (km/s)
+    line = gaussian_profile(v_axis, 2.0, 3.0, 2.0)[:, None, None]
+    data = (line * np.ones((1, 8, 9)) + rng.normal(0, 0.05, (n, 8, 9))).astype(np.float32)
+    path = cube_path(data, spectral="VOPT", restfrq=None, cdelt3=500.0, crval3=0.0, crpix3=41, bunit="K")
+    loupe = Loupe(path)
+    assert loupe.velocity_only and loupe.axis_kind == "velocity" and loupe.convention == "optical"
+    assert "km/s" in loupe.channel_bar.readout and "GHz" not in loupe.channel_bar.readout
+    assert loupe.channel_bar.go_to("3 km/s") == 46 and loupe.channel_bar.go_to("100 GHz") is None
+    # measurements in the file's velocities: the same as measure_line on the file's own velocity spectrum
+    region = CirclePixelRegion(PixCoord(4, 4), radius=2)
+    loupe.add_region(region, name="middle")
+    view = loupe.spectrum_view
+    to_ghz = lambda v: float(view.frequency_of_x(np.array([v]))[0])  # noqa: E731
+    # range edges between channel centres, so that both sides pick the same channels
+    loupe.line_free = sorted([sorted([to_ghz(-19.25), to_ghz(-8.25)]), sorted([to_ghz(12.25), to_ghz(19.25)])])
+    loupe.line_window = sorted([to_ghz(-4.25), to_ghz(10.25)])
+    direct = measure_line(region_spectrum(open_cube(path), region), (-4.25, 10.25) * u.km / u.s,
+                          line_free=[(-19.25, -8.25), (12.25, 19.25)] * u.km / u.s)
+    row = next(r for r in loupe.measurements if r["region"] == "middle")
+    assert row["flux"] == pytest.approx(direct.flux.to_value(u.K * u.km / u.s), rel=1e-6)
+    assert row["centroid"] == pytest.approx(direct.centroid.to_value(u.km / u.s), abs=1e-6)
