@@ -73,7 +73,8 @@ from .smoothing import (
     SMOOTHING_KERNELS, channel_correlation, correlated_error, noise_correlation_factor, smooth_spectrum,
     smoothing_kernel, with_channel_correlation,
 )
-from .gaussian_fits import GaussianComponent, GaussianFit, HyperfineSolution, fit_gaussians, hyperfine_lines
+from .gaussian_fits import GaussianComponent, GaussianFit, fit_gaussians
+from .hyperfine import HyperfineSolution, hyperfine_lines
 from .pv_slice import PVSlice, pv_slice
 from .channel_maps import ChannelPanels, channel_maps, channel_panels
 

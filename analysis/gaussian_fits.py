@@ -24,21 +24,11 @@ Reduction and Error Analysis*, 3rd ed., ch. 7). A component's integrated
 flux is ``A W sqrt(pi / (4 ln 2))`` (the integral of the Gaussian), its error
 propagated with the covariance of ``A`` and ``W``.
 
-Hyperfine mode. For a resolved hyperfine group (N2H+ 1-0, HCN 1-0, ...) all
-components share one excitation temperature, one velocity and one width, and
-their optical depths are fixed fractions ``r_i`` (the relative intensities,
-summing to 1) of the total optical depth ``tau``:
-
-    ``T(v) = A (1 - exp(-tau sum_i r_i exp(-4 ln 2 (v - v0 - dv_i)^2 / W^2)))``
-    with ``A (1 + z) = J(T_ex) - J(T_bg)`` and ``J(T) = (h nu / k) / (exp(h nu / k T) - 1)``
-
-the hyperfine-structure fitting method as used for N2H+ by Caselli, Myers &
-Thaddeus (1995, ApJ 455, L77), with the radiative transfer of Mangum &
-Shirley (2015, PASP 127, 266, eqs. 27-31). For spectra in K (beam filling
-factor 1 assumed) ``T_ex`` follows from ``A`` with ``T_bg`` the cosmic
-microwave background, 2.72548 K (Fixsen 2009, ApJ 707, 916), times ``1 + z``
-at redshift ``z``, where the observed brightness is ``A / (1 + z)`` (da Cunha
-et al. 2013, ApJ 766, 13).
+Hyperfine mode (``hyperfine=``). The components of a resolved hyperfine
+group share one excitation temperature, velocity and width, and their optical
+depths are fixed fractions of a fitted total optical depth (the model, its
+sources and ``T_ex`` are in `cubeloupe.analysis.hyperfine`), fitted from a few
+starting optical depths with the same solver and error propagation.
 
 Results are quick-look numbers (see the README).
 
@@ -59,30 +49,25 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
-from astropy import constants
-from astropy.table import QTable, Table
 from threadpoolctl import threadpool_limits
 
 from .baseline import BaselineFit, CachedAxis, as_spectrum, fit_baseline, line_free_mask
-from .catalog import load_catalog
-from .errors import CatalogError, FitError
+from .errors import FitError
+from .hyperfine import (
+    OPTICAL_DEPTH_LIMITS, HyperfineSolution, excitation_temperature, hyperfine_jacobian, hyperfine_lines,
+    hyperfine_profile,
+)
 from .smoothing import channel_correlation
 from .spectral import axis_in, check_convention, check_redshift, check_rest_frequency, velocity
 from .windows import line_free_outside_window, window_channels
 
-__all__ = ["GaussianComponent", "HyperfineSolution", "GaussianFit", "fit_gaussians", "hyperfine_lines",
-           "CMB_TEMPERATURE"]
+__all__ = ["GaussianComponent", "GaussianFit", "fit_gaussians"]
 
 _KMS = u.km / u.s
 _FOUR_LN2 = 4.0 * np.log(2.0)
 # Integral of a unit-peak Gaussian of unit FWHM: sqrt(pi / (4 ln 2)) = 1.0645...
 _AREA_PER_PEAK_WIDTH = np.sqrt(np.pi / _FOUR_LN2)
 
-#: Present-day CMB temperature (Fixsen 2009, ApJ 707, 916).
-CMB_TEMPERATURE = 2.72548 * u.K
-
-_MAX_OPTICAL_DEPTH = 30.0  # beyond this the profile no longer constrains tau (common practice)
-_MIN_OPTICAL_DEPTH = 1e-3
 
 
 @dataclass(frozen=True)
@@ -102,44 +87,6 @@ class GaussianComponent:
     center_error: u.Quantity
     fwhm_error: u.Quantity
     flux_error: u.Quantity
-
-
-@dataclass(frozen=True)
-class HyperfineSolution:
-    """The radiative-transfer parameters of a hyperfine fit (see the module docstring).
-
-    Attributes
-    ----------
-    group : str
-        The hyperfine group's name ("" for a table given directly).
-    optical_depth, optical_depth_error : float
-        Total optical depth ``tau`` (the sum over components of their peak
-        optical depths) and its 1-sigma error.
-    amplitude, amplitude_error : Quantity
-        ``A = J(T_ex) - J(T_bg)`` (observed, i.e. divided by ``1 + z``), in the spectrum's unit.
-    excitation_temperature, excitation_temperature_error : Quantity or None
-        From ``A`` for spectra in K (filling factor 1); None otherwise.
-    center, center_error, fwhm, fwhm_error : Quantity [km/s]
-        Velocity of the group (of the reference line) and the common intrinsic FWHM.
-    lines : QTable
-        ``rest_frequency``, ``relative_intensity`` and ``velocity_offset`` of each component.
-    reference_frequency : Quantity [GHz]
-        The rest frequency velocities are measured from.
-    """
-
-    group: str
-    optical_depth: float
-    optical_depth_error: float
-    amplitude: u.Quantity
-    amplitude_error: u.Quantity
-    excitation_temperature: object
-    excitation_temperature_error: object
-    center: u.Quantity
-    center_error: u.Quantity
-    fwhm: u.Quantity
-    fwhm_error: u.Quantity
-    lines: QTable
-    reference_frequency: u.Quantity
 
 
 @dataclass(frozen=True, eq=False)
@@ -255,118 +202,6 @@ def _gaussians_jacobian(x, params):
     jac[:, :, 1] = p[:, 0] * shape * 2 * _FOUR_LN2 * offset / p[:, 2] ** 2
     jac[:, :, 2] = p[:, 0] * shape * 2 * _FOUR_LN2 * offset**2 / p[:, 2] ** 3
     return jac.reshape(x.size, -1)
-
-
-def _hyperfine_parts(v, params, offsets, weights):
-    amplitude, v0, width, tau = params
-    delta = v[:, None] - v0 - offsets
-    shapes = np.exp(-_FOUR_LN2 * delta**2 / width**2)
-    profile = shapes @ weights  # sum_i r_i g_i(v)
-    return amplitude, tau, width, delta, shapes, profile
-
-
-def _hyperfine(v, params, offsets, weights):
-    amplitude, tau, _, _, _, profile = _hyperfine_parts(v, params, offsets, weights)
-    return amplitude * -np.expm1(-tau * profile)
-
-
-def _hyperfine_jacobian(v, params, offsets, weights):
-    amplitude, tau, width, delta, shapes, profile = _hyperfine_parts(v, params, offsets, weights)
-    attenuation = np.exp(-tau * profile)
-    common = amplitude * attenuation * tau
-    return np.column_stack([
-        -np.expm1(-tau * profile),
-        common * ((shapes * (2 * _FOUR_LN2 * delta / width**2)) @ weights),
-        common * ((shapes * (2 * _FOUR_LN2 * delta**2 / width**3)) @ weights),
-        amplitude * attenuation * profile,
-    ])
-
-
-# ---------------------------------------------------------------------------
-# Hyperfine groups
-# ---------------------------------------------------------------------------
-
-def hyperfine_lines(group, catalog=None):
-    """The components of a hyperfine group: rest frequencies and relative intensities summing to 1.
-
-    Parameters
-    ----------
-    group : str or Table
-        A group name of the catalog's ``hyperfine_group`` column (e.g.
-        ``"N2H+ J=1-0"``), or a table with columns ``rest_frequency``
-        (Quantity, or GHz) and ``relative_intensity`` (renormalised to sum to 1).
-    catalog : Table, optional
-        Defaults to `load_catalog`.
-
-    Returns
-    -------
-    QTable
-        ``rest_frequency`` [GHz] and ``relative_intensity``, sorted by frequency.
-
-    Raises
-    ------
-    CatalogError
-        Unknown group, a catalog without hyperfine groups, or a malformed table.
-
-    Examples
-    --------
-    >>> from astropy.table import Table
-    >>> t = hyperfine_lines(Table({"rest_frequency": [93.1717, 93.1737] * u.GHz, "relative_intensity": [1, 3]}))
-    >>> t["relative_intensity"].tolist()
-    [0.25, 0.75]
-    """
-    name = ""
-    if isinstance(group, str):
-        name = group
-        table = load_catalog() if catalog is None else catalog
-        if "hyperfine_group" not in table.colnames or "relative_intensity" not in table.colnames:
-            raise CatalogError(
-                f"the line catalog has no hyperfine groups (columns 'hyperfine_group', 'relative_intensity'), so "
-                f"{group!r} cannot be looked up; pass hyperfine= a table with columns rest_frequency and "
-                "relative_intensity instead"
-            )
-        groups = np.array([str(g) for g in table["hyperfine_group"]])
-        rows = table[groups == group]
-        if len(rows) == 0:
-            known = sorted({g for g in groups if g})
-            raise CatalogError(f"no hyperfine group {group!r} in the catalog; known groups: {known}")
-    elif isinstance(group, Table):
-        rows = group
-    else:
-        raise CatalogError(f"hyperfine must be a group name or a table; got {type(group).__name__}")
-    for column in ("rest_frequency", "relative_intensity"):
-        if column not in rows.colnames:
-            raise CatalogError(f"a hyperfine table needs the column {column!r}; it has {rows.colnames}")
-    frequency = u.Quantity(rows["rest_frequency"], u.GHz)
-    intensity = np.asarray(u.Quantity(rows["relative_intensity"]).value, dtype=float)
-    if len(rows) < 2 or not np.all(np.isfinite(intensity)) or np.any(intensity < 0) or intensity.sum() <= 0:
-        raise CatalogError(
-            f"the hyperfine group {name or 'table'} needs at least two components with non-negative relative "
-            f"intensities; got {intensity.tolist()}"
-        )
-    order = np.argsort(frequency.value)
-    out = QTable({"rest_frequency": frequency[order], "relative_intensity": intensity[order] / intensity.sum()})
-    out.meta["group"] = name
-    return out
-
-
-def _planck_temperature(temperature, frequency):
-    """``J(T) = (h nu / k) / (exp(h nu / k T) - 1)`` in K (Mangum & Shirley 2015, eq. 27)."""
-    t0 = (constants.h * frequency / constants.k_B).to_value(u.K)
-    return t0 / np.expm1(t0 / temperature)
-
-
-def _excitation_temperature(amplitude, frequency, z):
-    """``T_ex`` from ``A = [J(T_ex) - J(T_bg)] / (1 + z)`` and d T_ex / d A."""
-    t0 = (constants.h * frequency / constants.k_B).to_value(u.K)
-    background = _planck_temperature(CMB_TEMPERATURE.to_value(u.K) * (1 + z), frequency)
-    x = amplitude * (1 + z) + background
-    if x <= 0:
-        return np.nan, np.nan
-    tex = t0 / np.log1p(t0 / x)
-    # d/dx [t0 / ln(1 + t0/x)] = t0^2 / (x^2 (1 + t0/x) ln^2(1 + t0/x)) = tex^2 / (x^2 + x t0)
-    derivative = tex**2 / (x**2 + x * t0) * (1 + z)
-    return tex, derivative
 
 
 # ---------------------------------------------------------------------------
@@ -587,10 +422,10 @@ def _fit_gaussians(spectrum, n_components, window, line_free, order, rest_freque
         lines["velocity_offset"] = offsets * _KMS
 
         def model(xx, p):
-            return _hyperfine(xx, p, offsets, weights)
+            return hyperfine_profile(xx, p, offsets, weights)
 
         def jacobian(xx, p):
-            return _hyperfine_jacobian(xx, p, offsets, weights)
+            return hyperfine_jacobian(xx, p, offsets, weights)
 
         result = _solve_hyperfine(model, jacobian, x, y, offsets, weights, step, guesses, unit)
     else:
@@ -684,8 +519,8 @@ def _solve_hyperfine(model, jacobian, x, y, offsets, weights, step, guesses, uni
         v0 = float(candidates[int(np.argmax(scores))])
         peak = sign * np.max(sign * y)
         tau_starts = [0.1, 1.0, 5.0]
-    lower = np.array([0.0 if sign > 0 else -np.inf, x.min() - np.ptp(offsets), step / 2, _MIN_OPTICAL_DEPTH])
-    upper = np.array([np.inf if sign > 0 else 0.0, x.max() + np.ptp(offsets), 2 * np.ptp(x), _MAX_OPTICAL_DEPTH])
+    lower = np.array([0.0 if sign > 0 else -np.inf, x.min() - np.ptp(offsets), step / 2, OPTICAL_DEPTH_LIMITS[0]])
+    upper = np.array([np.inf if sign > 0 else 0.0, x.max() + np.ptp(offsets), 2 * np.ptp(x), OPTICAL_DEPTH_LIMITS[1]])
     best = None
     for tau in tau_starts:
         thin_peak = -np.expm1(-tau * np.max(weights))
@@ -721,7 +556,7 @@ def _hyperfine_results(params, covariance, errors, model, x_all, unit, lines, re
         flux_error=flux_error * unit * _KMS)
     tex = tex_error = None
     if unit.is_equivalent(u.K):
-        tex_value, derivative = _excitation_temperature(u.Quantity(amplitude, unit).to_value(u.K),
+        tex_value, derivative = excitation_temperature(u.Quantity(amplitude, unit).to_value(u.K),
                                                         u.Quantity(reference, u.GHz), z)
         tex = tex_value * u.K
         tex_error = abs(derivative) * u.Quantity(errors[0], unit).to_value(u.K) * u.K

@@ -10,7 +10,8 @@ from scipy.optimize import curve_fit
 
 from cubeloupe.analysis import CatalogError, FitError, load_catalog, measure_line
 from cubeloupe.analysis.baseline import as_spectrum
-from cubeloupe.analysis.gaussian_fits import fit_gaussians, hyperfine_lines
+from cubeloupe.analysis.gaussian_fits import fit_gaussians
+from cubeloupe.analysis.hyperfine import hyperfine_lines
 from cubeloupe.analysis.smoothing import smooth_spectrum
 
 KMS = u.km / u.s
@@ -189,27 +190,6 @@ def test_hyperfine_fit_on_an_optically_thin_group_has_a_large_relative_tau_error
                         window=(-10, 15) * KMS, line_free=[(-15, -10.5), (15.5, 25)] * KMS, order=0)
     assert fit.hyperfine.optical_depth_error > 0.3 * fit.hyperfine.optical_depth
     assert fit.hyperfine.center.to_value(KMS) == pytest.approx(2.0, abs=0.05)
-
-
-def test_hyperfine_lines_normalise_and_look_up_groups():
-    lines = hyperfine_lines(Table({"rest_frequency": [93.1737, 93.1717] * u.GHz, "relative_intensity": [3, 1]}))
-    assert lines["relative_intensity"].tolist() == [0.25, 0.75]   # sorted by frequency
-    catalog = Table({"name": ["a", "b", "c"], "rest_frequency": [1.0, 1.1, 2.0] * u.GHz,
-                     "hyperfine_group": ["X 1-0", "X 1-0", ""], "relative_intensity": [0.4, 0.6, 1.0]})
-    assert len(hyperfine_lines("X 1-0", catalog=catalog)) == 2
-    with pytest.raises(CatalogError, match=r"no hyperfine group 'Y 1-0'.*'X 1-0'"):
-        hyperfine_lines("Y 1-0", catalog=catalog)
-
-
-def test_catalog_group_by_name():
-    if "hyperfine_group" not in load_catalog().colnames:
-        with pytest.raises(CatalogError, match="no hyperfine groups"):
-            hyperfine_lines("N2H+ J=1-0")
-        return
-    lines = hyperfine_lines("N2H+ J=1-0")
-    # N2H+ 1-0 has seven hyperfine components (Caselli et al. 1995, Table 1).
-    assert len(lines) == 7
-    assert lines["relative_intensity"].sum() == pytest.approx(1.0)
 
 
 @pytest.mark.parametrize("kwargs, match", [
