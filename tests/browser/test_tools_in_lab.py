@@ -204,7 +204,7 @@ def tools(lab_page, lab_root):
 
 @pytest.fixture(scope="module")
 def high_z(other_lab_page):
-    """The two-window example notebook, run from the Run menu on a page of its own."""
+    """The multi-window example notebook, run from the Run menu on a page of its own."""
     lab = other_lab_page
     lab.open_notebook(HIGH_Z_NOTEBOOK)
     lab.run_all()
@@ -525,7 +525,8 @@ def test_high_z_notebook_runs_and_window_switch_changes_band(high_z):
     bands = ask_kernel(lab, "[[(h['CRVAL3'] + (k + 1 - h['CRPIX3']) * h['CDELT3']) / 1e9 "
                             "for k in (0, h['NAXIS3'] - 1)] for h in [_fits.getheader(p) for p in paths]]")
     bands = [sorted(b) for b in bands]
-    assert len(bands) == 2 and (bands[0][1] < bands[1][0] or bands[1][1] < bands[0][0])
+    # The demo delivery has several windows; the first two lie apart (their bands do not overlap).
+    assert len(bands) >= 2 and (bands[0][1] < bands[1][0] or bands[1][1] < bands[0][0])
     label = suite.locator(".cubeloupe-channel-label")
     choice = suite.locator(".cubeloupe-window-choice select")
     canvas = suite.locator(".cubeloupe-sky-figure canvas").first
