@@ -1,10 +1,28 @@
 """The transition catalog: which lines exist, and which fall in an observed band.
 
-cubeloupe ships its own catalog (``analysis/data/transitions.ecsv``) and never
+cubeloupe ships its own catalog (``analysis/data/transitions.ecsv``, written by
+``analysis/data/make_transitions.py`` from published line files) and never
 queries an online service. `load_catalog` returns it as an astropy Table,
 optionally merged with a user's own ECSV/CSV line list; `select_lines` filters
 it; `lines_in_band` lists the transitions whose redshifted frequencies fall in
 an observed band, with velocity offsets from a chosen reference line.
+
+The bundled catalog holds some 2 400 rows between 20 GHz and 1.9 THz: molecular
+lines up to E_up/k = 600 K (filter with ``max_E_up``), the atomic fine-structure
+lines and the H, He and C recombination lines (`cubeloupe.analysis.recombination`).
+Each row has a ``family`` (see `LINE_FAMILIES`). Lines split by hyperfine
+structure are one row per component, grouped by ``hyperfine_group`` (e.g.
+``"N2H+ J=1-0"``) with each component's LTE optically-thin share of the group's
+intensity in ``relative_intensity``; `collapse_hyperfine` turns each group into
+one row, and `find_line` accepts a group's name.
+
+Degeneracies: ``g_up`` carries no nuclear-spin factor. Ortho and para (and
+methanol's A and E) are separate species with their own partition function, so
+spin-statistical weights cancel and are left out; a hyperfine component carries
+(2F+1)/prod(2I+1), its share of the rotational level's 2J+1. CH3CN and CH3CCH
+keep their K ladders' relative spin weights (2 for K = 3n, 1 otherwise), as one
+partition function covers all K. `cubeloupe.analysis.partition_function` uses
+the same convention.
 
 Examples
 --------
@@ -21,14 +39,16 @@ from pathlib import Path
 
 import astropy.units as u
 import numpy as np
-from astropy.table import QTable, Table, vstack
+from astropy.table import Column, QTable, Table, vstack
 
 from .errors import CatalogError, SpectralRangeError, UnitMismatchError
 from .spectral import check_convention, check_redshift, check_rest_frequency, velocity
 
 __all__ = [
     "CATALOG_COLUMNS",
+    "LINE_FAMILIES",
     "SPIN_ISOMERS",
+    "collapse_hyperfine",
     "load_catalog",
     "read_line_list",
     "select_lines",
@@ -45,9 +65,15 @@ CATALOG_COLUMNS = {
     "einstein_A": 1 / u.s,
     "spin_isomer": None,
     "provenance": None,
+    "g_up": None,
+    "family": None,
+    "hyperfine_group": None,
+    "relative_intensity": None,
 }
 _REQUIRED = ("species", "transition", "rest_frequency")
 SPIN_ISOMERS = ("ortho", "para", "none")
+LINE_FAMILIES = ("CO and isotopologues", "dense gas", "shock tracers", "complex organics",
+                 "water and hydrides", "atoms and ions", "recombination lines")
 
 _KMS = u.km / u.s
 
@@ -62,12 +88,17 @@ def _bundled():
     ref = resources.files("cubeloupe.analysis.data").joinpath("transitions.ecsv")
     with resources.as_file(ref) as path:
         table = Table.read(path, format="ascii.ecsv")
-    return _finish(_normalise(table, source=str(path)))
+    for name in ("hyperfine_group", "provenance"):  # empty strings come back masked
+        table[name] = np.asarray(table[name].filled("") if hasattr(table[name], "filled") else table[name],
+                                 dtype=str)
+    return _finish(QTable(table))
 
 
 def _finish(table):
     """Add the ``name`` column, sort by rest frequency, and hold units as Quantities."""
     table = QTable(table)
+    for name in ("rest_frequency", "E_up", "einstein_A"):
+        table[name] = u.Quantity(table[name], CATALOG_COLUMNS[name])
     names = [f"{s} {t}" for s, t in zip(table["species"], table["transition"])]
     table.add_column(np.array(names, dtype=str), name="name", index=0)
     table.sort("rest_frequency")
@@ -96,7 +127,7 @@ def _as_float_column(table, name, unit, source):
         except (TypeError, ValueError):
             raise _row_error(source, i, name, f"{value!r} is not a number") from None
     col_unit = getattr(col, "unit", None)
-    if col_unit is not None and col_unit != unit:
+    if col_unit is not None and unit is not None and col_unit != unit:
         try:
             values = (values * col_unit).to_value(
                 unit, equivalencies=u.spectral() + u.temperature_energy())
@@ -152,7 +183,32 @@ def _normalise(table, *, source):
     else:
         prov = [f"user line list {source}"] * n
     out["provenance"] = np.array(prov, dtype=str)
+    out["g_up"] = (_as_float_column(table, "g_up", None, source) if "g_up" in table.colnames
+                   else np.full(n, np.nan))
+    families = _text_column(table, "family", n)
+    known = _bundled_families() if source != "bundled" else {}
+    for i, family in enumerate(families):
+        if not family:
+            families[i] = known.get(out["species"][i], "")
+        elif family not in LINE_FAMILIES:
+            raise _row_error(source, i, "family", f"{family!r} is not one of {list(LINE_FAMILIES)}")
+    out["family"] = np.array(families, dtype=str)
+    out["hyperfine_group"] = np.array(_text_column(table, "hyperfine_group", n), dtype=str)
+    share = (_as_float_column(table, "relative_intensity", None, source) if "relative_intensity" in table.colnames
+             else np.full(n, np.nan))
+    out["relative_intensity"] = np.where(np.isfinite(share), share, 1.0)
     return out
+
+
+def _text_column(table, name, n):
+    if name not in table.colnames:
+        return [""] * n
+    return [str(v).strip() if v is not np.ma.masked else "" for v in table[name]]
+
+
+def _bundled_families():
+    table = _bundled()
+    return dict(zip(np.asarray(table["species"]).tolist(), np.asarray(table["family"]).tolist()))
 
 
 def read_line_list(source):
@@ -215,7 +271,10 @@ def load_catalog(extra=None):
         Columns ``name`` (``"<species> <transition>"``), ``species``,
         ``transition``, ``rest_frequency`` [GHz], ``E_up`` [K],
         ``einstein_A`` [1/s, NaN where unknown], ``spin_isomer``
-        (ortho/para/none) and ``provenance``; sorted by rest frequency.
+        (ortho/para/none), ``provenance``, ``g_up`` (NaN where unknown),
+        ``family`` (one of `LINE_FAMILIES`; "" for a user's species the
+        bundled catalog lacks), ``hyperfine_group`` ("" outside a group) and
+        ``relative_intensity`` (1 outside a group); sorted by rest frequency.
         A fresh copy: changing it does not change the catalog.
 
     Raises
@@ -321,22 +380,40 @@ def _check_spin(spin_isomer):
     return wanted
 
 
-def _selection_mask(catalog, species=None, spin_isomer=None, max_E_up=None, rest_band=None):
+def _check_family(family):
+    wanted = [family] if isinstance(family, str) else list(family)
+    for value in wanted:
+        if value not in LINE_FAMILIES:
+            close = difflib.get_close_matches(str(value), LINE_FAMILIES, n=2, cutoff=0.4)
+            hint = f"did you mean {close}? " if close else ""
+            raise CatalogError(f"unknown line family {value!r}; {hint}choose from {list(LINE_FAMILIES)}")
+    return wanted
+
+
+def _selection_mask(catalog, species=None, spin_isomer=None, max_E_up=None, rest_band=None, family=None):
     mask = np.ones(len(catalog), dtype=bool)
+    if family is not None:
+        mask &= np.isin(np.asarray(catalog["family"]), _check_family(family))
     if species is not None:
         mask &= np.isin(np.asarray(catalog["species"]), _resolve_species(catalog, species))
     if spin_isomer is not None:
         mask &= np.isin(np.asarray(catalog["spin_isomer"]), _check_spin(spin_isomer))
     if max_E_up is not None:
-        # Lines of unknown E_up (NaN) are dropped by an E_up cut.
-        mask &= np.asarray(catalog["E_up"]) <= _check_max_e_up(max_E_up)
+        # Lines of unknown E_up (NaN) are dropped by an E_up cut, except recombination
+        # lines, which have no E_up and would otherwise vanish from every cut.
+        e_up = np.asarray(catalog["E_up"])
+        keep = e_up <= _check_max_e_up(max_E_up)
+        if "family" in catalog.colnames:
+            keep |= np.isnan(e_up) & (np.asarray(catalog["family"]) == "recombination lines")
+        mask &= keep
     if rest_band is not None:
         nu = np.asarray(catalog["rest_frequency"])
         mask &= (nu >= rest_band[0]) & (nu <= rest_band[1])
     return mask
 
 
-def select_lines(catalog=None, *, species=None, spin_isomer=None, max_E_up=None, fmin=None, fmax=None):
+def select_lines(catalog=None, *, species=None, spin_isomer=None, max_E_up=None, fmin=None, fmax=None,
+                 family=None):
     """Rows of the catalog that pass every given filter.
 
     Parameters
@@ -348,9 +425,12 @@ def select_lines(catalog=None, *, species=None, spin_isomer=None, max_E_up=None,
         matter: ``"cii"`` finds ``[CII]``).
     spin_isomer : {'ortho', 'para', 'none'} or list of them, optional
     max_E_up : Quantity [temperature or energy], optional
-        Keep lines with E_up/k at most this (lines of unknown E_up are dropped).
+        Keep lines with E_up/k at most this (lines of unknown E_up are
+        dropped, except recombination lines, which have none).
     fmin, fmax : Quantity [frequency], optional
         Keep lines whose *rest* frequency lies in [fmin, fmax].
+    family : str or list of str, optional
+        Keep lines of these families (see `LINE_FAMILIES`).
 
     Returns
     -------
@@ -359,7 +439,7 @@ def select_lines(catalog=None, *, species=None, spin_isomer=None, max_E_up=None,
     Raises
     ------
     CatalogError
-        Unknown species (with close matches suggested) or spin isomer.
+        Unknown species (with close matches suggested), spin isomer or family.
     UnitMismatchError
         A limit without units or of the wrong kind.
     SpectralRangeError
@@ -371,31 +451,102 @@ def select_lines(catalog=None, *, species=None, spin_isomer=None, max_E_up=None,
     >>> water = select_lines(species="H2O", spin_isomer="para", max_E_up=100 * u.K)
     >>> water["transition"].tolist()
     ['1_11-0_00']
+    >>> len(select_lines(family="recombination lines", fmin=99 * u.GHz, fmax=99.1 * u.GHz))
+    3
     """
     catalog = _bundled() if catalog is None else catalog
     rest_band = None
     if fmin is not None or fmax is not None:
         rest_band = _check_band(fmin if fmin is not None else 1e-30 * u.GHz,
                                 fmax if fmax is not None else 1e30 * u.GHz)
-    mask = _selection_mask(catalog, species, spin_isomer, max_E_up, rest_band)
+    mask = _selection_mask(catalog, species, spin_isomer, max_E_up, rest_band, family)
     return catalog[mask]
+
+
+def collapse_hyperfine(table):
+    """``table`` with each hyperfine group replaced by one row.
+
+    The group's row is named after the group (``"N2H+ J=1-0"``); its rest
+    frequency is the relative-intensity-weighted mean of the components
+    present (the hyperfine-free centre when all are), ``g_up`` the sum of
+    theirs, ``einstein_A`` and ``E_up`` their intensity-weighted means, and
+    ``relative_intensity`` the sum of their shares (1 for a whole group).
+    Rows outside groups pass unchanged. Extra columns (``observed_frequency``,
+    ``velocity``) are averaged like the frequency. The result keeps the input's
+    order by its first column of frequencies.
+
+    Parameters
+    ----------
+    table : QTable
+        Rows of the catalog, e.g. from `lines_in_band` or `select_lines`.
+
+    Returns
+    -------
+    QTable
+
+    Examples
+    --------
+    >>> import astropy.units as u
+    >>> band = lines_in_band(93.17 * u.GHz, 93.18 * u.GHz, z=0.0, species="N2H+")
+    >>> len(band), collapse_hyperfine(band)["name"].tolist()
+    (7, ['N2H+ J=1-0'])
+    """
+    if "hyperfine_group" not in table.colnames or len(table) == 0:
+        return table
+    groups = np.asarray(table["hyperfine_group"], dtype=str)
+    in_group = groups != ""
+    if not in_group.any():
+        return table
+    rows = np.flatnonzero(in_group)
+    names, which = np.unique(groups[rows], return_inverse=True)
+    share = np.asarray(table["relative_intensity"], dtype=float)[rows]
+    total = np.bincount(which, weights=share)
+    weight = share / total[which]
+    # The strongest component stands for its group in the columns not averaged.
+    order = np.lexsort((-share, which))
+    strongest = rows[order[np.r_[0, np.flatnonzero(np.diff(which[order])) + 1]]]
+    merged = table[strongest]
+    species = np.asarray(merged["species"], dtype=str)
+    merged.replace_column("name", Column(names, name="name"))
+    merged.replace_column("transition", Column([n[len(s) + 1:] for n, s in zip(names, species)],
+                                               name="transition"))
+    merged["relative_intensity"] = total
+    merged["g_up"] = np.bincount(which, weights=np.asarray(table["g_up"], dtype=float)[rows])
+    for name in ("rest_frequency", "observed_frequency", "velocity", "E_up", "einstein_A"):
+        if name in table.colnames:
+            column = u.Quantity(table[name])
+            merged[name] = np.bincount(which, weights=weight * column.value[rows]) * column.unit
+    out = vstack([table[~in_group], merged], join_type="exact", metadata_conflicts="silent")
+    out.meta.update(table.meta)
+    out.sort("observed_frequency" if "observed_frequency" in out.colnames else "rest_frequency")
+    return out
 
 
 def find_line(name, catalog=None):
     """The catalog row called ``name`` (``"<species> <transition>"``).
 
-    Matching ignores case; an unknown name raises `CatalogError` with close
-    matches.
+    Matching ignores case. A hyperfine group's name (e.g. ``"N2H+ J=1-0"``)
+    gives the group collapsed to one row (see `collapse_hyperfine`). An
+    unknown name raises `CatalogError` with close matches.
 
     Examples
     --------
     >>> find_line("co j=3-2")["rest_frequency"]
     <Quantity 345.7959899 GHz>
+    >>> find_line("HCN J=1-0")["rest_frequency"].round(5)
+    <Quantity 88.6316 GHz>
     """
     catalog = _bundled() if catalog is None else catalog
     names = np.asarray(catalog["name"])
-    hits = np.flatnonzero(np.char.lower(names) == str(name).strip().lower())
+    key = str(name).strip().lower()
+    hits = np.flatnonzero(np.char.lower(names) == key)
+    if hits.size == 0 and "hyperfine_group" in catalog.colnames:
+        in_group = np.char.lower(np.asarray(catalog["hyperfine_group"], dtype=str)) == key
+        if in_group.any():
+            return collapse_hyperfine(catalog[in_group])[0]
     if hits.size == 0:
+        names = np.concatenate([names, np.unique(np.asarray(catalog["hyperfine_group"], dtype=str))]) \
+            if "hyperfine_group" in catalog.colnames else names
         close = difflib.get_close_matches(str(name), names.tolist(), n=3, cutoff=0.6)
         hint = f"did you mean {close}?" if close else "names look like 'CO J=4-3' or 'H2O 1_10-1_01'"
         raise CatalogError(f"no line called {name!r} in the catalog; {hint}")
@@ -413,7 +564,7 @@ def _reference_frequency(reference, catalog):
 # ---------------------------------------------------------------------------
 
 def lines_in_band(fmin, fmax, z, catalog=None, *, reference=None, convention="radio",
-                  species=None, spin_isomer=None, max_E_up=None):
+                  species=None, spin_isomer=None, max_E_up=None, family=None, group_hyperfine=False):
     """Transitions whose redshifted frequencies fall in the observed band [fmin, fmax].
 
     Parameters
@@ -429,8 +580,11 @@ def lines_in_band(fmin, fmax, z, catalog=None, *, reference=None, convention="ra
         ``"CO J=4-3"``, or a rest frequency. It need not lie in the band.
     convention : {'radio', 'optical', 'relativistic'}
         Velocity convention (Greisen et al. 2006).
-    species, spin_isomer, max_E_up
+    species, spin_isomer, max_E_up, family
         Filters, as in `select_lines`.
+    group_hyperfine : bool
+        Give each hyperfine group with a component in the band as one row
+        (`collapse_hyperfine`) instead of one row per component.
 
     Returns
     -------
@@ -455,11 +609,12 @@ def lines_in_band(fmin, fmax, z, catalog=None, *, reference=None, convention="ra
     Examples
     --------
     >>> import astropy.units as u
-    >>> band = lines_in_band(340 * u.GHz, 360 * u.GHz, z=0.0, reference="CO J=3-2")
+    >>> band = lines_in_band(340 * u.GHz, 360 * u.GHz, z=0.0, reference="CO J=3-2",
+    ...                      species=["CO", "CS", "HCN", "HCO+"])
     >>> band["name"].tolist()
-    ['CS J=7-6', 'CO J=3-2', 'SiO J=8-7', 'HCN J=4-3', 'HCO+ J=4-3']
+    ['CS J=7-6', 'CO J=3-2', 'HCN J=4-3', 'HCO+ J=4-3']
     >>> [round(v) for v in band["velocity"].to_value(u.km / u.s)]
-    [2526, 0, -1330, -7551, -9483]
+    [2526, 0, -7551, -9483]
     """
     z = check_redshift(z)
     lo, hi = _check_band(fmin, fmax)
@@ -469,7 +624,7 @@ def lines_in_band(fmin, fmax, z, catalog=None, *, reference=None, convention="ra
 
     # One vectorised pass: rest frequencies are compared against the band
     # scaled to the rest frame, so no per-line redshifting is needed first.
-    mask = _selection_mask(catalog, species, spin_isomer, max_E_up, (lo * (1 + z), hi * (1 + z)))
+    mask = _selection_mask(catalog, species, spin_isomer, max_E_up, (lo * (1 + z), hi * (1 + z)), family)
     band = catalog[mask]
     observed = u.Quantity(band["rest_frequency"], u.GHz) / (1.0 + z)
     band["observed_frequency"] = observed
@@ -478,4 +633,6 @@ def lines_in_band(fmin, fmax, z, catalog=None, *, reference=None, convention="ra
     else:
         band["velocity"] = velocity(observed, ref * u.GHz, z=z, convention=convention)
     band.meta.update({"z": z, "convention": convention, "reference": ref})
+    if group_hyperfine:
+        band = collapse_hyperfine(band)
     return band

@@ -31,7 +31,10 @@ numbers, vendored in tests/data/catalog_reference.ecsv.
 
 from pathlib import Path
 
+import astropy.units as u
 import numpy as np
+
+from cubeloupe.analysis.recombination import recombination_lines
 
 HERE = Path(__file__).parent
 TARGET = HERE / "transitions.ecsv"
@@ -117,19 +120,6 @@ PUBLISHED_LADDERS = [
         (130.268683, 12.50, 1.058e-04), (173.688238, 20.84, 2.602e-04),
         (217.104919, 31.26, 5.197e-04), (260.518009, 43.76, 9.118e-04),
         (303.926812, 58.35, 1.464e-03), (347.330581, 75.02, 2.204e-03)]),
-]
-
-# ---------------------------------------------------------------------------
-# Linear rotors without a published table found: (species, rest frequencies of
-# J=1-0, 2-1, ... in GHz, dipole moment in D, provenance).
-# ---------------------------------------------------------------------------
-COMPUTED_LADDERS = [
-    ("CS",
-     [48.9909549, 97.9809533, 146.9690287, 195.9542109, 244.9355565, 293.9120865,
-      342.8828503],
-     1.958,
-     (f"nu: {CDMS}, from memory; E_up: sum of h nu/k up the ladder; "
-      "A: rigid rotor with mu=1.958 D (Winnewisser & Cook 1968, from memory)")),
 ]
 
 # ---------------------------------------------------------------------------
@@ -232,16 +222,579 @@ OTHERS = [
 ]
 
 
+# ---------------------------------------------------------------------------
+# Bulk lines read from vendored LAMDA files (sources/lamda/, each naming the
+# copy read in its first line). Per file: species, family, how to name a
+# transition from the level labels, the nuclear-spin multiplicity of the
+# hyperfine-splitting nuclei (divided out of the level weights, see
+# DEGENERACY), whether the file belongs to one spin isomer, and the
+# transitions already curated above (kept from there).
+# ---------------------------------------------------------------------------
+LAMDA_DIR = HERE / "sources" / "lamda"
+MAX_E_UP = 600.0     # K; bulk rows up to this E_up (curated rows may lie higher)
+BAND = (20.0, 1910.0)  # GHz: the bands the catalog covers
+
+DEGENERACY = """\
+g_up convention: the degeneracy of the upper level without nuclear-spin
+factors. A rotational level has 2J+1 (x2 for the +/-K pair of a symmetric top's
+K>0 level); a fine-structure level 2J+1. Ortho and para (and A and E) species
+are separate species with their own partition function, so their spin weights
+are left out of both g_up and Q. Nuclear spins that split lines into hyperfine
+components are left out too: a hyperfine component's g_up is (2F+1)/prod(2I+1),
+its share of the rotational level, so the components of a level sum to 2J+1.
+Exception: CH3CN and CH3CCH keep the relative spin weight of their K ladders
+(2 for K = 3n, 1 otherwise; Araya et al. 2005, ApJS 157, 279, scaled by 4),
+because one partition function covers all K. Partition functions follow the
+same convention (analysis/partition.py)."""
+
+
+def _ghz_cm(nu_ghz):
+    return nu_ghz / 29.9792458
+
+
+K_PER_CM = 1.4387769  # hc/k in K cm (CODATA 2018)
+
+
+def read_lamda(name):
+    """(copy, levels {index: (E [cm^-1], g, label)}, lines [(up, low, A, nu, E_up)]) of a vendored file."""
+    text = (LAMDA_DIR / name).read_text(encoding="utf-8").splitlines()
+    copy = text[0].removeprefix("# copy read: ").split(" (levels")[0]
+    body = [line for line in text[1:]]
+    levels, lines = {}, []
+    k = 0
+    while k < len(body):
+        upper = body[k].upper()
+        if "NUMBER OF ENERGY LEVELS" in upper:
+            count = int(body[k + 1].split()[0])
+            for row in body[k + 3:k + 3 + count]:
+                parts = row.split()
+                levels[int(parts[0])] = (float(parts[1]), float(parts[2]), " ".join(parts[3:]).strip('" '))
+            k += 3 + count
+            continue
+        if "NUMBER" in upper and "RADIATIVE" in upper:
+            count = int(body[k + 1].split()[0])
+            for row in body[k + 3:k + 3 + count]:
+                parts = row.split()
+                lines.append((int(parts[1]), int(parts[2]), float(parts[3]), float(parts[4]), float(parts[5])))
+            k += 3 + count
+            continue
+        k += 1
+    return copy, levels, lines
+
+
+def _rotor_name(up, low):
+    return f"J={up.split('_')[0].lstrip('0') or '0'}-{low.split('_')[0].lstrip('0') or '0'}"
+
+
+def _asym(label):
+    j, ka, kc = (int(q) for q in label.replace("_", " ").split()[:3])
+    return f"{j}_{ka}{kc}" if ka < 10 and kc < 10 else f"{j}_{ka},{kc}"
+
+
+def _asym_name(up, low):
+    return f"{_asym(up)}-{_asym(low)}"
+
+
+def _so_name(up, low):
+    return f"N_J={up}-{low}"
+
+
+def _nh3_name(up, low):
+    (ju, ku, iu), (jl, kl, il) = ([int(q) for q in s.split("_")] for s in (up, low))
+    if (ju, ku) == (jl, kl):
+        return f"(J,K)=({ju},{ku})"
+    return f"(J,K,inv)=({ju},{ku},{iu})-({jl},{kl},{il})"
+
+
+def _h3o_name(up, low):
+    (ju, ku, su), (jl, kl, sl) = (s.split("_") for s in (up, low))
+    return f"J_K={ju}_{ku}{su}-{jl}_{kl}{sl}"
+
+
+def _j_of(label):
+    """J of a level label whose first field is J (or N for the rotor files)."""
+    return float(label.replace("_", " ").split()[0])
+
+
+LAMDA_SPECIES = [
+    # file, species, family, namer, hyperfine spin multiplicity, spin isomer
+    ("co.dat", "CO", "CO and isotopologues", _rotor_name, 1, "none"),
+    ("cs@lique.dat", "CS", "dense gas", _rotor_name, 1, "none"),
+    ("sio.dat", "SiO", "shock tracers", _rotor_name, 1, "none"),
+    ("hco+.dat", "HCO+", "dense gas", _rotor_name, 1, "none"),
+    ("hnc.dat", "HNC", "dense gas", _rotor_name, 1, "none"),
+    ("hcn.dat", "HCN", "dense gas", _rotor_name, 3, "none"),  # its weights count 14N's spin
+    ("n2h+.dat", "N2H+", "dense gas", _rotor_name, 1, "none"),
+    ("hc3n.dat", "HC3N", "dense gas", _rotor_name, 1, "none"),
+    ("ocs@xpol.dat", "OCS", "shock tracers", _rotor_name, 1, "none"),
+    ("SO-pH2.dat", "SO", "shock tracers", _so_name, 1, "none"),
+    ("so2@lowT.dat", "SO2", "shock tracers", _asym_name, 1, "none"),
+    ("o-nh3.dat", "NH3", "dense gas", _nh3_name, 1, "ortho"),
+    ("p-nh3.dat", "NH3", "dense gas", _nh3_name, 1, "para"),
+    ("oh2s.dat", "H2S", "shock tracers", _asym_name, 1, "ortho"),
+    ("ph2s.dat", "H2S", "shock tracers", _asym_name, 1, "para"),
+    ("o-c3h2.dat", "c-C3H2", "dense gas", _asym_name, 1, "ortho"),
+    ("p-c3h2.dat", "c-C3H2", "dense gas", _asym_name, 1, "para"),
+    ("o-h3o+.dat", "H3O+", "water and hydrides", _h3o_name, 1, "ortho"),
+    ("p-h3o+.dat", "H3O+", "water and hydrides", _h3o_name, 1, "para"),
+]
+
+# Hyperfine-resolved LAMDA files: (file, species, family, spin multiplicity of the
+# splitting nuclei, group namer, component namer, upper J values kept).
+def _hcn_group(up, low):
+    return f"J={int(up.split('_')[0])}-{int(low.split('_')[0])}"
+
+
+def _hcn_component(up, low):
+    return f"{_hcn_group(up, low)} F={int(up.split('_')[1])}-{int(low.split('_')[1])}"
+
+
+def _frac(text):
+    value = float(text)
+    return str(int(value)) if value == int(value) else f"{int(2 * value)}/2"
+
+
+def _cch_group(up, low):
+    return f"N={up.split('_')[0]}-{low.split('_')[0]}"
+
+
+def _cch_component(up, low):
+    (nu_, ju, fu), (nl, jl, fl) = (s.split("_") for s in (up, low))
+    return f"N={nu_}-{nl} J={_frac(ju)}-{_frac(jl)} F={fu}-{fl}"
+
+
+def _ohp_group(up, low):
+    (nu_, ju, _), (nl, jl, _) = (s.split("_") for s in (up, low))
+    return f"N={nu_}-{nl} J={ju}-{jl}"
+
+
+def _ohp_component(up, low):
+    (nu_, ju, fu), (nl, jl, fl) = (s.split("_") for s in (up, low))
+    return f"N={nu_}-{nl} J={ju}-{jl} F={_frac(fu)}-{_frac(fl)}"
+
+
+def _hcl_group(up, low):
+    return f"J={up.split()[0]}-{low.split()[0]}"
+
+
+def _hcl_component(up, low):
+    return f"{_hcl_group(up, low)} F={up.split()[1]}-{low.split()[1]}"
+
+
+LAMDA_HYPERFINE = [
+    ("hcn@hfs.dat", "HCN", "dense gas", 3, _hcn_group, _hcn_component, {1}),
+    ("c2h.dat", "CCH", "dense gas", 2, _cch_group, _cch_component, None),
+    ("oh+.dat", "OH+", "water and hydrides", 2, _ohp_group, _ohp_component, None),
+    ("hcl@hfs.dat", "HCl", "water and hydrides", 4, _hcl_group, _hcl_component, None),
+]
+
+# ---------------------------------------------------------------------------
+# Linear rotors computed from rotational constants (nu = 2B(J+1) - 4D(J+1)^3,
+# E_J = hB J(J+1) - hD J^2(J+1)^2; rigid-rotor A). B and D are least-squares
+# fits to the recalled line frequencies in ROTOR_ANCHORS (CDMS values as
+# recalled; their mutual consistency, the fit residual, is checked in the tests).
+# (species, label prefix, family, dipole [D], E_vib [K], J range)
+# ---------------------------------------------------------------------------
+ROTORS = [
+    ("C17O", "", "CO and isotopologues", 0.11011, 0.0, None),
+    ("H13CN", "", "dense gas", 2.985, 0.0, None),
+    ("HC15N", "", "dense gas", 2.985, 0.0, None),
+    ("DCN", "", "dense gas", 2.985, 0.0, None),
+    ("HN13C", "", "dense gas", 3.05, 0.0, None),
+    ("H13CO+", "", "dense gas", 3.90, 0.0, None),
+    ("DCO+", "", "dense gas", 3.888, 0.0, None),
+    ("N2D+", "", "dense gas", 3.40, 0.0, None),
+    ("C34S", "", "dense gas", 1.957, 0.0, None),
+    ("13CS", "", "dense gas", 1.957, 0.0, None),
+    ("SiO", "v=1 ", "shock tracers", 3.12, 1769.0, (1, 12)),
+    ("SiO", "v=2 ", "shock tracers", 3.12, 3521.0, (1, 12)),
+]
+# Recalled rest frequencies [MHz] by upper J (hyperfine-free centres where split).
+ROTOR_ANCHORS = {
+    "C17O": [(2, 224714.1870), (3, 337061.1298)],
+    "H13CN": [(1, 86339.9214), (2, 172677.8513), (3, 259011.7979), (4, 345339.7694)],
+    "HC15N": [(1, 86054.9664), (3, 258156.9963), (4, 344200.1089)],
+    "DCN": [(1, 72414.6936), (2, 144828.0015), (3, 217238.5378)],
+    "HN13C": [(1, 87090.8252), (3, 261263.3100), (4, 348340.81)],
+    "H13CO+": [(1, 86754.2884), (3, 260255.3390), (4, 346998.3440)],
+    "DCO+": [(1, 72039.3122), (2, 144077.2890), (3, 216112.5822)],
+    "N2D+": [(1, 77109.6162), (2, 154217.1805), (3, 231321.8283)],
+    "C34S": [(2, 96412.9495), (3, 144617.1007), (5, 241016.0892), (7, 337396.4589)],
+    "13CS": [(2, 92494.3080), (3, 138739.3350), (5, 231220.6852)],
+    "SiO v=1": [(1, 43122.0800), (2, 86243.4277), (5, 215596.0180)],
+    "SiO v=2": [(1, 42820.5700), (2, 85640.4560), (5, 214088.5750)],
+    # HC3N: the 20 lines of the vendored LAMDA hc3n.dat are added in rotor_constants().
+}
+CONSTANTS_PROV = ("nu: B, D fitted to CDMS line frequencies (Mueller et al. 2005), from memory; E_up: level "
+                  "energies from the same constants; A: rigid rotor with the dipole moment of the CDMS entry, "
+                  "from memory")
+
+
+def rotor_constants():
+    """{name: (B [MHz], D [kHz], max fit residual [MHz])}: least squares over the anchors."""
+    anchors = dict(ROTOR_ANCHORS)
+    _, _, lines = read_lamda("hc3n.dat")
+    anchors["HC3N"] = [(up - 1, nu * 1e3) for up, _, _, nu, _ in lines]
+    out = {}
+    for name, pairs in anchors.items():
+        j = np.array([p[0] for p in pairs], dtype=float)
+        nu = np.array([p[1] for p in pairs])
+        design = np.c_[2 * j, -4 * j**3]
+        (b, d), *_ = np.linalg.lstsq(design, nu, rcond=None)
+        out[name] = (float(b), float(d) * 1e3, float(np.max(np.abs(nu - design @ (b, d)))))
+    return out
+
+
+ROTORS.append(("HC3N", "", "dense gas", 3.73, 0.0, None))
+HC3N_PROV = ("nu: B, D fitted to the lines of the LAMDA file hc3n.dat (vendored copy of the PyPI wheel "
+             "spectralradex-1.1.5), extrapolated past J=20; E_up: level energies from the same constants; "
+             "A: rigid rotor with mu=3.73 D (CDMS entry, from memory)")
+
+# Symmetric tops (Gordy & Cook 1984, Microwave Molecular Spectra, ch. 6):
+# nu = 2(J+1)(B - D_JK K^2) - 4 D_J (J+1)^3;  E = B J(J+1) + (A-B) K^2 - D_J J^2(J+1)^2
+# - D_JK J(J+1) K^2 - D_K K^4;  A_ul = 64 pi^4 nu^3 mu^2 (J_u^2 - K^2) / (3 h c^3 J_u (2J_u+1)).
+# (species, A, B [MHz], D_J, D_JK, D_K [kHz], dipole [D])
+SYMMETRIC_TOPS = [
+    ("CH3CN", 158099.0, 9198.899167, 3.80757, 177.4084, 2830.0, 3.92197),
+    ("CH3CCH", 158590.0, 8545.876967, 2.94278, 163.4105, 2800.0, 0.7804),
+]
+SYMTOP_PROV = ("nu: A, B, D_J, D_JK, D_K of the CDMS entry (Mueller et al. 2005), from memory, checked against "
+               "published lines in tests/data/catalog_reference.ecsv; E_up: level energies from the same "
+               "constants; A: symmetric-top formula with the CDMS dipole moment, from memory")
+
+# ---------------------------------------------------------------------------
+# Hyperfine groups from published component tables:
+# N2H+ J=1-0: offsets and line strengths of the 15 components tabulated in
+# pyspeckit 1.0.4 (PyPI) pyspeckit/spectrum/models/n2hp.py (Dore, priv. comm.,
+# improving Pagani, Daniel & Dubernet 2009, A&A 494, 719), merged into the 7
+# resolved groups (components with the same offset); centre 93.1737637 GHz.
+# NH3 (1,1) and (2,2): the 18 and 21 components of pyspeckit 1.0.4
+# pyspeckit/spectrum/models/ammonia_constants.py (Kukolich 1967, Phys. Rev. 156,
+# 83; Rydbeck et al. 1977) merged into the main line and the four satellite groups.
+# Offsets are velocities: nu = nu0 (1 - v/c).
+# ---------------------------------------------------------------------------
+PYSPECKIT = "pyspeckit 1.0.4 (PyPI sdist)"
+N2HP_CENTRE = 93.1737637
+N2HP_COMPONENTS = [  # (label, [(offset km/s, strength)])
+    ("F1,F=1,0-1,1", [(6.9238, 0.037038)]),
+    ("F1,F=1,2-0,1", [(5.9704, 0.156482), (5.9704, 0.028705)]),
+    ("F1,F=1,1-0,1", [(5.5371, 0.041361), (5.5371, 0.013309), (5.5371, 0.056442)]),
+    ("F1,F=2,2-1,1", [(0.9533, 0.156480), (0.9533, 0.028705)]),
+    ("F1,F=2,3-1,2", [(0.0, 0.259259)]),
+    ("F1,F=2,1-1,1", [(-0.6112, 0.004376), (-0.6112, 0.034890), (-0.6112, 0.071844)]),
+    ("F1,F=0,1-1,2", [(-7.9930, 0.025957), (-7.9930, 0.065372), (-7.9930, 0.019779)]),
+]
+NH3_OFFSETS = {
+    (1, 1): [19.8513, 19.3159, 7.88669, 7.46967, 7.35132, 0.460409, 0.322042, -0.0751680, -0.213003,
+             0.311034, 0.192266, -0.132382, -0.250923, -7.23349, -7.37280, -7.81526, -19.4117, -19.5500],
+    (2, 2): [26.5263, 26.0111, 25.9505, 16.3917, 16.3793, 15.8642, 0.562503, 0.528408, 0.523745,
+             0.0132820, -0.00379100, -0.0132820, -0.501831, -0.531340, -0.589080, -15.8547, -16.3698,
+             -16.3822, -25.9505, -26.0111, -26.5263],
+}
+NH3_STRENGTHS = {
+    (1, 1): [0.0740740, 0.148148, 0.0925930, 0.166667, 0.0185190, 0.0370370, 0.0185190, 0.0185190,
+             0.0925930, 0.0333330, 0.300000, 0.466667, 0.0333330, 0.0925930, 0.0185190, 0.166667,
+             0.0740740, 0.148148],
+    (2, 2): [0.00418600, 0.0376740, 0.0209300, 0.0372090, 0.0260470, 0.00186000, 0.0209300, 0.0116280,
+             0.0106310, 0.267442, 0.499668, 0.146512, 0.0116280, 0.0106310, 0.0209300, 0.00186000,
+             0.0260470, 0.0372090, 0.0209300, 0.0376740, 0.00418600],
+}
+# Centre frequency [GHz], E_up [K], A [s^-1] of the (1,1) and (2,2) inversion lines.
+NH3_LINES = {(1, 1): (23.6944955, 23.26, 1.67e-7), (2, 2): (23.7226333, 64.45, 2.23e-7)}
+C_KMS = 299792.458
+
+# C17O J=1-0 (17O, I = 5/2): F'=3/2, 7/2, 5/2 -> F=5/2; LTE-thin intensities 2F'+1 over 18.
+C17O_10 = [("F=3/2-5/2", 112.358777, 4), ("F=7/2-5/2", 112.358982, 8), ("F=5/2-5/2", 112.360016, 6)]
+
+# ---------------------------------------------------------------------------
+# Single lines of asymmetric tops without a published file in hand:
+# (species, transition, nu [GHz], E_up [K], A [s^-1], g_up, spin, family).
+# All from memory (CDMS/JPL values as recalled); A nan where not recalled.
+# ---------------------------------------------------------------------------
+MEMORY_LINES = [
+    ("H2CO", "1_01-0_00", 72.837948, 3.5, 8.15e-6, 3, "para", "complex organics"),
+    ("H2CO", "2_12-1_11", 140.839502, 21.9, 5.30e-5, 5, "ortho", "complex organics"),
+    ("H2CO", "2_02-1_01", 145.602949, 10.5, 7.81e-5, 5, "para", "complex organics"),
+    ("H2CO", "2_11-1_10", 150.498334, 22.6, 6.46e-5, 5, "ortho", "complex organics"),
+    ("H2CO", "3_13-2_12", 211.211468, 32.1, 2.27e-4, 7, "ortho", "complex organics"),
+    ("H2CO", "3_03-2_02", 218.222192, 21.0, 2.82e-4, 7, "para", "complex organics"),
+    ("H2CO", "3_22-2_21", 218.475632, 68.1, 1.57e-4, 7, "para", "complex organics"),
+    ("H2CO", "3_21-2_20", 218.760066, 68.1, 1.58e-4, 7, "para", "complex organics"),
+    ("H2CO", "3_12-2_11", 225.697775, 33.4, 2.77e-4, 7, "ortho", "complex organics"),
+    ("H2CO", "4_14-3_13", 281.526929, 45.6, 5.88e-4, 9, "ortho", "complex organics"),
+    ("H2CO", "4_04-3_03", 290.623405, 34.9, 6.90e-4, 9, "para", "complex organics"),
+    ("H2CO", "4_23-3_22", 291.237766, 82.1, 5.21e-4, 9, "para", "complex organics"),
+    ("H2CO", "4_22-3_21", 291.948067, 82.1, 5.25e-4, 9, "para", "complex organics"),
+    ("H2CO", "4_13-3_12", 300.836635, 47.9, 7.17e-4, 9, "ortho", "complex organics"),
+    ("H2CO", "5_15-4_14", 351.768645, 62.5, 1.20e-3, 11, "ortho", "complex organics"),
+    ("H2CO", "5_05-4_04", 362.736048, 52.3, 1.37e-3, 11, "para", "complex organics"),
+    ("CH3OH", "7(0)-6(1) A+", 44.069410, 65.0, 3.9e-7, 15, "none", "complex organics"),
+    ("CH3OH", "4(-1)-3(0) E", 36.169265, 28.8, 2.1e-7, 9, "none", "complex organics"),
+    ("CH3OH", "5(-1)-4(0) E", 84.521172, 40.4, 1.97e-6, 11, "none", "complex organics"),
+    ("CH3OH", "8(0)-7(1) A+", 95.169463, 83.5, 2.13e-6, 17, "none", "complex organics"),
+    ("CH3OH", "2(1)-1(1) A+", 95.914310, 21.4, 2.49e-6, 5, "none", "complex organics"),
+    ("CH3OH", "2(-1)-1(-1) E", 96.739362, 12.5, 2.49e-6, 5, "none", "complex organics"),
+    ("CH3OH", "2(0)-1(0) A+", 96.741375, 7.0, 3.41e-6, 5, "none", "complex organics"),
+    ("CH3OH", "2(0)-1(0) E", 96.744550, 20.1, 3.41e-6, 5, "none", "complex organics"),
+    ("CH3OH", "2(1)-1(1) E", 96.755511, 28.0, 2.62e-6, 5, "none", "complex organics"),
+    ("CH3OH", "3(1)-4(0) A+", 107.013831, 28.3, 3.06e-6, 7, "none", "complex organics"),
+    ("CH3OH", "0(0)-1(-1) E", 108.893945, 13.1, 1.47e-5, 1, "none", "complex organics"),
+    ("CH3OH", "4(2)-3(1) E", 218.440063, 45.5, 4.69e-5, 9, "none", "complex organics"),
+    ("CH3OH", "8(-1)-7(0) E", 229.758756, 89.1, 4.19e-5, 17, "none", "complex organics"),
+    ("CH3OH", "5(0)-4(0) E", 241.700159, 47.9, 6.04e-5, 11, "none", "complex organics"),
+    ("CH3OH", "5(-1)-4(-1) E", 241.767234, 40.4, 5.81e-5, 11, "none", "complex organics"),
+    ("CH3OH", "5(0)-4(0) A+", 241.791352, 34.8, 6.05e-5, 11, "none", "complex organics"),
+    ("CH3OH", "7(-1)-6(-1) E", 338.344588, 70.6, 1.67e-4, 15, "none", "complex organics"),
+    ("CH3OH", "7(0)-6(0) A+", 338.408698, 65.0, 1.70e-4, 15, "none", "complex organics"),
+    ("HNCO", "4_04-3_03", 87.925237, 10.5, 8.78e-6, 9, "none", "shock tracers"),
+    ("HNCO", "5_05-4_04", 109.905749, 15.8, 1.75e-5, 11, "none", "shock tracers"),
+    ("HNCO", "10_010-9_09", 219.798274, 58.0, 1.51e-4, 21, "none", "shock tracers"),
+    ("HNCO", "16_016-15_015", 351.633257, 143.5, 6.27e-4, 33, "none", "shock tracers"),
+    ("HDO", "1_10-1_11", 80.578295, 47.0, 1.32e-6, 3, "none", "water and hydrides"),
+    ("HDO", "2_11-2_12", 241.561550, 95.2, 1.19e-5, 5, "none", "water and hydrides"),
+    ("HDO", "3_12-2_21", 225.896720, 167.6, 1.32e-5, 7, "none", "water and hydrides"),
+    ("HDO", "1_01-0_00", 464.924520, 22.3, 1.69e-4, 3, "none", "water and hydrides"),
+    ("HDO", "1_11-0_00", 893.638666, 42.9, 8.35e-3, 3, "none", "water and hydrides"),
+]
+MEMORY_PROV = "nu, E_up, A, g_up: CDMS/JPL catalogue entry, from memory"
+
+
+# ---------------------------------------------------------------------------
+# Row building
+# ---------------------------------------------------------------------------
+
 def _rigid_rotor_a(nu_ghz, j_up, dipole_debye):
     """Einstein A [s^-1] of a linear rotor's J -> J-1 line.
 
     A = 64 pi^4 nu^3 mu^2 J / (3 h c^3 (2J + 1)) in cgs units (e.g. Townes &
     Schawlow 1955); 1 D = 1e-18 esu cm.
     """
+    return _symmetric_top_a(nu_ghz, j_up, 0, dipole_debye)
+
+
+def _symmetric_top_a(nu_ghz, j_up, k, dipole_debye):
+    """Einstein A [s^-1] of a symmetric top's (J, K) -> (J-1, K) line (Gordy & Cook 1984)."""
     h, c = 6.62607015e-27, 2.99792458e10
     mu = dipole_debye * 1e-18
     nu = nu_ghz * 1e9
-    return 64 * np.pi**4 * nu**3 * mu**2 * j_up / (3 * h * c**3 * (2 * j_up + 1))
+    return 64 * np.pi**4 * nu**3 * mu**2 * (j_up**2 - k**2) / (3 * h * c**3 * j_up * (2 * j_up + 1))
+
+
+FAMILIES = {
+    "CO": "CO and isotopologues", "13CO": "CO and isotopologues", "C18O": "CO and isotopologues",
+    "C17O": "CO and isotopologues", "HCN": "dense gas", "HCO+": "dense gas", "HNC": "dense gas",
+    "CS": "dense gas", "CN": "dense gas", "NH3": "dense gas", "SiO": "shock tracers",
+    "H2O": "water and hydrides", "H2O+": "water and hydrides", "OH+": "water and hydrides",
+    "CH+": "water and hydrides", "HF": "water and hydrides", "[CI]": "atoms and ions",
+    "[CII]": "atoms and ions", "[NII]": "atoms and ions", "[OI]": "atoms and ions",
+    "[OIII]": "atoms and ions",
+}
+
+
+def _row(species, transition, nu, e_up, a, spin, prov, g_up, family=None, group="", share=1.0):
+    return (species, transition, float(nu), float(e_up), float(a), spin, prov, float(g_up),
+            family or FAMILIES[species], group, float(share))
+
+
+def _atom_g(transition):
+    """2J+1 of the upper term of '3P1-3P0' or '2P3/2-2P1/2'."""
+    upper = transition.split("-")[0][2:]
+    j = float(upper.split("/")[0]) / 2 if "/" in upper else float(upper)
+    return 2 * j + 1
+
+
+def _curated_rows():
+    out = []
+    for species, prov, table in PUBLISHED_LADDERS:
+        for j, (nu, e_up, a) in enumerate(table, start=1):
+            if species == "HCN" and j == 1:
+                continue  # HCN J=1-0 is a hyperfine group (LAMDA_HYPERFINE)
+            out.append(_row(species, f"J={j}-{j - 1}", nu, e_up, a, "none", prov, 2 * j + 1))
+    for upper, lower, nu, nu_from, e_up, a, e_a_from in WATER:
+        j = int(upper.split("_")[0])
+        ka, kc = (int(q) for q in upper.split("_")[1])
+        spin = "ortho" if (ka + kc) % 2 else "para"
+        out.append(_row("H2O", f"{upper}-{lower}", nu, e_up, a, spin,
+                        _water_provenance(nu_from, e_a_from, spin, a), 2 * j + 1))
+    for species, transition, nu, e_up, a, spin, prov in OTHERS:
+        if species == "NH3":
+            continue  # (1,1) and (2,2) are hyperfine groups (NH3_OFFSETS)
+        if species.startswith("["):
+            g = _atom_g(transition)
+        elif species == "CN":
+            f_up = transition.split("F=")[1].split("-")[0]
+            g = (float(f_up.split("/")[0]) / 2 * 2 + 1) / 3  # (2F+1)/(2I+1), I(14N)=1
+        elif species == "OH+":
+            continue  # replaced by the hyperfine-resolved LAMDA file
+        elif species == "H2O+":
+            g = 2 * 1.5 + 1 if "J=3/2" in transition else 2 * 0.5 + 1
+        else:  # CH+, HF: J=1-0
+            g = 3
+        out.append(_row(species, transition, nu, e_up, a, spin, prov, g))
+    return out
+
+
+def _lamda_rows(curated_names):
+    out = []
+    for name, species, family, namer, spins, spin in LAMDA_SPECIES:
+        copy, levels, lines = read_lamda(name)
+        lowest = min(levels, key=lambda i: levels[i][0])
+        weight = levels[lowest][1] / (2 * _j_of(levels[lowest][2]) + 1) if spin != "none" else 1.0
+        prov = f"nu, E_up, A, g_up: {LAMDA} file {name}, copy in {copy}" + (
+            f" (g_up: the file's weight over {spins}, the 14N spin multiplicity)" if spins > 1 else "")
+        for up, low, a, nu, e_up in lines:
+            transition = namer(levels[up][2], levels[low][2])
+            if not (BAND[0] <= nu <= BAND[1]) or e_up > MAX_E_UP or f"{species} {transition}" in curated_names:
+                continue
+            if species == "NH3" and transition in ("(J,K)=(1,1)", "(J,K)=(2,2)"):
+                continue  # hyperfine groups below
+            if (species, transition) in (("N2H+", "J=1-0"), ("HCN", "J=1-0")):
+                continue  # hyperfine groups
+            out.append(_row(species, transition, nu, e_up, a, spin, prov, levels[up][1] / weight / spins, family))
+    return out
+
+
+def _lamda_hyperfine_rows(curated_names):
+    out = []
+    for name, species, family, spins, group_of, component_of, keep_j in LAMDA_HYPERFINE:
+        copy, levels, lines = read_lamda(name)
+        prov = (f"nu, E_up, A: {LAMDA} file {name}, copy in {copy}; g_up: the file's 2F+1 over "
+                f"{spins} (nuclear spin); relative_intensity: g_up A within the group")
+        groups = {}
+        for up, low, a, nu, e_up in lines:
+            if keep_j is not None and int(_j_of(levels[up][2])) not in keep_j:
+                continue
+            if not (BAND[0] <= nu <= BAND[1]) or e_up > MAX_E_UP:
+                continue
+            group = f"{species} {group_of(levels[up][2], levels[low][2])}"
+            groups.setdefault(group, []).append(
+                (component_of(levels[up][2], levels[low][2]), nu, e_up, a, levels[up][1] / spins))
+        for group, members in groups.items():
+            total = sum(g * a for _, _, _, a, g in members)
+            for transition, nu, e_up, a, g in members:
+                if f"{species} {transition}" in curated_names:
+                    continue
+                out.append(_row(species, transition, nu, e_up, a, "none", prov, g, family,
+                                group if len(members) > 1 else "", g * a / total if len(members) > 1 else 1.0))
+    return out
+
+
+def linear_rotor_levels(b_mhz, d_khz, j):
+    """E_J/k [K] of a linear rotor: h (B J(J+1) - D J^2 (J+1)^2) / k."""
+    j = np.asarray(j, dtype=float)
+    return H_OVER_K * 1e-3 * (b_mhz * j * (j + 1) - d_khz * 1e-3 * j**2 * (j + 1) ** 2)
+
+
+def _rotor_rows():
+    out = []
+    constants = rotor_constants()
+    for species, prefix, family, mu, e_vib, jrange in ROTORS:
+        b, d, _ = constants[f"{species} {prefix}".strip()]
+        j_lo, j_hi = jrange or (1, 200)
+        for j in range(j_lo, j_hi + 1):
+            nu = (2 * b * j - 4 * d * 1e-3 * j**3) * 1e-3
+            e_up = e_vib + float(linear_rotor_levels(b, d, j))
+            if nu > BAND[1] or e_up > (MAX_E_UP if not e_vib else e_vib + MAX_E_UP):
+                break
+            if nu < BAND[0] or (species == "C17O" and j == 1):
+                continue
+            if species == "HC3N" and j <= 20:
+                continue  # from the LAMDA file
+            a = float(f"{_rigid_rotor_a(nu, j, mu):.4g}")
+            prov = HC3N_PROV if species == "HC3N" else CONSTANTS_PROV
+            out.append(_row(species, f"{prefix}J={j}-{j - 1}", round(nu, 7), round(e_up, 2), a, "none",
+                            prov, 2 * j + 1, family))
+    return out
+
+
+def symmetric_top_levels(a_mhz, b_mhz, dj, djk, dk, j, k):
+    """E(J,K)/k [K] of a prolate symmetric top (Gordy & Cook 1984)."""
+    j, k = np.asarray(j, dtype=float), np.asarray(k, dtype=float)
+    e_mhz = (b_mhz * j * (j + 1) + (a_mhz - b_mhz) * k**2 - dj * 1e-3 * j**2 * (j + 1) ** 2
+             - djk * 1e-3 * j * (j + 1) * k**2 - dk * 1e-3 * k**4)
+    return H_OVER_K * 1e-3 * e_mhz
+
+
+def symmetric_top_weight(k):
+    """g_K g_I of a C3v top's K ladder in this catalog's convention (see DEGENERACY)."""
+    k = np.asarray(k)
+    return np.where(k == 0, 1, 2) * np.where(k % 3 == 0, 2, 1)
+
+
+def _symmetric_top_rows():
+    out = []
+    for species, a_rot, b, dj, djk, dk, mu in SYMMETRIC_TOPS:
+        for j_up in range(1, 200):
+            if 2 * b * j_up * 1e-3 > BAND[1]:
+                break
+            for k in range(j_up):
+                nu = (2 * j_up * (b - djk * 1e-3 * k**2) - 4 * dj * 1e-3 * j_up**3) * 1e-3
+                e_up = float(symmetric_top_levels(a_rot, b, dj, djk, dk, j_up, k))
+                if nu < BAND[0] or e_up > MAX_E_UP:
+                    continue
+                a = float(f"{_symmetric_top_a(nu, j_up, k, mu):.4g}")
+                g = (2 * j_up + 1) * float(symmetric_top_weight(k))
+                out.append(_row(species, f"J={j_up}-{j_up - 1} K={k}", round(nu, 7), round(e_up, 2), a,
+                                "none", SYMTOP_PROV, g, "complex organics"))
+    return out
+
+
+def _published_group_rows():
+    out = []
+    prov = (f"nu: centre {N2HP_CENTRE} GHz and component offsets, relative_intensity: line strengths, "
+            f"both from {PYSPECKIT} pyspeckit/spectrum/models/n2hp.py (Dore, priv. comm., after Pagani et al. "
+            f"2009, A&A 494, 719); E_up, A: {LAMDA} file n2h+.dat, copy in GitHub itamos-ism/3D-PDR "
+            "chemfiles/n2h+.dat@2e69703; g_up: 3 x relative_intensity (2J+1 shared by line strength)")
+    strengths = [sum(s for _, s in parts) for _, parts in N2HP_COMPONENTS]
+    total = sum(strengths)
+    for (label, parts), strength in zip(N2HP_COMPONENTS, strengths):
+        offset = sum(v * s for v, s in parts) / strength
+        nu = N2HP_CENTRE * (1 - offset / C_KMS)
+        share = strength / total
+        out.append(_row("N2H+", f"J=1-0 {label}", round(nu, 7), 4.47, 3.628e-5, "none", prov, 3 * share,
+                        "dense gas", "N2H+ J=1-0", share))
+    labels = {0: "main", 1: "inner satellite (low nu)", 2: "outer satellite (low nu)",
+              -1: "inner satellite (high nu)", -2: "outer satellite (high nu)"}
+    for (j, k), offsets in NH3_OFFSETS.items():
+        centre, e_up, a = NH3_LINES[(j, k)]
+        strengths = NH3_STRENGTHS[(j, k)]
+        total = sum(strengths)
+        inner = max(abs(v) for v in offsets if abs(v) < 12) if (j, k) == (1, 1) else 20.0
+        g_level = 2 * j + 1
+        buckets = {}
+        for v, s in zip(offsets, strengths):
+            side = 0 if abs(v) < 2 else (1 if abs(v) <= inner else 2) * (1 if v > 0 else -1)
+            buckets.setdefault(side, []).append((v, s))
+        prov = (f"nu: centre {centre} GHz ({CDMS}, from memory) and component offsets, relative_intensity: "
+                f"line strengths, both from {PYSPECKIT} pyspeckit/spectrum/models/ammonia_constants.py "
+                "(Kukolich 1967, Phys. Rev. 156, 83), merged per satellite group; E_up, A: "
+                f"{CDMS}, from memory; g_up: (2J+1) x relative_intensity")
+        for side in (2, 1, 0, -1, -2):
+            parts = buckets[side]
+            strength = sum(s for _, s in parts)
+            offset = sum(v * s for v, s in parts) / strength
+            nu = centre * (1 - offset / C_KMS)
+            share = strength / total
+            out.append(_row("NH3", f"(J,K)=({j},{k}) {labels[side]}", round(nu, 7), e_up, a, "para", prov,
+                            g_level * share, "dense gas", f"NH3 (J,K)=({j},{k})", share))
+    total = sum(w for _, _, w in C17O_10)
+    for label, nu, weight in C17O_10:
+        out.append(_row("C17O", f"J=1-0 {label}", nu, 5.39, 6.7e-8, "none",
+                        "nu: CDMS catalogue (Mueller et al. 2005), from memory; E_up: h nu/k from the ground "
+                        "level; A: rigid rotor with mu=0.11 D, from memory; g_up, relative_intensity: "
+                        "(2F'+1)/(2I+1) and (2F'+1)/18 for I(17O)=5/2",
+                        weight / 6, "CO and isotopologues", "C17O J=1-0", weight / total))
+    return out
+
+
+def _memory_rows():
+    return [_row(s, t, nu, e, a, spin, MEMORY_PROV, g, fam) for s, t, nu, e, a, g, spin, fam in MEMORY_LINES]
+
+
+def _recombination_rows():
+    table = recombination_lines(BAND[0] * u.GHz, BAND[1] * u.GHz)
+    return [_row(str(r["species"]), str(r["transition"]), r["rest_frequency"].to_value("GHz"), NAN, NAN,
+                 "none", str(r["provenance"]), NAN, "recombination lines") for r in table]
 
 
 def _water_provenance(nu_from, e_a_from, spin, a):
@@ -259,23 +812,21 @@ def _water_provenance(nu_from, e_a_from, spin, a):
 
 
 def rows():
-    """All catalog rows as (species, transition, nu, E_up, A, spin, provenance)."""
-    out = []
-    for species, prov, table in PUBLISHED_LADDERS:
-        for j, (nu, e_up, a) in enumerate(table, start=1):
-            out.append((species, f"J={j}-{j - 1}", nu, e_up, a, "none", prov))
-    for species, freqs, dipole, prov in COMPUTED_LADDERS:
-        energy = 0.0
-        for j, nu in enumerate(freqs, start=1):
-            energy += H_OVER_K * nu
-            a = float(f"{_rigid_rotor_a(nu, j, dipole):.4g}")
-            out.append((species, f"J={j}-{j - 1}", nu, round(energy, 2), a, "none", prov))
-    for upper, lower, nu, nu_from, e_up, a, e_a_from in WATER:
-        ka, kc = (int(q) for q in upper.split("_")[1])
-        spin = "ortho" if (ka + kc) % 2 else "para"
-        out.append(("H2O", f"{upper}-{lower}", nu, e_up, a, spin,
-                    _water_provenance(nu_from, e_a_from, spin, a)))
-    out.extend(OTHERS)
+    """All catalog rows as (species, transition, nu, E_up, A, spin, provenance, g_up, family,
+    hyperfine_group, relative_intensity)."""
+    out = _curated_rows()
+    curated = {f"{r[0]} {r[1]}" for r in out}
+    out += _lamda_rows(curated)
+    out += _lamda_hyperfine_rows(curated)
+    out += _rotor_rows()
+    out += _symmetric_top_rows()
+    out += _published_group_rows()
+    out += _memory_rows()
+    out += _recombination_rows()
+    names = [f"{r[0]} {r[1]}" for r in out]
+    duplicated = {n for n in names if names.count(n) > 1}
+    if duplicated:
+        raise ValueError(f"duplicate row names: {sorted(duplicated)}")
     return out
 
 
@@ -285,26 +836,33 @@ HEADER = """\
 # # cubeloupe's bundled transition catalog (written by make_transitions.py).
 # #
 # # One row per transition. Columns:
-# #   species         molecule or ion as the trade writes it: CO, 13CO, H2O, [CII] ...
+# #   species         molecule, atom or ion as the trade writes it: CO, 13CO, H2O, [CII], H ...
 # #   transition      quantum numbers in the trade's notation: J=4-3 (linear rotors),
-# #                   J_KaKc upper-lower such as 3_13-2_20 (water), term symbols such as
-# #                   3P1-3P0 ([CI]) or 2P3/2-2P1/2 ([CII])
+# #                   J_KaKc upper-lower such as 3_13-2_20 (asymmetric tops), term symbols such as
+# #                   3P1-3P0 ([CI]), n-values such as 40alpha (recombination lines)
 # #   rest_frequency  GHz, as published (7 or more significant digits where known)
 # #   E_up            upper-level energy E_up/k in K; water's ortho levels are counted
-# #                   from the para ground level 0_00, as the trade does
+# #                   from the para ground level 0_00, as the trade does; nan for recombination lines
 # #   einstein_A      spontaneous emission coefficient in s^-1; nan where unknown
 # #   spin_isomer     ortho, para or none
 # #   provenance      where each value comes from, as clauses "nu: ...; E_up: ...; A: ...":
 # #                   a published file is named with the public copy that was read;
 # #                   "from memory" marks values recalled rather than copied from a source
+# #   g_up            upper-level degeneracy (convention in make_transitions.DEGENERACY:
+# #                   no nuclear-spin factors; a hyperfine component carries (2F+1)/prod(2I+1))
+# #   family          one of: CO and isotopologues, dense gas, shock tracers, complex organics,
+# #                   water and hydrides, atoms and ions, recombination lines
+# #   hyperfine_group the group a hyperfine component belongs to ("" for a line without one)
+# #   relative_intensity  LTE optically-thin share of the group's intensity (1 outside a group)
 # #
 # # A row is named "<species> <transition>" (e.g. "CO J=4-3"); use that name as the
-# # reference line in lines_in_band.
+# # reference line in lines_in_band. A hyperfine group's name (e.g. "N2H+ J=1-0") names
+# # the whole group.
 # #
 # # To add lines, do not edit this file: write your own ECSV (or CSV) with at least
 # # species, transition and rest_frequency (GHz, unless the ECSV header gives another
-# # frequency unit), optionally E_up, einstein_A, spin_isomer and provenance, and pass it
-# # as load_catalog(extra="my_lines.ecsv"). A user row with the same species and
+# # frequency unit), optionally the other columns, and pass it as
+# # load_catalog(extra="my_lines.ecsv"). A user row with the same species and
 # # transition as a bundled row replaces it.
 # datatype:
 # - {name: species, datatype: string}
@@ -314,8 +872,12 @@ HEADER = """\
 # - {name: einstein_A, unit: 1 / s, datatype: float64}
 # - {name: spin_isomer, datatype: string}
 # - {name: provenance, datatype: string}
+# - {name: g_up, datatype: float64}
+# - {name: family, datatype: string}
+# - {name: hyperfine_group, datatype: string}
+# - {name: relative_intensity, datatype: float64}
 # schema: astropy-2.0
-species transition rest_frequency E_up einstein_A spin_isomer provenance
+species transition rest_frequency E_up einstein_A spin_isomer provenance g_up family hyperfine_group relative_intensity
 """
 
 
@@ -330,18 +892,24 @@ def _quote(text):
     return '"' + text.replace('"', '""') + '"'
 
 
+def _number(value):
+    return "nan" if np.isnan(value) else np.format_float_positional(value, unique=True, trim="-") \
+        if 1e-3 <= abs(value) < 1e7 else np.format_float_scientific(value, unique=True, exp_digits=2)
+
+
 def write(path=TARGET):
-    """Write the catalog to ``path`` as plain, aligned ECSV."""
+    """Write the catalog to ``path`` as plain ECSV."""
     lines = []
-    for species, transition, nu, e_up, a, spin, prov in rows():
+    for species, transition, nu, e_up, a, spin, prov, g, family, group, share in rows():
         a_text = "nan" if np.isnan(a) else np.format_float_scientific(a, unique=True, exp_digits=2)
         lines.append(
-            f"{_quote(species):9s} {_quote(transition):28s} {_frequency_text(nu):>15} {float(e_up)!r:>8} "
-            f"{a_text:>10s} {spin:5s} {_quote(prov)}"
+            f"{_quote(species)} {_quote(transition)} {_frequency_text(nu)} {float(e_up)!r} "
+            f"{a_text} {spin} {_quote(prov)} {_number(round(g, 6))} {_quote(family)} {_quote(group)} "
+            f"{_number(round(share, 6))}"
         )
     Path(path).write_text(HEADER + "\n".join(lines) + "\n", encoding="utf-8")
+    return len(lines)
 
 
 if __name__ == "__main__":
-    write()
-    print(f"wrote {len(rows())} transitions to {TARGET}")
+    print(f"wrote {write()} transitions to {TARGET}")

@@ -1,0 +1,172 @@
+"""Write ``partition_functions.ecsv``, the partition functions Q(T) bundled with cubeloupe.
+
+Run after editing (``python analysis/data/make_partition_functions.py``) and
+commit both files. Three kinds of source, named per row in ``provenance``:
+
+* published tables: lg Q at the CDMS (Mueller et al. 2005) or JPL (Pickett et
+  al. 1998) temperatures, rows copied in ``sources/partition_tables.txt``.
+  Where the CDMS entry resolves hyperfine structure its Q counts the splitting
+  nuclei's spin multiplicity prod(2I+1); the catalog's degeneracies leave it
+  out (make_transitions.DEGENERACY), so Q is divided by it here (HCN and
+  isotopologues: 3 for 14N; N2H+: 9; C17O: 6 for 17O; 13CO and 13CS: 2 for 13C; CN: 3; CCH and OH+:
+  2 for H; found by comparing each table with kT/hB + 1/3 in tests/analysis/test_partition.py).
+  JPL's H2O, H2CO and CH3OH tables sum over both spin isomers with their spin
+  weights (ortho 3, para 1; A and E alike), so they are listed for
+  spin_isomer "none" only;
+* sums over a published level list (the vendored LAMDA files): each spin
+  species' own Q, with energies counted from its lowest level, tabulated only
+  up to a sixth of the highest listed level's energy, where the missing levels
+  change Q by well under 1 %;
+* sums over levels computed from the catalog's rotational constants (the
+  species make_transitions computes), up to J = 150 (K <= 40).
+"""
+
+from pathlib import Path
+
+import numpy as np
+
+from cubeloupe.analysis.data import make_transitions as mt
+
+HERE = Path(__file__).parent
+TARGET = HERE / "partition_functions.ecsv"
+TABLES = HERE / "sources" / "partition_tables.txt"
+CDMS_T = [1000, 500, 300, 225, 150, 75, 37.5, 18.75, 9.375, 5.0, 2.725]
+JPL_T = [300, 225, 150, 75, 37.5, 18.75, 9.375]
+GRID = np.round(np.geomspace(2.725, 1000, 41), 4)
+
+CDMS_SPECIES = {  # catalog species: (CDMS tag, hyperfine spin multiplicity divided out)
+    "[CI]": (12501, 1), "OH+": (17501, 2), "CCH": (25501, 2), "CN": (26504, 3), "HCN": (27501, 3),
+    "HNC": (27502, 1), "H13CN": (28501, 3), "CO": (28503, 1), "DCN": (28509, 3), "HN13C": (28515, 1),
+    "13CO": (29501, 2), "C17O": (29503, 6), "N2H+": (29506, 9), "HCO+": (29507, 1), "C18O": (30502, 1),
+    "H13CO+": (30504, 1), "HNCO": (43511, 1), "CS": (44501, 1), "SiO": (44505, 1), "13CS": (45501, 2),
+    "C34S": (46501, 1), "SO": (48501, 1), "HC3N": (51501, 1), "OCS": (60503, 1), "SO2": (64502, 1),
+}
+JPL_SPECIES = {"H2O": 18003, "HDO": 19002, "H2CO": 30004, "CH3OH": 32003}
+LEVEL_FILES = [("NH3", "ortho", "o-nh3.dat", 1), ("NH3", "para", "p-nh3.dat", 1),
+               ("H2S", "ortho", "oh2s.dat", 1), ("H2S", "para", "ph2s.dat", 1),
+               ("c-C3H2", "ortho", "o-c3h2.dat", 1), ("c-C3H2", "para", "p-c3h2.dat", 1),
+               ("H3O+", "ortho", "o-h3o+.dat", 1), ("H3O+", "para", "p-h3o+.dat", 1),
+               ("HCl", "none", "hcl@hfs.dat", 4), ("[CII]", "none", "c+.dat", 1),
+               ("[NII]", "none", "n+.dat", 1), ("[OI]", "none", "oatom.dat", 1)]
+# Linear rotors with no table in hand: B, D from make_transitions.rotor_constants(), or half the
+# J=1-0 frequency of the catalog's curated row (CH+, HF; rigid rotor, D neglected).
+LADDER_SPECIES = ["HC15N", "DCO+", "N2D+"]
+RIGID = {"CH+": 835137.504 / 2, "HF": 1232476.2 / 2}
+
+
+def _read_tables():
+    cdms, jpl, copy = {}, {}, {}
+    source = None
+    for line in TABLES.read_text().splitlines():
+        if line.startswith("# CDMS rows"):
+            source = "cdms"
+            copy["cdms"] = line.split("copy read: ")[1]
+        elif line.startswith("# JPL rows"):
+            source = "jpl"
+            copy["jpl"] = line.split("copy read: ")[1]
+        elif source == "cdms" and line.startswith("|") and line.split("|")[1].strip().isdigit():
+            cells = [c.strip() for c in line.split("|")[1:-1]]
+            cdms[int(cells[0])] = [float(c) for c in cells[3:14]]
+        elif source == "jpl" and line[:6].strip().isdigit():
+            jpl[int(line[:6])] = [float(v) for v in line[26:].split()[:7]]
+    return cdms, jpl, copy
+
+
+def _level_sum(energies_k, weights, temperatures):
+    e = np.asarray(energies_k)[:, None]
+    return np.sum(np.asarray(weights)[:, None] * np.exp(-e / np.asarray(temperatures)[None, :]), axis=0)
+
+
+def rows():
+    """(species, spin_isomer, temperature [K], Q, energy_zero [K], provenance) rows."""
+    cdms, jpl, copy = _read_tables()
+    out = []
+    for species, (tag, spins) in CDMS_SPECIES.items():
+        prov = (f"CDMS partition function table (Mueller et al. 2005), tag {tag}, {copy['cdms']}"
+                + (f"; divided by {spins}, the hyperfine nuclear-spin multiplicity" if spins > 1 else ""))
+        for t, lg in zip(CDMS_T, cdms[tag]):
+            if np.isfinite(lg):
+                out.append((species, "none", t, 10**lg / spins, 0.0, prov))
+    for species, tag in JPL_SPECIES.items():
+        prov = (f"JPL partition function table (Pickett et al. 1998), tag {tag}, {copy['jpl']}; "
+                "sums both spin isomers with their spin weights")
+        for t, lg in zip(JPL_T, jpl[tag]):
+            out.append((species, "none", t, 10**lg, 0.0, prov))
+    for species, spin, name, spins in LEVEL_FILES:
+        file_copy, levels, _ = mt.read_lamda(name)
+        energy = np.array([e for e, _, _ in levels.values()]) * mt.K_PER_CM
+        g = np.array([w for _, w, _ in levels.values()])
+        lowest = int(np.argmin(energy))
+        if spin != "none":
+            g = g / (g[lowest] / (2 * mt._j_of(list(levels.values())[lowest][2]) + 1))
+        g = g / spins
+        zero = float(energy[lowest])
+        t_max = (energy.max() - zero) / 6
+        grid = GRID[GRID <= t_max]
+        q = _level_sum(energy - zero, g, grid)
+        prov = (f"sum over the levels of {mt.LAMDA} file {name}, copy in {file_copy} (valid up to "
+                f"{t_max:.0f} K; energies from the {spin if spin != 'none' else ''} lowest level)")
+        out += [(species, spin, float(t), float(qi), round(zero, 4), prov) for t, qi in zip(grid, q)]
+    constants = mt.rotor_constants()
+    j = np.arange(0, 151)  # D-corrected energies stay monotonic well past 20 000 K
+    for species in LADDER_SPECIES:
+        b, d, _ = constants[species]
+        energy = mt.linear_rotor_levels(b, d, j)
+        q = _level_sum(energy, 2 * j + 1, GRID)
+        prov = ("sum over the levels J=0-150 "
+                f"from the catalog's constants B={b:.4f} MHz, D={d:.3f} kHz (fitted to recalled CDMS lines, from memory)")
+        out += [(species, "none", float(t), float(qi), 0.0, prov) for t, qi in zip(GRID, q)]
+    for species, b in RIGID.items():
+        energy = mt.linear_rotor_levels(b, 0.0, j)
+        q = _level_sum(energy, 2 * j + 1, GRID)
+        prov = (f"sum over rigid-rotor levels J=0-150 with B = nu(J=1-0)/2 = {b:.1f} MHz "
+                "(the catalog's curated J=1-0 frequency)")
+        out += [(species, "none", float(t), float(qi), 0.0, prov) for t, qi in zip(GRID, q)]
+    # [OIII] 3P0,1,2 at 0, 113.178 (PyNeb copy of NIST, see make_transitions.SOURCES) and
+    # 306.174 cm^-1 (NIST, from memory).
+    energy = np.array([0.0, 113.178, 306.174]) * mt.K_PER_CM
+    q = _level_sum(energy, [1, 3, 5], GRID)
+    out += [("[OIII]", "none", float(t), float(qi), 0.0,
+             "sum over the 3P0,1,2 levels: 113.178 cm^-1 from NIST via PyNeb, 306.174 cm^-1 from memory")
+            for t, qi in zip(GRID, q)]
+    for species, a_rot, b, dj, djk, dk, _ in mt.SYMMETRIC_TOPS:
+        jj, kk = np.meshgrid(np.arange(0, 151), np.arange(0, 41), indexing="ij")
+        ok = kk <= jj
+        energy = mt.symmetric_top_levels(a_rot, b, dj, djk, dk, jj[ok], kk[ok])
+        weight = (2 * jj[ok] + 1) * mt.symmetric_top_weight(kk[ok])
+        keep = (energy >= 0) & (energy < 20000)
+        q = _level_sum(energy[keep], weight[keep], GRID)
+        prov = ("sum over symmetric-top levels J <= 150, K <= 40 from the catalog's constants (from memory), "
+                "with the K-ladder weights of make_transitions.DEGENERACY")
+        out += [(species, "none", float(t), float(qi), 0.0, prov) for t, qi in zip(GRID, q)]
+    return out
+
+
+HEADER = """\
+# %ECSV 1.0
+# ---
+# # Partition functions Q(T) of the catalog's species (written by make_partition_functions.py).
+# # Q is dimensionless; energy_zero is the energy E/k [K], on the catalog's E_up scale, of the
+# # level Q counts from (0 unless a spin species' lowest level lies above the molecule's ground).
+# # Degeneracies as in make_transitions.DEGENERACY; sources per row in provenance.
+# datatype:
+# - {name: species, datatype: string}
+# - {name: spin_isomer, datatype: string}
+# - {name: temperature, unit: K, datatype: float64}
+# - {name: Q, datatype: float64}
+# - {name: energy_zero, unit: K, datatype: float64}
+# - {name: provenance, datatype: string}
+# schema: astropy-2.0
+species spin_isomer temperature Q energy_zero provenance
+"""
+
+
+def write(path=TARGET):
+    lines = [f'"{s}" {spin} {t!r} {q:.6g} {zero!r} "{prov}"' for s, spin, t, q, zero, prov in sorted(
+        rows(), key=lambda r: (r[0], r[1], r[2]))]
+    Path(path).write_text(HEADER + "\n".join(lines) + "\n", encoding="utf-8")
+    return len(lines)
+
+
+if __name__ == "__main__":
+    print(f"wrote {write()} rows to {TARGET}")
