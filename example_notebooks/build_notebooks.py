@@ -543,6 +543,42 @@ loupe
 5. From code: `loupe.line_free = [[229.61, 229.64], [229.17, 229.20]]` sets line-free ranges in
    observed GHz; read `loupe.measurements` afterwards.
 """),
+    md("""
+## The code of what you clicked
+
+Every step in the suite can be written out as a script: open the **Code** tab under the views,
+or ask for it with `loupe.to_code()`. The cell below does what a few clicks would do (a box
+drawn on the nucleus, line-free ranges and a line window marked on the spectrum, moment maps
+made), then prints the script of that session. Read it: it is the analysis you did, in the
+functions used above, with the box exactly as drawn and its sky position beside it.
+"""),
+    code("""
+from regions import PixCoord, RectanglePixelRegion
+
+loupe.add_region(RectanglePixelRegion(PixCoord(35.5, 36.5), width=8, height=8), name="nucleus")  # a drawn box
+loupe.line_free = [[229.61, 229.64], [229.17, 229.20]]   # dragged on the spectrum, observed GHz
+loupe.line_window = [229.25, 229.57]
+loupe.make_moments(wait=True)                             # the 'Make moment maps' button
+print(loupe.to_code())
+"""),
+    md("""
+A session can also be saved to a small JSON file and opened again later, with the same cubes,
+regions, ranges and settings (`loupe.code_view.to_new_cell()` would put the script above into
+a new cell of this notebook instead).
+"""),
+    code("""
+import tempfile
+from pathlib import Path
+
+path = loupe.save_session(Path(tempfile.mkdtemp()) / "first.cubeloupe.json")
+again = Loupe.from_session(path)
+print(path.read_text()[:400], "...")
+print("same measurements:", [row["flux"] for row in again.measurements] == [row["flux"] for row in loupe.measurements])
+"""),
+    md("""
+**Task.** Draw a second region in the suite, open the Code tab and find it in the script. Run
+the script in a new cell: does it give the same measurement table?
+"""),
 ]
 
 

@@ -12,8 +12,6 @@ notebook cell below the one that calls it (IPython's ``set_next_input``, which
 JupyterLab and Notebook honour).
 """
 
-import html
-
 import ipywidgets as w
 from traitlets import Bool, Unicode, observe
 
@@ -29,7 +27,8 @@ WATCHED = ("window", "channel", "z", "velocity_offset", "rest_frequency", "refer
            "axis_kind", "regions", "line_free", "line_window", "peaks", "baseline_order", "show_subtracted",
            "clip", "sky_source", "spectrum_span", "magnification", "cosmology", "moments", "measurements")
 _PART_WATCHED = {"sky_view": ("stretch", "palette", "lower_percentile", "upper_percentile", "vmin", "vmax",
-                              "show_beam", "contour_source", "contour_levels"),
+                              "show_beam", "contour_source", "contour_levels", "velocity_palette"),
+                 "moment_panel": ("significance",),
                  "line_overlay": ("species", "spin_isomer", "max_E_up", "velocity_range")}
 
 # Copies the text box of the same view: the button and the box are found from the clicked element, so
@@ -138,6 +137,3 @@ class CodeView(w.VBox):
             return False
         shell.set_next_input(self.current(), replace=False)
         return True
-
-    def _repr_html_(self):  # pragma: no cover - shown only where widgets cannot be
-        return f"<pre>{html.escape(self.current())}</pre>"

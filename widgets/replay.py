@@ -180,16 +180,23 @@ def _moment_section(loupe, state):
             f"    order={made['baseline_order']!r}, rest_frequency={_rest_code(made['rest_frequency'])}, "
             f"z={made['z']!r}, convention={made['convention']!r},",
             f"    clip={made['clip']!r},",
-            ")"]
+            ")"] + _significance_lines(loupe, made)
+
+
+def _significance_lines(loupe, made):
+    """Moments 1 and 2 as the suite shows them: where moment 0 is significant (maps with an error only)."""
+    significance = getattr(loupe.moment_panel, "significance", None)
+    if significance is None or not made["line_free"]:
+        return []
+    return [f"# Moments 1 and 2 as the suite shows them: where moment 0 exceeds {significance!r} times its error.",
+            f"shown = significant_moments(moments, {significance!r})"]
 
 
 def _loupe_section(loupe, state):
     s = state.settings
-    arguments = "z=z, rest_frequency=rest_frequency, convention=convention"
-    if "first_view" in inspect.signature(type(loupe)).parameters:
-        arguments += ", first_view=False"
+    arguments = ", first_view=False" if "first_view" in inspect.signature(type(loupe)).parameters else ""
     lines = ["# The suite in the same state: same cubes, regions, ranges, settings and view.",
-             f"loupe = {type(loupe).__name__}(paths, {arguments})"]
+             f"loupe = {type(loupe).__name__}(paths{arguments})"]
     current = {name: s[name] for name in MOMENT_SETTINGS}
     shown = None  # the window the script has shown last: it is set only where it changes
 
@@ -216,12 +223,19 @@ def _loupe_section(loupe, state):
         elif (target, name) == ("loupe", "window"):
             show(value)
         elif target == "loupe":
-            lines.append(f"loupe.{name} = {value!r}")
+            lines.append(f"loupe.{name} = {name}" if name in ("z", "convention") else f"loupe.{name} = {value!r}")
         else:
             widget = getattr(loupe, target)
             if value != type(widget).class_traits()[name].default(widget) or name == "velocity_range":
                 lines.append(f"loupe.{target}.{name} = {value!r}")
     return lines + ["loupe"]
+
+
+def _analysis_names(loupe, state):
+    names = ["measurement_table", "moment_maps", "open_cube", "region_spectrum"]
+    if state.moments is not None and _significance_lines(loupe, state.moments):
+        names.append("significant_moments")
+    return sorted(names)
 
 
 def to_code(loupe):
@@ -260,7 +274,7 @@ def to_code(loupe):
               "    PolygonPixelRegion, PolygonSkyRegion, RectanglePixelRegion, RectangleSkyRegion,",
               ")",
               "",
-              "from cubeloupe.analysis import measurement_table, moment_maps, open_cube, region_spectrum",
+              f"from cubeloupe.analysis import {', '.join(_analysis_names(loupe, state))}",
               f"from cubeloupe.widgets import {type(loupe).__name__}",
               "",
               "# The cubes: the suite's spectral windows, in its order.",

@@ -252,9 +252,9 @@ def current_moment_settings(loupe):
 
 
 def _construction_arguments(loupe_class, settings):
-    arguments = {"z": settings["z"], "convention": settings["convention"]}
-    if settings["rest_frequency"] > 0:
-        arguments["rest_frequency"] = settings["rest_frequency"] * u.GHz
+    # The suite is opened with its defaults; the redshift and velocity zero are then set step by step
+    # (`restore_steps`), as a user would, so that no choice of the opening is left over.
+    arguments = {}
     # A restored suite shows what was saved, not a first view of its own.
     if "first_view" in inspect.signature(loupe_class).parameters:
         arguments["first_view"] = False
@@ -269,7 +269,8 @@ def restore_steps(state):
     `cubeloupe.widgets.replay.to_code` writes them out, so the two cannot disagree.
     """
     s, views = state.settings, state.views
-    steps = [("line_overlay", "velocity_range", views.get("line_overlay", {}).get("velocity_range"))]
+    steps = [("loupe", "convention", s["convention"]), ("loupe", "z", s["z"]),
+             ("line_overlay", "velocity_range", views.get("line_overlay", {}).get("velocity_range"))]
     steps += [("loupe", name, s[name]) for name in ("velocity_offset", "reference_line", "rest_frequency",
                                                     "axis_kind", "spectrum_span", "magnification", "cosmology",
                                                     "baseline_order", "show_subtracted", "clip")]

@@ -123,6 +123,13 @@ VIEW_SETTINGS = {
         ("contour_source", _text, "'' or a moment map name"),
         ("contour_levels", _numbers, "a list of numbers"),
         ("tool", _text, "a sky tool name"),
+        ("velocity_palette", _text, "a colour ramp name for velocity maps"),
+    ),
+    "moment_panel": (
+        ("significance", lambda v: _is_number(v) and v > 0, "a positive number of moment-0 errors"),
+    ),
+    "channel_bar": (
+        ("play_interval", lambda v: _count(v) and v > 0, "milliseconds between channels"),
     ),
     "spectrum_view": (
         ("mode", _text, "a click mode"),

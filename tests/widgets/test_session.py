@@ -14,7 +14,7 @@ from cubeloupe.widgets import Loupe
 from cubeloupe.widgets.session import (
     LOUPE_SETTINGS, SESSION_VERSION, VIEW_SETTINGS, SessionError, SessionState, read_session, session_state,
 )
-from session_steps import drive
+from session_steps import CASES, drive
 
 SESSIONS = Path(__file__).resolve().parents[1] / "data" / "sessions"
 
@@ -33,6 +33,37 @@ def _same_rows(got, expected):
     for g, e in zip(got, expected):
         for key, value in e.items():
             assert g[key] == value or (np.isnan(g[key]) and np.isnan(value)), (key, g[key], value)
+
+
+def test_every_setting_a_user_can_change_is_in_the_session():
+    """A new trait on the suite or a part must be saved, be marked "(read-only)" in its help, or be listed here."""
+    import ipywidgets as w
+
+    # Derived from other state, shown only, or transient while a gesture lasts (not a user's setting).
+    not_settings = {"regions", "moments", "measurements", "velocity_reference", "maps", "outlines", "pointer_text",
+                    "polygon_vertices", "source", "max_display_size", "display_factor", "shown_limits", "state",
+                    "running", "progress", "result", "window_index", "candidates", "hover_text", "lines",
+                    "marker_reach", "head_reach", "velocity_only", "brushing", "cursor_frequency", "x_range",
+                    "reshape", "readout", "reference_label", "other_bands", "go_message", "n_channels",
+                    "show_window", "rows", "clip", "channel", "window", "z", "velocity_offset", "reference_line",
+                    "rest_frequency", "convention", "axis_kind", "line_free", "line_window", "peaks",
+                    "baseline_order", "show_subtracted", "magnification", "cosmology"}
+    saved = {name for name, _, _ in LOUPE_SETTINGS}
+    for part, table in VIEW_SETTINGS.items():
+        saved |= {name for name, _, _ in table}
+    base = set(w.VBox.class_trait_names())
+    loupe_names = {n for n in Loupe.class_trait_names() if n not in base}
+    assert loupe_names - saved - {"regions", "moments", "measurements", "velocity_reference"} == set()
+    for part in ("sky_view", "line_overlay", "spectrum_view", "region_list", "moment_panel", "channel_bar",
+                 "measurement_table"):
+        cls = {"sky_view": "SkyView", "line_overlay": "LineOverlay", "spectrum_view": "SpectrumView",
+               "region_list": "RegionList", "moment_panel": "MomentPanel", "channel_bar": "ChannelBar",
+               "measurement_table": "MeasurementTable"}[part]
+        import cubeloupe.widgets as widgets
+        traits = getattr(widgets, cls).class_traits()
+        names = {n for n, t in traits.items() if n not in base and not n.startswith("_")
+                 and "read-only" not in (t.help or "")}
+        assert names - saved - not_settings == set(), f"{cls} settings not in sessions"
 
 
 def _set_everything(loupe):
@@ -60,6 +91,10 @@ def _set_everything(loupe):
     loupe.spectrum_view.mode = "peak" if "peak" in type(loupe.spectrum_view).class_traits()["mode"].values \
         else loupe.spectrum_view.mode
     loupe.region_list.selected = "oval"
+    loupe.moment_panel.significance = 4.5
+    loupe.sky_view.velocity_palette = [p for p in type(loupe.sky_view).class_traits()["velocity_palette"].values
+                                       if p != loupe.sky_view.velocity_palette][0]
+    loupe.channel_bar.play_interval = 120
     assert loupe.status.level != "error", loupe.status.message
 
 
@@ -79,7 +114,18 @@ def test_session_round_trips_every_setting(case, tmp_path):
     _same_rows(again.measurements, loupe.measurements)
     for key in ("m0", "m1", "m2"):
         np.testing.assert_array_equal(getattr(again.moments, key).value, getattr(loupe.moments, key).value)
+    for name, shown in loupe.moment_panel.maps.items():  # as shown: moments 1 and 2 where moment 0 is significant
+        np.testing.assert_array_equal(again.moment_panel.maps[name].value, shown.value)
     assert SessionState.from_loupe(again).to_dict() == SessionState.from_loupe(loupe).to_dict()
+
+
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_every_demo_session_reopens_with_the_same_numbers(case, tmp_path):
+    loupe = drive(case)
+    again = Loupe.from_session(loupe.save_session(tmp_path / "s.cubeloupe.json"))
+    assert _settings(again) == _settings(loupe) and again.regions == loupe.regions
+    _same_rows(again.measurements, loupe.measurements)
+    np.testing.assert_array_equal(again.moments.m0.value, loupe.moments.m0.value)
 
 
 def test_moment_maps_keep_the_settings_they_were_made_with(tmp_path):
