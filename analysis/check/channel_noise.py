@@ -19,9 +19,10 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
+from ..blocks import plane_blocks, run_blocks
 from ..errors import SpectralRangeError
-from ..noise import channel_statistics, cube_noise
 from .detections import flag_channels
+from .grid_noise import channel_rms_from_grid, grid_noise_statistics, steady_rms
 from .noise_map import noise_scaled_extremes
 from .results import NoiseSummary
 from .rules import FLAG_RULE, SPATIAL_RULE
@@ -31,6 +32,7 @@ __all__ = [
     "NOISE_MAX_PIXELS",
     "ChannelNoise",
     "channel_noise",
+    "grid_statistics",
     "noise_grid",
 ]
 
@@ -80,6 +82,77 @@ def noise_grid(shape, max_pixels=None):
 
 
 @dataclass(frozen=True)
+class _GridChannelNoise:
+    """Kernel over whole channel images: the MADs of `grid_noise_statistics` over every ``step``-th pixel."""
+
+    max_pixels: int
+
+    def __call__(self, data):
+        flat = data.reshape(data.shape[0], -1)
+        step = max(1, -(-flat.shape[1] // self.max_pixels))
+        return grid_noise_statistics(np.ascontiguousarray(flat[:, ::step]))
+
+
+def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=None, cancel=None):
+    """The MADs of `grid_noise_statistics` for every channel of ``cube``, over about ``max_pixels`` of its pixels.
+
+    One pass in blocks of whole channel images (`blocks.plane_blocks`); the
+    cube's mask is respected. Differences across the boundary of two blocks
+    are not measured (NaN).
+
+    Returns
+    -------
+    dict
+        The keywords of `channel_rms_from_grid`.
+    """
+    n_chan = cube.shape[0]
+    columns = {"mad": np.full(n_chan, np.nan), "step_mad": np.full(max(n_chan - 1, 0), np.nan),
+               "lag2_mad": np.full(max(n_chan - 2, 0), np.nan),
+               "curvature_mad": np.full(max(n_chan - 2, 0), np.nan), "n_pixels": np.zeros(n_chan),
+               "total": np.zeros(n_chan)}
+
+    def consume(block, result):
+        (start, stop), = block.runs
+        for name, values in result.items():
+            columns[name][start:start + len(values)] = values
+
+    run_blocks(cube, _GridChannelNoise(int(max_pixels)), plane_blocks(cube.shape, itemsize=4), consume,
+               dtype=np.float32, client=client, progress=progress, cancel=cancel)
+    return columns
+
+
+def _pixels_per_sample(fwhm_pixels, stride):
+    """Grid pixels per independent noise sample: the correlation area (1.1331 FWHM_x FWHM_y, a Gaussian's) over stride^2."""
+    if fwhm_pixels is None or min(fwhm_pixels) <= 0:
+        return 1.0
+    return max(1.0, 1.1331 * fwhm_pixels[0] * fwhm_pixels[1] / stride**2)
+
+
+def _standing_out(grid):
+    """Channels whose noise stands out: by their plain rms and by their difference-based rms alike.
+
+    A channel of bad noise lifts both; emission over the field lifts only
+    the plain rms, a bad neighbour only the difference-based one. Where the
+    difference-based rms is not measured (the ends of the band), the plain
+    rms decides alone.
+    """
+    plain = set(flag_channels(grid.plain_rms).tolist())
+    difference = np.asarray(grid.difference_rms, dtype=float)
+    measured = np.isfinite(difference)
+    by_difference = set(np.flatnonzero(measured)[flag_channels(difference[measured])].tolist())
+    unmeasured = set(np.flatnonzero(~measured).tolist())
+    blank = set(np.flatnonzero(~np.isfinite(grid.plain_rms)).tolist())
+    return np.array(sorted((plain & (by_difference | unmeasured)) | blank), dtype=int)
+
+
+def _median_rms(channel_rms):
+    finite = channel_rms[np.isfinite(channel_rms)]
+    if finite.size == 0:
+        raise SpectralRangeError("every channel of the cube is blank (NaN or masked); there is no noise to measure")
+    return np.median(finite)
+
+
+@dataclass(frozen=True)
 class ChannelNoise:
     """Pass 2 of the check: the noise of each channel, and each channel's extremes in units of it.
 
@@ -97,6 +170,10 @@ class ChannelNoise:
         map is uncertain; None for a noise uniform across the field.
     notes : tuple of str
         Warnings for the report.
+    field_mean : ndarray, shape (n_channels,) or None
+        Mean of each channel over the pixels the rms was measured on (in the
+        cube's unit, or in units of the quietest part's noise): the field's
+        mean spectrum, where emission spread over the field shows.
     """
 
     summary: NoiseSummary
@@ -106,6 +183,7 @@ class ChannelNoise:
     trough_positions: np.ndarray
     scale: object = None
     notes: tuple = ()
+    field_mean: object = None
 
 
 def _continuum_pixels_left_out(spectra, notes, *, local):
@@ -118,7 +196,8 @@ def _continuum_pixels_left_out(spectra, notes, *, local):
     return continuum_pixels if CONTINUUM_MASK_FRACTION < covered <= 0.5 else None
 
 
-def channel_noise(cube, header, spectra, spatial, *, threshold, client=None, progress=None, cancel=None):
+def channel_noise(cube, header, spectra, spatial, *, threshold, fwhm_pixels=None, client=None, progress=None,
+                  cancel=None):
     """Measure the noise of every channel (pass 2 of the check) and flag the channels that stand out.
 
     Parameters
@@ -132,6 +211,9 @@ def channel_noise(cube, header, spectra, spatial, *, threshold, client=None, pro
     threshold : float
         The detection threshold applied: the noise map is widened by its own
         error at that level.
+    fwhm_pixels : (float, float) or None
+        FWHM of the noise correlation in pixels (x, y), for the number of
+        independent pixels behind each channel's rms.
     client, progress, cancel
         As for `blocks.run_blocks`.
 
@@ -141,7 +223,7 @@ def channel_noise(cube, header, spectra, spatial, *, threshold, client=None, pro
     """
     notes = []
     scale = None
-    if spatial.varies:
+    if spatial.varies or spatial.per_pixel:
         # Every pixel's data over its own relative noise; the extremes per channel, and the
         # rms of the whole field in the units of its quietest part. The map's own error e (a
         # fraction) widens the S/N of a pixel by about sqrt(1 + (t e)^2) at a level t
@@ -153,17 +235,20 @@ def channel_noise(cube, header, spectra, spatial, *, threshold, client=None, pro
         left_out = _continuum_pixels_left_out(spectra, notes, local=True)
         extremes = noise_scaled_extremes(cube, spectra.continuum_level, spatial.relative, scale=scale,
                                          rms_pixels=None if left_out is None else ~left_out, stride=stride,
-                                         client=client, progress=progress, cancel=cancel)
+                                         pixels_per_sample=_pixels_per_sample(fwhm_pixels, stride), client=client,
+                                         progress=progress, cancel=cancel)
+        grid = extremes.grid
         channel_rms = extremes.rms
-        finite_rms = channel_rms[np.isfinite(channel_rms)]
-        if finite_rms.size == 0:
-            raise SpectralRangeError("every channel of the cube is blank (NaN or masked); there is no noise "
-                                     "to measure")
-        total_rms = np.median(finite_rms)
+        total_rms = _median_rms(channel_rms)
         extremes = (extremes.peaks, extremes.positions, extremes.troughs, extremes.trough_positions)
-        where = "the centre of the field" if spatial.primary_beam_corrected else "the quietest part of the field"
-        rms_region = (f"{where} (around pixel x={spatial.quietest[1]}, y={spatial.quietest[0]}), measured over "
-                      "the whole field with each pixel's values divided by its relative noise")
+        if spatial.per_pixel:
+            rms_region = ("a pixel of the median noise, measured over the whole field with each pixel's values "
+                          "divided by its own noise relative to that median")
+        else:
+            where = ("the centre of the field" if spatial.primary_beam_corrected
+                     else "the quietest part of the field")
+            rms_region = (f"{where} (around pixel x={spatial.quietest[1]}, y={spatial.quietest[0]}), measured "
+                          "over the whole field with each pixel's values divided by its relative noise")
         notes.append(_varying_noise_note(spatial))
     else:
         # noise.py's robust rms per channel. When continuum covers more than
@@ -175,21 +260,30 @@ def channel_noise(cube, header, spectra, spatial, *, threshold, client=None, pro
         stride, max_pixels = noise_grid(header.shape)
         if stride > 1:
             noise_cube = noise_cube[:, ::stride, :]
-        stats = channel_statistics(noise_cube, max_pixels=max_pixels, client=client, progress=progress,
-                                   cancel=cancel)
-        channel_rms = stats.rms
-        total_rms = cube_noise(noise_cube, statistics=stats)
+        statistics = grid_statistics(noise_cube, max_pixels=max_pixels, client=client, progress=progress,
+                                     cancel=cancel)
+        grid = channel_rms_from_grid(**statistics, pixels_per_sample=_pixels_per_sample(fwhm_pixels, stride))
+        channel_rms = u.Quantity(grid.rms, cube.unit)
+        total_rms = _median_rms(channel_rms)
         extremes = (spectra.peaks, spectra.positions, spectra.troughs, spectra.trough_positions)
         rms_region = "the whole field"
-    flagged = flag_channels(channel_rms)
+    flagged = _standing_out(grid)
+    # a precise rms for the S/N of small images (flagged channels keep their own)
+    channel_rms = u.Quantity(steady_rms(channel_rms.value, grid.n_independent, flagged), channel_rms.unit)
     if len(flagged):
         notes.append(f"{len(flagged)} channel(s) with noise that stands out (see the noise section)")
     summary = NoiseSummary(channel_rms=channel_rms, cube_rms=total_rms, flagged=flagged, rule=FLAG_RULE,
-                           spatial=spatial, rms_region=rms_region, spatial_rule=SPATIAL_RULE)
-    return ChannelNoise(summary, *extremes, scale=scale, notes=tuple(notes))
+                           spatial=spatial, rms_region=rms_region, spatial_rule=SPATIAL_RULE,
+                           plain_rms=u.Quantity(grid.plain_rms, cube.unit),
+                           from_differences=grid.from_differences, channel_correlation=grid.correlation)
+    return ChannelNoise(summary, *extremes, scale=scale, notes=tuple(notes), field_mean=grid.mean)
 
 
 def _varying_noise_note(spatial):
+    if spatial.per_pixel:
+        return (f"the field is too small for a smooth noise map: each pixel is judged against its own noise "
+                f"(from the differences of its neighbouring channels); the noisiest pixel has "
+                f"{spatial.highest:.2g} times the median pixel's noise")
     if spatial.primary_beam_corrected:
         return (f"the noise rises towards the edge of the field to {spatial.edge_to_centre:.2g} times that of "
                 f"the centre (median along the edge; up to {spatial.highest:.2g} times), as in a "

@@ -20,7 +20,7 @@ from .noise_map import spatial_noise
 from .results import ContinuumSummary
 from .rules import CONTINUUM_RULE
 
-__all__ = ["SIGNIFICANT", "LeftoverContinuum", "leftover_continuum_summary"]
+__all__ = ["SIGNIFICANT", "LeftoverContinuum", "correlated_mean_factor", "leftover_continuum_summary"]
 
 # Pixels whose line-free mean lies this many standard errors from zero count as holding continuum.
 SIGNIFICANT = 5
@@ -46,8 +46,31 @@ class LeftoverContinuum:
     notes: list
 
 
-def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None, client=None, progress=None,
-                               cancel=None):
+def correlated_mean_factor(correlation, n_terms=50):
+    """How much channel correlation widens the standard error of a mean over many channels.
+
+    The variance of the mean of n values of a stationary series is
+    ``sigma^2 / n (1 + 2 sum_L rho_L)`` for n much longer than the
+    correlation (the effective number of independent values, common
+    practice); with ``rho_L = rho_1^(L^2)`` as in `grid_noise`, the factor
+    is ``sqrt(1 + 2 sum_L rho_1^(L^2))``.
+
+    Examples
+    --------
+    >>> correlated_mean_factor(0.0)
+    1.0
+    >>> round(correlated_mean_factor(2 / 3), 2)  # Hanning smoothing: sqrt(1 + 2 (2/3 + 1/6)) = 1.63 exactly
+    1.67
+    """
+    rho = float(correlation or 0.0)
+    if rho <= 0:
+        return 1.0
+    lags = np.arange(1, n_terms + 1, dtype=float)
+    return float(np.sqrt(1.0 + 2.0 * np.sum(rho ** (lags**2))))
+
+
+def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None, correlation=None, client=None,
+                               progress=None, cancel=None):
     """The continuum left in the line-free channels ``free`` of each pixel.
 
     Parameters
@@ -62,6 +85,9 @@ def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None
         again from the line-free channels alone, as a check.
     beam_pixels : float or None
         Beam FWHM in pixels, for that map.
+    correlation : float or None
+        Correlation of the noise of neighbouring channels: the standard
+        error of each pixel's mean is widened by `correlated_mean_factor`.
     client, progress, cancel
         As for `blocks.run_blocks`.
 
@@ -74,6 +100,8 @@ def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None
         return LeftoverContinuum(None, None, [f"only {n_free} line-free channel(s): leftover continuum not measured"])
     notes = []
     mean, error, significance = spectra.line_free_mean(cube, free, client=client, progress=progress, cancel=cancel)
+    widening = correlated_mean_factor(correlation)
+    error, significance = error * widening, significance / widening
     if np.isfinite(significance).any():
         where = np.unravel_index(np.nanargmax(np.abs(significance)), significance.shape)
         peak_sig = float(significance[where])
@@ -94,7 +122,7 @@ def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None
     if spatial.varies:
         # A check on the noise map, now that the line channels are known: the same map from
         # each pixel's standard deviation over the line-free channels (from the same sums).
-        varies = spatial_noise(error * np.sqrt(n_free), beam_pixels=beam_pixels).varies
+        varies = spatial_noise(error / widening * np.sqrt(n_free), beam_pixels=beam_pixels).varies
         if not varies:
             notes.append(
                 "the noise map from the line-free channels alone is flat: the variation found at first "

@@ -111,12 +111,12 @@ from ..errors import ParameterError
 from ..spectral import check_redshift
 from .channel_noise import channel_noise
 from .continuum import leftover_continuum_summary
-from .detections import DETECTION_SNR, line_free_channels
+from .detections import DETECTION_SNR, WING_PAD_FRACTION, line_free_channels
 from .false_alarms import FALSE_ALARMS, detection_threshold
 from .first_pass import continuum_free_peaks
 from .header import beam_fwhm_pixels, blanked_notes, header_summary
 from .line_search import find_lines
-from .noise_map import spatial_noise
+from .noise_map import pixel_noise_map, spatial_noise
 from .results import CubeCheck
 from .strongest import strongest_feature
 
@@ -183,12 +183,16 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
     limit = detection_threshold(header, spectra, threshold=threshold, false_alarms=false_alarms)
     # Pass 2: the noise across the field, then of each channel (in units of the noise map).
     spatial = spatial_noise(spectra.step_noise, beam_pixels=beam_fwhm_pixels(header))
-    noise = channel_noise(cube, header, spectra, spatial, threshold=limit.applied,
-                          progress=_stage(report, 0.3, 0.55), **run)
+    if not spatial.measured:  # a field too small for a smooth map: each pixel's own noise
+        spatial = pixel_noise_map(cube, progress=_stage(report, 0.3, 0.35), **run)
+    noise = channel_noise(cube, header, spectra, spatial, threshold=limit.applied, fwhm_pixels=limit.fwhm_pixels,
+                          progress=_stage(report, 0.35, 0.55), **run)
     lines = find_lines(cube, header, spectra, noise, limit, z)
     report(0.62)
-    free = line_free_channels(header.shape[0], lines.channels, noise.summary.flagged)
+    free = line_free_channels(header.shape[0], lines.channels, noise.summary.flagged,
+                              pad_fraction=WING_PAD_FRACTION)
     continuum = leftover_continuum_summary(cube, spectra, free, spatial, beam_pixels=beam_fwhm_pixels(header),
+                                           correlation=noise.summary.channel_correlation,
                                            progress=_stage(report, 0.62, 0.8), **run)
     report(0.8)
     strongest, strongest_notes = None, []

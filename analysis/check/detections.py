@@ -23,17 +23,23 @@ __all__ = [
     "FLAG_SIGMAS",
     "DETECTION_SNR",
     "MIN_PAD_CHANNELS",
+    "WING_PAD_FRACTION",
     "robust_level",
     "flag_channels",
     "edge_level",
     "group_features",
     "line_free_channels",
+    "field_emission",
     "measure_feature",
 ]
 
 FLAG_SIGMAS = 5.0
 DETECTION_SNR = 5.0
 MIN_PAD_CHANNELS = 2
+# The line-free channels of the leftover continuum leave out each feature padded by its own number of
+# channels on each side: a Gaussian line whose run reaches down to 3 sigma of a 50-sigma peak spans
+# +-2.4 of its dispersions; the padding reaches +-7, beyond its wings (issue 13).
+WING_PAD_FRACTION = 1.0
 
 _KMS = u.km / u.s
 
@@ -185,14 +191,50 @@ def group_features(peak_snr, *, threshold=DETECTION_SNR, max_gap=1):
     return features
 
 
-def line_free_channels(n_channels, features, flagged=(), *, min_pad=MIN_PAD_CHANNELS):
+def field_emission(mean, correlation=0.0, *, threshold=DETECTION_SNR):
+    """Features of the field's mean spectrum: emission spread over the field, which the peak spectrum may miss.
+
+    The mean spectrum less its median, over its own noise from the
+    differences of neighbouring channels (1.4826 MAD / sqrt(2 (1 - rho_1)),
+    which broad emission does not reach), grouped as `group_features` does.
+
+    Parameters
+    ----------
+    mean : ndarray, shape (n_channels,)
+    correlation : float
+        Correlation of the noise of neighbouring channels.
+    threshold : float
+
+    Returns
+    -------
+    list of FeatureChannels
+
+    Examples
+    --------
+    >>> v = np.arange(200.0)
+    >>> mean = np.random.default_rng(0).normal(0, 0.01, 200) + 0.2 * np.exp(-0.5 * ((v - 100) / 15) ** 2)
+    >>> [(f.first <= 80, f.last >= 120) for f in field_emission(mean)]
+    [(True, True)]
+    """
+    mean = np.asarray(mean, dtype=float)
+    if mean.size < 4 or not np.isfinite(mean).sum() >= 4:
+        return []
+    steps = np.diff(mean)
+    steps = steps[np.isfinite(steps)]
+    noise = MAD_TO_SIGMA * np.median(np.abs(steps - np.median(steps))) / np.sqrt(2.0 * (1.0 - correlation))
+    if not noise > 0:
+        return []
+    return group_features((mean - np.nanmedian(mean)) / noise, threshold=threshold)
+
+
+def line_free_channels(n_channels, features, flagged=(), *, min_pad=MIN_PAD_CHANNELS, pad_fraction=0.25):
     """Mask of the channels used as line-free: away from every feature, not flagged.
 
-    Rule: each feature's channels are excluded together with a quarter as
-    many channels again on each side (rounded up, at least ``min_pad``): the
-    feature's run already reaches down to the noise floor of the peak
-    spectrum, the padding covers the faint wings. Flagged channels are
-    excluded too.
+    Rule: each feature's channels are excluded together with
+    ``pad_fraction`` (a quarter) as many channels again on each side (rounded
+    up, at least ``min_pad``): the feature's run already reaches down to the
+    noise floor of the peak spectrum, the padding covers the faint wings.
+    Flagged channels are excluded too.
 
     Parameters
     ----------
@@ -200,6 +242,7 @@ def line_free_channels(n_channels, features, flagged=(), *, min_pad=MIN_PAD_CHAN
     features : sequence of FeatureChannels
     flagged : sequence of int
     min_pad : int
+    pad_fraction : float
 
     Returns
     -------
@@ -213,29 +256,62 @@ def line_free_channels(n_channels, features, flagged=(), *, min_pad=MIN_PAD_CHAN
     """
     free = np.ones(n_channels, dtype=bool)
     for feature in features:
-        pad = max(min_pad, -(-feature.n_channels // 4))
+        pad = max(min_pad, int(np.ceil(pad_fraction * feature.n_channels)))
         free[max(0, feature.first - pad):feature.last + pad + 1] = False
     free[np.asarray(flagged, dtype=int)] = False
     return free
 
 
-def measure_feature(channels, frequency, spectrum, *, kind, peak, peak_error, position, continuum):
-    """Measure one feature's frequency and width from its (peak or negated trough) spectrum."""
+def measure_feature(channels, frequency, spectrum, *, kind, peak, peak_error, position, continuum, velocity=None,
+                    likely_cause=None):
+    """Measure one feature's frequency, velocity and width from its (peak or negated trough) spectrum.
+
+    The centre is the centroid of the spectrum above its median over the
+    feature's channels; the width is the feature's number of channels times
+    the channel spacing (in velocity ``c dnu / nu`` at the centre, or the
+    velocity axis's own spacing).
+
+    Parameters
+    ----------
+    channels : FeatureChannels
+    frequency : Quantity [frequency], shape (n_channels,), or None
+        None for a velocity axis without a rest frequency.
+    spectrum : ndarray, shape (n_channels,)
+    velocity : Quantity [velocity], shape (n_channels,), optional
+        The channels' velocities (`HeaderSummary` ``velocity``).
+    kind, peak, peak_error, position, continuum, likely_cause
+        As the `Feature` attributes.
+
+    Returns
+    -------
+    Feature
+    """
     run = slice(channels.first, channels.last + 1)
     values = np.asarray(spectrum, dtype=float)
     floor = np.nanmedian(values)
     weights = np.clip(np.nan_to_num(values[run] - floor), 0, None)
-    f = frequency.to(u.GHz)
-    centre = (np.sum(weights * f[run]) / weights.sum()) if weights.sum() > 0 else f[channels.peak]
-    if len(f) > 1:
-        spacing = np.median(np.abs(np.diff(f))).to(u.MHz)
-    else:
-        spacing = 0 * u.MHz
-    width = (channels.n_channels * spacing).to(u.MHz)
-    return Feature(
-        channels=channels, frequency=centre.to(u.GHz), peak_frequency=f[channels.peak],
-        width_frequency=width, width_velocity=(SPEED_OF_LIGHT * width / centre).to(_KMS),
-        peak=peak, peak_snr=channels.peak_snr, position=tuple(int(p) for p in position), kind=kind,
-        peak_error=peak_error, continuum=continuum,
-    )
 
+    def centroid(axis):
+        return (np.sum(weights * axis[run]) / weights.sum()) if weights.sum() > 0 else axis[channels.peak]
+
+    def spacing(axis):
+        return np.median(np.abs(np.diff(axis))) if len(axis) > 1 else 0 * axis.unit
+
+    centre = peak_frequency = width = width_velocity = None
+    if frequency is not None:
+        f = frequency.to(u.GHz)
+        centre, peak_frequency = centroid(f).to(u.GHz), f[channels.peak]
+        width = (channels.n_channels * spacing(f)).to(u.MHz)
+        width_velocity = (SPEED_OF_LIGHT * width / centre).to(_KMS)
+    at_velocity = peak_velocity = None
+    if velocity is not None:
+        v = velocity.to(_KMS)
+        at_velocity, peak_velocity = centroid(v), v[channels.peak]
+        if width_velocity is None:
+            width_velocity = (channels.n_channels * spacing(v)).to(_KMS)
+    return Feature(
+        channels=channels, frequency=centre, peak_frequency=peak_frequency, width_frequency=width,
+        width_velocity=width_velocity, peak=peak, peak_snr=channels.peak_snr,
+        position=tuple(int(p) for p in position), kind=kind, peak_error=peak_error, continuum=continuum,
+        velocity=at_velocity, peak_velocity=peak_velocity, likely_cause=likely_cause,
+    )

@@ -14,7 +14,7 @@ from astropy.wcs.utils import proj_plane_pixel_scales
 
 from ..beams import beam_area_pixels, cube_beam
 from ..errors import BeamError, SpectralAxisError
-from ..spectral import SPEED_OF_LIGHT, frequency_axis
+from ..spectral import SPEED_OF_LIGHT, frequency_axis, velocity
 from .results import AxisSummary, HeaderSummary
 
 __all__ = ["MIN_PIXELS_PER_BEAM", "header_summary", "beam_fwhm_pixels", "blanked_notes"]
@@ -24,6 +24,8 @@ __all__ = ["MIN_PIXELS_PER_BEAM", "header_summary", "beam_fwhm_pixels", "blanked
 MIN_PIXELS_PER_BEAM = 3.0
 
 _KMS = u.km / u.s
+# Velocity conventions of the FITS spectral axis types (Greisen et al. 2006, A&A 446, 747, table 1).
+VELOCITY_CONVENTIONS = {"VRAD": "radio", "VOPT": "optical", "FELO": "optical", "VELO": "relativistic"}
 
 
 def _frequency_or_none(cube):
@@ -95,6 +97,12 @@ def header_summary(cube):
         )
     if width_v is None and native.unit.is_equivalent(_KMS) and nchan > 1:
         width_v = np.median(np.abs(np.diff(native))).to(_KMS)
+    channel_velocity, convention = None, None
+    if native.unit.is_equivalent(_KMS):
+        channel_velocity = u.Quantity(native).to(_KMS)
+        convention = VELOCITY_CONVENTIONS.get(str(wcs.wcs.ctype[2])[:4])
+    elif frequency is not None and rest_frequency is not None:
+        channel_velocity, convention = velocity(frequency, rest_frequency).to(_KMS), "radio"
 
     beam_major = beam_minor = beam_pa = major_range = minor_range = None
     per_beam = area = None
@@ -135,7 +143,7 @@ def header_summary(cube):
         beam_major=beam_major, beam_minor=beam_minor, beam_pa=beam_pa,
         beam_major_range=major_range, beam_minor_range=minor_range,
         pixel_size=pixel_size, pixels_per_beam=per_beam, beam_area_pixels=area,
-        warnings=tuple(notes),
+        warnings=tuple(notes), velocity=channel_velocity, velocity_convention=convention,
     )
 
 

@@ -21,9 +21,9 @@ import astropy.units as u
 import numpy as np
 
 from ..errors import CubeloupeError
-from .absorption import confirmed_absorption
-from .detections import edge_level, group_features, measure_feature
-from .identification import expected_lines, identify_features
+from .absorption import confirmed_absorption, negative_feature_cause
+from .detections import edge_level, field_emission, group_features, measure_feature
+from .identification import Identification, expected_lines, identify_features
 from .results import LinesSummary
 from .rules import lines_rule, velocity_reference_text
 
@@ -75,46 +75,59 @@ def find_lines(cube, header, spectra, noise, limit, z):
     emission = group_features(snr, threshold=threshold)
     dips = group_features(trough_snr, threshold=threshold)
     relative = noise.summary.spatial.relative if noise.scale is not None else None
-    absorption, confirmed = confirmed_absorption(cube, dips, emission, noise.trough_positions, channel_rms,
-                                                 noise.summary.flagged, threshold=threshold, scale=noise.scale,
-                                                 relative=relative)
-    if len(absorption) < len(dips):
+    confirmed = confirmed_absorption(cube, dips, emission, noise.trough_positions, channel_rms, noise.summary.flagged,
+                                     threshold=threshold, scale=noise.scale, relative=relative)
+    n_dropped = len(dips) - len(confirmed.absorption) - len(confirmed.negative)
+    if n_dropped:
         notes.append(
-            f"{len(dips) - len(absorption)} dip(s) of the trough spectrum not kept as absorption: on the "
-            "spectrum of their pixel, the channels free of features on both sides of them do not stand above "
-            "them by the threshold (the pixel's median level is lifted by emission filling much of the band "
-            "there, or the dip has no such channels on one side, at the end of the band)")
-    tagged = sorted([(ch, "emission") for ch in emission] + [(ch, "absorption") for ch in absorption],
+            f"{n_dropped} dip(s) of the trough spectrum not kept: on the spectrum of their pixel, the channels "
+            "free of features on both sides of them do not stand above them by the threshold (the pixel's median "
+            "level is lifted by emission filling much of the band there, or the dip has no such channels on one "
+            "side, at the end of the band)")
+    tagged = sorted([(ch, "emission") for ch in emission] + [(ch, "absorption") for ch in confirmed.absorption],
                     key=lambda pair: -pair[0].peak_snr)
     notes.extend(_threshold_notes(limit))
 
     def measured(channels, kind):
-        """The feature of ``channels`` in the emission or absorption spectrum, with its intensity and error."""
+        """The feature of ``channels`` in the emission or trough spectrum, with its intensity and error."""
         k = channels.peak
-        if kind == "absorption":
-            depth, error, level = confirmed[(channels.first, channels.last)]
+        if kind != "emission":
+            depth, error, level = confirmed.measured[(channels.first, channels.last)]
             return measure_feature(channels, frequency, -noise.troughs.value, kind=kind, peak=-depth,
-                                   peak_error=error, position=tuple(noise.trough_positions[k]), continuum=level)
+                                   peak_error=error, position=tuple(noise.trough_positions[k]), continuum=level,
+                                   velocity=header.velocity, likely_cause=cause if kind == "negative" else None)
         y, x = (int(i) for i in noise.peak_positions[k])
         # the S/N spectra were divided by scale: back to the pixel's own intensity and noise
         at_scale = 1.0 if noise.scale is None else float(noise.scale[y, x])
         at_relative = 1.0 if relative is None else float(relative[y, x])
         return measure_feature(channels, frequency, noise.peaks.value, kind=kind, peak=noise.peaks[k] * at_scale,
                                peak_error=channel_rms[k] * at_relative * limit.widening, position=(y, x),
-                               continuum=spectra.continuum_level[y, x])
+                               continuum=spectra.continuum_level[y, x], velocity=header.velocity)
 
-    features, solved_z, expected = (), None, ()
-    if frequency is not None and tagged:
-        built = [measured(ch, kind) for ch, kind in tagged]
+    cause = negative_feature_cause(header.unit)
+    negative = tuple(measured(ch, "negative") for ch in sorted(confirmed.negative, key=lambda c: -c.peak_snr))
+    if negative:
+        notes.append(f"{len(negative)} negative feature(s) where there is no continuum to absorb (not absorption): "
+                     f"most likely {cause}; see the lines section")
+    features, solved_z, expected, local_z, redshift_note, redshift_options = (), None, (), None, None, ()
+    built = [measured(ch, kind) for ch, kind in tagged]
+    if frequency is not None and built:
         try:
-            candidates, solved_z = identify_features([f.frequency for f in built], [f.width_velocity for f in built],
-                                                     z, header.channel_width_velocity)
+            found = identify_features([f.frequency for f in built], [f.width_velocity for f in built], z,
+                                      header.channel_width_velocity, rest_frequency=header.rest_frequency)
         except CubeloupeError as exc:
             notes.append(f"line identification failed: {exc}")
-            candidates = [()] * len(built)
-        features = tuple(replace(f, candidates=c) for f, c in zip(built, candidates))
-    elif tagged:
-        notes.append("detections cannot be placed in frequency (no rest frequency for the velocity axis)")
+            found = Identification([()] * len(built))
+        features = tuple(replace(f, candidates=c) for f, c in zip(built, found.candidates))
+        solved_z, local_z, redshift_note = found.solved_z, found.local_z, found.redshift_note
+        redshift_options = found.redshift_options
+        if redshift_note is not None:
+            notes.append(redshift_note)
+    elif built:
+        features = tuple(built)
+        notes.append("detections are given in velocity only: the spectral axis is a velocity and the header has "
+                     "no rest frequency, so they cannot be placed in frequency or identified (give the rest "
+                     "frequency to identify them)")
     if z is not None and frequency is not None:
         expected = expected_lines(header.band, z, features)
     if solved_z is not None:
@@ -128,9 +141,14 @@ def find_lines(cube, header, spectra, noise, limit, z):
         resolution_elements=limit.resolution_elements,
         velocity_reference=velocity_reference_text(header.spectral_frame),
         trough_spectrum=noise.troughs, trough_snr=trough_snr,
-        absorption_edge_level=edge_level(trough_snr, threshold),
+        absorption_edge_level=edge_level(trough_snr, threshold), local_z=local_z, redshift_note=redshift_note,
+        negative_features=negative, redshift_options=redshift_options,
     )
-    return FoundLines(summary, [ch for ch, _ in tagged], notes)
+    # emission spread over the field, seen in its mean spectrum, is no line-free channel either
+    spread = field_emission(noise.field_mean, noise.summary.channel_correlation or 0.0, threshold=threshold) \
+        if noise.field_mean is not None else []
+    summary = replace(summary, field_emission_channels=tuple((int(f.first), int(f.last)) for f in spread))
+    return FoundLines(summary, [ch for ch, _ in tagged] + list(confirmed.negative) + list(spread), notes)
 
 
 def _threshold_notes(limit):

@@ -27,12 +27,13 @@ from numpy.polynomial import legendre
 from scipy.ndimage import binary_erosion
 from scipy.stats import f as f_distribution
 
-from ..blocks import plane_blocks, run_blocks
+from ..blocks import plane_blocks, run_blocks, spectra_blocks
 from ..errors import CubeloupeError
 from ..noise import MAD_TO_SIGMA
-from ..row_statistics import median_rows, row_extremes, row_medians
+from ..row_statistics import row_extremes, row_medians
+from .grid_noise import MAD_EFFICIENCY, channel_rms_from_grid, grid_noise_statistics, row_mads
 
-__all__ = ["SpatialNoise", "spatial_noise", "NoiseScaledExtremes", "noise_scaled_extremes"]
+__all__ = ["SpatialNoise", "spatial_noise", "pixel_noise_map", "NoiseScaledExtremes", "noise_scaled_extremes"]
 
 # The noise map follows the method of background and rms maps of survey images: a mesh of
 # boxes, a robust value per box, a smooth surface through them (Bertin & Arnouts 1996, A&AS
@@ -106,6 +107,9 @@ class SpatialNoise:
         Side of the boxes, in pixels.
     n_boxes : int
         Boxes behind the fit (after outliers were left out).
+    per_pixel : bool
+        The map is each pixel's own noise (`pixel_noise_map`, for fields too
+        small for a smooth map), relative to the median pixel's.
     """
 
     relative: np.ndarray
@@ -119,6 +123,7 @@ class SpatialNoise:
     degree: int
     box_pixels: int
     n_boxes: int
+    per_pixel: bool = False
 
     @property
     def measured(self):
@@ -325,6 +330,80 @@ def spatial_noise(pixel_noise, *, beam_pixels=None):
     )
 
 
+# --------------------------------------------------------------------------- each pixel's own noise
+
+
+def _pixel_step_mads(data):
+    """Kernel over blocks of spectra: the MAD of each pixel's differences between neighbouring channels."""
+    flat = data.reshape(data.shape[0], -1)
+    steps = np.ascontiguousarray((flat[1:] - flat[:-1]).T)
+    return {"mad": row_mads(steps), "n": np.isfinite(steps).sum(axis=1)}
+
+
+def pixel_noise_map(cube, *, client=None, progress=None, cancel=None):
+    """Each pixel's own noise, from the differences of all its neighbouring channels, relative to the median pixel's.
+
+    For fields too small for the smooth map of `spatial_noise` (a few
+    pixels by a few tens, as single-dish maps of one source often are), so
+    that each pixel is still judged against its own noise: a noisier edge
+    row then makes no detection. The differences between neighbouring
+    channels cancel continuum and any line broader than a few channels, so
+    the estimate is that of the pixel's line-free noise; 1.4826 x their MAD
+    (robust against the few channels at a line's edges). The common factor
+    of channel correlation cancels in the ratio to the median pixel. One pass
+    over the cube in blocks of spectra (`blocks.spectra_blocks`).
+
+    Parameters
+    ----------
+    cube : SpectralCube
+    client, progress, cancel
+        As for `blocks.run_blocks`.
+
+    Returns
+    -------
+    SpatialNoise
+        ``per_pixel`` True; ``relative`` is 1 at the median pixel and NaN
+        where there are no data; ``relative_error`` is the standard error
+        of each pixel's log noise (the MAD of n values scatters by 1.1664 /
+        sqrt(n), Rousseeuw & Croux 1993, JASA 88, 1273, here with n halved
+        because neighbouring differences share a channel); ``p_value`` is None.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(1)
+    >>> data = rng.normal(0.0, 1.0, (400, 6, 20))
+    >>> data[:, 0] *= 3  # a noisier edge row
+    >>> found = pixel_noise_map(SpectralCube(data * u.K, wcs=small_wcs))  # doctest: +SKIP
+    """
+    n_chan, ny, nx = cube.shape
+    mad = np.full((ny, nx), np.nan)
+    count = np.zeros((ny, nx))
+
+    def consume(block, result):
+        shape = (block.rows.stop - block.rows.start, block.columns.stop - block.columns.start)
+        mad[block.rows, block.columns] = result["mad"].reshape(shape)
+        count[block.rows, block.columns] = result["n"].reshape(shape)
+
+    run_blocks(cube, _pixel_step_mads, spectra_blocks(cube.shape, itemsize=4), consume, dtype=np.float32,
+               client=client, progress=progress, cancel=cancel)
+    has_data = np.isfinite(mad) & (mad > 0)
+    if not has_data.any():
+        raise CubeloupeError(f"no pixel of the {cube.shape} cube has data in two neighbouring channels; "
+                             "there is no noise to measure")
+    relative = np.where(has_data, mad / np.median(mad[has_data]), np.nan)
+    with np.errstate(divide="ignore"):
+        error = np.where(has_data, MAD_EFFICIENCY * np.sqrt(2.0 / np.maximum(count, 1)), 0.0)
+    edge = has_data & ~binary_erosion(has_data, border_value=0)
+    quietest = np.unravel_index(np.nanargmin(relative), relative.shape)
+    highest = float(np.nanmax(relative))
+    return SpatialNoise(
+        relative=relative, relative_error=error, varies=False, primary_beam_corrected=False,
+        edge_to_centre=float(np.median(relative[edge])) if edge.any() else 1.0, highest=highest,
+        quietest=tuple(int(i) for i in quietest), p_value=None, degree=0, box_pixels=1,
+        n_boxes=int(has_data.sum()), per_pixel=True,
+    )
+
+
 @dataclass(frozen=True)
 class NoiseScaledExtremes:
     """Result of `noise_scaled_extremes`: per channel, the extremes of the data in units of each pixel's noise.
@@ -338,9 +417,13 @@ class NoiseScaledExtremes:
     positions, trough_positions : ndarray of int, shape (n_channels, 2)
         ``(y, x)`` of each; -1 for blank channels.
     rms : Quantity, shape (n_channels,)
-        Robust rms (1.4826 x MAD about the channel's median) of
-        ``data / relative`` over a regular grid of pixels: the rms of the
-        quietest part of the field, measured over the whole field.
+        Robust rms of ``data / relative`` over a regular grid of pixels
+        (`grid_noise.channel_rms_from_grid`: 1.4826 x MAD about the
+        channel's median, or from the differences with the neighbouring
+        channels where emission lifts that): the rms of the quietest part of
+        the field, measured over the whole field.
+    grid : GridNoise or None
+        How ``rms`` was measured.
     """
 
     peaks: u.Quantity
@@ -348,6 +431,7 @@ class NoiseScaledExtremes:
     troughs: u.Quantity
     trough_positions: np.ndarray
     rms: u.Quantity
+    grid: object = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -370,33 +454,12 @@ class _NoiseScaledExtremes:
         np.subtract(values, self.level, out=values)
         np.multiply(values, self.inverse, out=values)
         peak, where, trough, where_low, _ = row_extremes(values, count=False)
-        return {"peak": peak, "where": where, "trough": trough, "where_low": where_low, "mad": _row_mads(grid)}
+        return {"peak": peak, "where": where, "trough": trough, "where_low": where_low,
+                **grid_noise_statistics(grid)}
 
 
-def _row_mads(values):
-    """Median absolute deviation from the median of each row (the statistics of noise.py), blanks left out.
-
-    Rows without blanks use the fast median (`row_statistics.median_rows`,
-    which reorders each row in place: ``values`` must be the caller's copy).
-    """
-
-    mad = np.full(values.shape[0], np.nan)
-    finite = np.isfinite(values)
-    full = finite.all(axis=1)
-    if full.any():
-        rows = values if full.all() else values[full]
-        median = median_rows(rows)
-        mad[full] = median_rows(np.abs(rows - median[:, None]))
-    mixed = ~full & finite.any(axis=1)
-    if mixed.any():
-        rows = values[mixed]
-        median = np.nanmedian(rows, axis=1)
-        mad[mixed] = np.nanmedian(np.abs(rows - median[:, None]), axis=1)
-    return mad
-
-
-def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None, stride=1, client=None,
-                          progress=None, cancel=None):
+def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None, stride=1, pixels_per_sample=1.0,
+                          client=None, progress=None, cancel=None):
     """Per channel: highest and lowest ``(data - level) / scale`` over the field, and the robust rms of the field.
 
     One read of the cube in blocks of whole channel images (`blocks.plane_blocks`,
@@ -421,6 +484,9 @@ def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None,
         pixels with significant continuum, as for the uniform-noise rms).
     stride : int
         The rms uses every ``stride``-th pixel of every ``stride``-th row.
+    pixels_per_sample : float
+        Grid pixels per independent noise sample (see
+        `grid_noise.channel_rms_from_grid`).
     client, progress, cancel
         As for `blocks.run_blocks`.
 
@@ -454,13 +520,19 @@ def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None,
         level=np.where(usable, level, 0.0).astype(np.float32), inverse=inverse.astype(np.float32),
         sample=sample,
         grid_inverse=(1.0 / relative.ravel()[sample]).astype(np.float32))
-    columns = {name: np.full(n_chan, np.nan) for name in ("peak", "trough", "mad")}
+    columns = {name: np.full(n_chan, np.nan) for name in ("peak", "trough")}
     where = {name: np.full(n_chan, -1, dtype=int) for name in ("where", "where_low")}
+    noise = {"mad": np.full(n_chan, np.nan), "step_mad": np.full(max(n_chan - 1, 0), np.nan),
+             "lag2_mad": np.full(max(n_chan - 2, 0), np.nan),
+               "curvature_mad": np.full(max(n_chan - 2, 0), np.nan), "n_pixels": np.zeros(n_chan),
+             "total": np.zeros(n_chan)}
 
     def consume(block, result):
         (start, stop), = block.runs
         for name, values in (*columns.items(), *where.items()):
             values[start:stop] = result[name]
+        for name, values in noise.items():
+            values[start:start + len(result[name])] = result[name]
 
     blocks = plane_blocks(cube.shape, itemsize=4)
     run_blocks(cube, kernel, blocks, consume, dtype=np.float32, client=client, progress=progress, cancel=cancel)
@@ -472,8 +544,9 @@ def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None,
         position = np.column_stack([where[name] // nx, where[name] % nx])
         position[blank] = -1
         out.extend([u.Quantity(values, unit), position])
+    grid_noise = channel_rms_from_grid(**noise, pixels_per_sample=pixels_per_sample)
     return NoiseScaledExtremes(peaks=out[0], positions=out[1], troughs=out[2], trough_positions=out[3],
-                               rms=u.Quantity(MAD_TO_SIGMA * columns["mad"], unit))
+                               rms=u.Quantity(grid_noise.rms, unit), grid=grid_noise)
 
 
 # --------------------------------------------------------------------------- the check

@@ -93,6 +93,13 @@ class HeaderSummary:
     blanked_fraction : ndarray, shape (n_channels,) or None
         Fraction of NaN pixels per channel; filled in by the noise pass.
     warnings : tuple of str
+    velocity : Quantity [km/s], shape (n_channels,), or None
+        Channel centres as velocities: the cube's own velocity axis, or for
+        a frequency axis radio velocities from the header's rest frequency;
+        None for a frequency axis without one.
+    velocity_convention : str or None
+        The convention of ``velocity`` (``'radio'``, ``'optical'`` or
+        ``'relativistic'``), as the header's spectral axis type says.
     """
 
     shape: tuple
@@ -114,6 +121,8 @@ class HeaderSummary:
     beam_area_pixels: object
     blanked_fraction: object = None
     warnings: tuple = ()
+    velocity: object = None
+    velocity_convention: object = None
 
 
 
@@ -176,6 +185,14 @@ class NoiseSummary:
         When the noise varies: whether the same map made from each pixel's
         standard deviation over the line-free channels varies too (a check
         that the variation is not line emission); None otherwise.
+    plain_rms : Quantity, shape (n_channels,) or None
+        1.4826 x MAD over the channel's pixels, before emission was allowed
+        for (`grid_noise.channel_rms_from_grid`).
+    from_differences : ndarray of bool, shape (n_channels,) or None
+        Channels whose ``channel_rms`` comes from the differences with their
+        neighbours, because emission lifts their plain rms.
+    channel_correlation : float or None
+        Correlation of the noise of neighbouring channels.
     """
 
     channel_rms: u.Quantity
@@ -186,6 +203,9 @@ class NoiseSummary:
     rms_region: str = "the whole field"
     spatial_rule: str = ""
     varies_in_line_free_channels: object = None
+    plain_rms: object = None
+    from_differences: object = None
+    channel_correlation: object = None
 
     @property
     def noise_map(self):
@@ -259,9 +279,10 @@ class Feature:
     Attributes
     ----------
     channels : FeatureChannels
-    frequency : Quantity [GHz]
-        Centroid of the peak (or trough) spectrum over the feature's channels.
-    peak_frequency : Quantity [GHz]
+    frequency : Quantity [GHz] or None
+        Centroid of the peak (or trough) spectrum over the feature's
+        channels; None for a velocity axis without a rest frequency.
+    peak_frequency : Quantity [GHz] or None
         Frequency of the channel of highest S/N.
     width_frequency, width_velocity : Quantity [MHz], [km/s]
         Full extent of the feature's channels (velocity: ``c dnu / nu``).
@@ -278,7 +299,8 @@ class Feature:
     candidates : tuple of Candidate
         Best first.
     kind : str
-        ``'emission'`` or ``'absorption'``.
+        ``'emission'``, ``'absorption'`` (a dip against continuum) or
+        ``'negative'`` (a dip where there is no continuum to absorb).
     peak_error : Quantity or None
         Standard error of ``peak``: the channel's rms at that pixel (times
         the relative noise there when the noise varies across the field),
@@ -288,6 +310,12 @@ class Feature:
         over the channel subsample, for absorption the local continuum on
         both sides of it; an absorption's depth over it is the fraction
         absorbed.
+    velocity, peak_velocity : Quantity [km/s] or None
+        Centroid and peak-channel velocity on the cube's velocity axis (its
+        own convention), or radio velocities from the header's rest
+        frequency for a frequency axis; None without either.
+    likely_cause : str or None
+        For a negative feature, its likely cause in words.
     """
 
     channels: FeatureChannels
@@ -302,11 +330,14 @@ class Feature:
     kind: str = "emission"
     peak_error: object = None
     continuum: object = None
+    velocity: object = None
+    peak_velocity: object = None
+    likely_cause: object = None
 
     @property
     def depth(self):
-        """Depth of an absorption below the continuum level (``-peak``); None for emission."""
-        return -self.peak if self.kind == "absorption" else None
+        """Depth of a dip below the continuum level (``-peak``); None for emission."""
+        return None if self.kind == "emission" else -self.peak
 
 
 @dataclass(frozen=True)
@@ -369,6 +400,22 @@ class LinesSummary:
         ``-trough_spectrum / channel_rms``: positive for a dip.
     absorption_edge_level : float or None
         Smoothed trough S/N bounding the absorption features.
+    local_z : float or None
+        The redshift of the velocity axis: the header's rest frequency (a
+        catalog line) moved onto the strongest detection; identifications
+        are then made at it first.
+    redshift_note : str or None
+        Why no redshift was solved from two or more detections.
+    negative_features : tuple of Feature
+        Dips below zero where there is no continuum to absorb (``kind``
+        ``'negative'``, with ``likely_cause``); not in ``features``.
+    redshift_options : tuple of (float, tuple of str)
+        When several redshifts fit the detections equally well (none
+        solved): each z and the lines it gives them, lowest-lying first.
+    field_emission_channels : tuple of (int, int)
+        First and last channels of the features of the field's mean
+        spectrum (emission spread over the field; `detections.field_emission`),
+        kept out of the line-free channels.
 
     With a noise varying across the field (`NoiseSummary` ``spatial``),
     ``peak_spectrum`` and ``trough_spectrum`` hold the extremes of each
@@ -396,6 +443,11 @@ class LinesSummary:
     trough_spectrum: object = None
     trough_snr: object = None
     absorption_edge_level: object = None
+    local_z: object = None
+    redshift_note: object = None
+    negative_features: tuple = ()
+    redshift_options: tuple = ()
+    field_emission_channels: tuple = ()
 
 
 @dataclass(frozen=True)

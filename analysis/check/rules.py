@@ -9,7 +9,7 @@ Examples
 True
 """
 
-from .detections import FLAG_SIGMAS, MIN_PAD_CHANNELS
+from .detections import FLAG_SIGMAS
 from .identification import IDENTIFY_TOLERANCE
 from .noise_map import (
     DEGREE_P_VALUE,
@@ -24,15 +24,19 @@ from .noise_map import (
 __all__ = ["FLAG_RULE", "CONTINUUM_RULE", "SPATIAL_RULE", "lines_rule", "velocity_reference_text"]
 
 FLAG_RULE = (
-    "Flagged channels: robust rms differing from the median channel rms by more than "
-    f"{FLAG_SIGMAS:g} times the robust scatter (1.4826 x MAD) of the channel rms values, "
-    "or wholly blanked."
+    "Channel rms: 1.4826 x the median absolute deviation over the channel's pixels (a regular grid of them), or, "
+    "where that stands 3 standard errors above it (emission over the field lifts it), the rms from the "
+    "differences with the neighbouring channels, corrected for their correlation; for images of fewer than 4096 "
+    "independent pixels the running median over enough neighbouring channels. Flagged channels: both the plain "
+    "and the difference-based rms differing from the median of their values over the band by more than "
+    f"{FLAG_SIGMAS:g} times their robust scatter (1.4826 x MAD), or wholly blanked."
 )
 CONTINUUM_RULE = (
-    "Leftover continuum: mean over the line-free channels (all channels except flagged ones and "
-    "each detection padded on both sides by a quarter of its number of channels, at least "
-    f"{MIN_PAD_CHANNELS}) in each pixel; significance = mean / (the pixel's standard deviation over "
-    "those channels / sqrt(n)), for independent channels."
+    "Leftover continuum: mean over the line-free channels in each pixel: all channels except flagged ones, each "
+    "detection (emission, absorption or negative) padded on both sides by its own number of channels (its wings), "
+    "and the features of the field's mean spectrum (emission spread over the field); significance = mean / (the "
+    "pixel's standard deviation over those channels / sqrt(n)), widened by sqrt(1 + 2 sum_L rho_L) for the "
+    "correlation rho of neighbouring channels (measured from the lag-1 and lag-2 channel differences)."
 )
 
 

@@ -5,6 +5,7 @@ import json
 import astropy.units as u
 import numpy as np
 import pytest
+from astropy.io import fits
 from astropy.tests.helper import assert_quantity_allclose
 
 from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube
@@ -72,10 +73,14 @@ def test_peak_snr_matches_the_injected_peak_over_noise(two_line_check):
     assert with_z.lines.features[0].peak_snr == pytest.approx(12, abs=3)
 
 
-def test_redshift_solved_without_z_from_two_lines(two_line_check):
+def test_two_lines_without_z_offer_the_redshift_but_do_not_solve_it(two_line_check):
+    """Regression test for #13: two lines fit many catalog pairs equally well; z is an option, not a solution."""
     _, without_z = two_line_check
-    assert without_z.lines.solved_z == pytest.approx(Z, abs=2e-4)  # 2e-4 in z is 20 km/s at z = 2
-    assert [f.candidates[0].name for f in without_z.lines.features] == ["CO J=7-6", "[CI] 3P2-3P1"]
+    assert without_z.lines.solved_z is None
+    assert "redshift not constrained" in without_z.lines.redshift_note
+    # the pair at z = 2 is among the redshifts offered (2e-4 in z is 20 km/s at z = 2)
+    assert any(z == pytest.approx(Z, abs=2e-4) and set(lines) == {"CO J=7-6", "[CI] 3P2-3P1"}
+               for z, lines in without_z.lines.redshift_options), without_z.lines.redshift_options
     assert without_z.lines.expected == ()
 
 
@@ -207,17 +212,45 @@ def test_demo_cubes_rms_within_ten_percent(demo_checks):
         assert_quantity_allclose(result.noise.cube_rms, truth["rms"], rtol=0.10, err_msg=name)
 
 
+def _plain_peak_snr(name, frequency, centres, centre):
+    """A line's peak S/N worked out with numpy alone, at the pixel where all the injected lines are brightest.
+
+    The pixel: the maximum of the sum of the channel images within a channel of every injected line
+    (less each pixel's median); there, the highest of the line's three channels less the pixel's
+    median, over the pixel's standard deviation on channels more than 10 channels from every line.
+    """
+    from cubeloupe.analysis.demo import demo_path
+
+    data = np.squeeze(fits.getdata(demo_path(name))).astype(float)
+    data = data - np.nanmedian(data, axis=0)
+    near = np.zeros(len(frequency), dtype=bool)
+    far = np.ones(len(frequency), dtype=bool)
+    for f in centres:
+        k = int(np.argmin(np.abs(frequency - f)))
+        near[max(0, k - 1):k + 2] = True
+        far[max(0, k - 10):k + 11] = False
+    y, x = np.unravel_index(np.nanargmax(np.nansum(data[near], axis=0)), data.shape[1:])
+    k = int(np.argmin(np.abs(frequency - centre)))
+    return float(np.nanmax(data[max(0, k - 1):k + 2, y, x]) / np.nanstd(data[far, y, x]))
+
+
 def test_demo_cubes_injected_lines_detected_and_identified(demo_checks):
     for name, (truth, result) in demo_checks.items():
         frequency = result.header.frequency.to(u.GHz)
         spacing = np.median(np.abs(np.diff(frequency)))
         for line_name, centre, _ in _injected(truth):
+            # a line injected at the detection limit (one sigma of it) is found or not by chance
+            centres = [c for _, c, _ in _injected(truth)]
+            if _plain_peak_snr(name, frequency, centres, centre) < result.lines.effective_threshold + 1:
+                continue
             # a detection whose channels (give or take one) cover the injected frequency
             hits = [f for f in result.lines.features
                     if min(frequency[f.channels.first], frequency[f.channels.last]) - spacing <= centre
                     <= max(frequency[f.channels.first], frequency[f.channels.last]) + spacing]
             assert hits, f"{name}: {line_name} at {centre:.5f} not detected"
-            assert any(f.candidates and f.candidates[0].name == line_name for f in hits), \
+            # among the first three: the components of a rotating disk lie +-100 km/s from the systemic
+            # velocity given as z, where another catalog line may lie nearer (candidates come nearest first)
+            assert any(line_name in [c.name for c in f.candidates[:3]] for f in hits), \
                 f"{name}: {line_name} detected but identified as {[c.name for f in hits for c in f.candidates]}"
 
 
@@ -270,7 +303,8 @@ def test_pure_noise_detections_match_the_expected_false_alarm_count(tmp_path):
         data = correlated_noise((100, 48, 48), rng=rng, fwhm_pixels=4.0)
         result = check_cube(open_cube(write_cube(tmp_path / f"n{seed}.fits", data)), threshold=1.0,
                             false_alarms=3.0)
-        counts.append(len(result.lines.features))
+        # both signs share the allowance; dips of pure noise are negative features (no continuum)
+        counts.append(len(result.lines.features) + len(result.lines.negative_features))
         assert result.lines.effective_threshold > 4.0
     assert 0.5 * 36 <= sum(counts) <= 1.3 * 36, counts
 
