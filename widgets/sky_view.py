@@ -31,8 +31,8 @@ __all__ = ["SkyView", "TOOLS", "MAX_WIDTH"]
 # Sizes on screen (px). The plot area's longer side is MAX_PLOT_SIDE; the figure adds fixed margins
 # for the tick labels and axis titles, so the plot area, not the whole figure, gets the map's shape.
 MAX_PLOT_SIDE = 300
-FIGURE_MARGIN = {"top": 8, "bottom": 42, "left": 58, "right": 14}
-COLORBAR_WIDTH = 84
+FIGURE_MARGIN = {"top": 8, "bottom": 42, "left": 58, "right": 10}
+COLORBAR_WIDTH = 88
 # The sky column beside the spectrum in a ~1 000 px notebook: figure plus colour bar.
 MAX_WIDTH = 460
 # Room one tick label needs along each axis (px), so narrow maps get fewer ticks.
@@ -162,7 +162,7 @@ class SkyView(w.VBox):
         self.bar_image = ImageGL(image=np.zeros((2, 1), np.float32),
                                   scales={"x": LinearScale(min=0, max=1), "y": self._bar_scale,
                                           "image": self.color_scale}, x=(0, 1))
-        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="48px",
+        self._bar_axis = Axis(scale=self._bar_scale, side="right", label="", label_offset="46px",
                               grid_lines="none")
         self.colorbar = Figure(marks=[self.bar_image], axes=[self._bar_axis], padding_x=0, padding_y=0,
                                fig_margin={"top": FIGURE_MARGIN["top"], "bottom": FIGURE_MARGIN["bottom"],
@@ -193,7 +193,7 @@ class SkyView(w.VBox):
             options=[(label, key) for key, (label, _, _) in TOOLS.items()],
             tooltips=[tip for _, _, tip in TOOLS.values()],
             icons=[icon for _, icon, _ in TOOLS.values()],
-            style=w.ToggleButtonsStyle(button_width="78px"))
+            style=w.ToggleButtonsStyle(button_width="86px"))
         self.tool_buttons.add_class("cubeloupe-region-tools")
         w.link((self.tool_buttons, "value"), (self, "tool"))
         self.close_outline_button = w.Button(description="Close outline", icon="check",

@@ -224,35 +224,36 @@ def test_oval_drag_adds_elliptical_region(tools):
 
     choose(suite, "cubeloupe-region-tools", "Oval")
     sky = SkyArea(suite, nx, ny)
-    # The press marks the oval's centre; the release is a point on it, and the oval keeps the
-    # drag's aspect ratio (BrushEllipseSelector of bqplot-image-gl, its docstring). Through
-    # (dx, dy) with semi-axes in the ratio dx:dy, the semi-axes are sqrt(2) dx and sqrt(2) dy.
-    centre = (0.45, 0.55)  # fractions of the plot from the top left
-    drag = (0.10, 0.06)
-    start = (sky.left + centre[0] * sky.width, sky.top + centre[1] * sky.height)
+    # Dragged corner to corner like the box (issue #17): the oval fills the dragged box.
+    corner = (0.40, 0.50)  # fractions of the plot from the top left
+    drag = (0.20, 0.12)
+    start = (sky.left + corner[0] * sky.width, sky.top + corner[1] * sky.height)
     end = (start[0] + drag[0] * sky.width, start[1] + drag[1] * sky.height)
     lab.drag(start, end, steps=15)
 
     wait_until(lambda: len(spectrum_curves(spectrum)) > curves_before, "a new spectrum line")
     region = new_region(lab, names_before)
     assert region["kind"] == "oval"
-    expected_centre = sky.pixel(*start)
-    expected_size = (2 * math.sqrt(2) * drag[0] * nx, 2 * math.sqrt(2) * drag[1] * ny)
+    expected_centre = sky.pixel((start[0] + end[0]) / 2, (start[1] + end[1]) / 2)
+    expected_size = (drag[0] * nx, drag[1] * ny)
     assert region["centre"] == pytest.approx(expected_centre, abs=sky.tolerance)
     assert region["size"] == pytest.approx(expected_size, abs=2 * sky.tolerance)
     # No rotation was drawn; an oval turned by 180 degrees is the same oval.
     assert (region["angle"] + 90) % 180 - 90 == pytest.approx(0.0, abs=0.5)
     assert_region_shown(lab, suite, region, curves_before)
-    # The region's outline on the sky covers the oval drawn with the mouse.
+    # The region's outline on the sky touches the four sides of the box dragged with the mouse.
+    # Asking the kernel scrolled the page: the dragged corners are placed again on the plot as it is now.
+    corners = [sky.pixel(*start), sky.pixel(*end)]
+    sky = SkyArea(suite, nx, ny)
+    (left, top), (right, bottom) = (sky.page(*corner) for corner in corners)
     sky_figure = suite.locator(".cubeloupe-sky-figure")
-    oval = sky_figure.locator("ellipse").last.bounding_box()
     outlines = drawn_lines(sky_figure, region["color"])
     assert len(outlines) == 1, f"expected one outline in the region's colour, found {outlines}"
     outline = outlines[0]
     assert [outline["left"], outline["right"]] == pytest.approx(
-        [oval["x"], oval["x"] + oval["width"]], abs=PIXEL_TOLERANCE + 1.5)  # + the outline's stroke
+        [left, right], abs=PIXEL_TOLERANCE + 1.5)  # + the outline's stroke
     assert [outline["top"], outline["bottom"]] == pytest.approx(
-        [oval["y"], oval["y"] + oval["height"]], abs=PIXEL_TOLERANCE + 1.5)
+        [top, bottom], abs=PIXEL_TOLERANCE + 1.5)
     snapshot(lab, suite, "tools-01-oval-region")
     assert lab.console_errors == []
 
