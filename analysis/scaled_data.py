@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 from spectral_cube import LazyMask
 
-__all__ = ["IntegerScaling", "integer_scaling", "scaled_cube"]
+__all__ = ["IntegerScaling", "integer_scaling", "scaled_chunks", "scaled_cube"]
 
 
 @dataclass(frozen=True)
@@ -80,6 +80,20 @@ def integer_scaling(header, stored_dtype):
     return None
 
 
+def scaled_chunks(shape, itemsize, target_bytes=2 * 2**20):
+    """Chunk shape (channel, y, x) of about ``target_bytes``: 32 channels and square tiles of the image.
+
+    Examples
+    --------
+    >>> scaled_chunks((1000, 512, 512), 4)
+    (32, 128, 128)
+    """
+    n_chan, ny, nx = shape
+    channels = min(n_chan, 32)
+    side = max(16, int(np.sqrt(target_bytes / (itemsize * channels))))
+    return (channels, min(ny, side), min(nx, side))
+
+
 def scaled_cube(cube, scaling):
     """A dask-backed cube whose values are ``scaling`` applied, block by block, to ``cube``'s stored values.
 
@@ -87,7 +101,9 @@ def scaled_cube(cube, scaling):
     beams, WCS and metadata are kept, and its mask becomes "finite after
     scaling" (blanks are NaN).
     """
-    stored = cube._data
+    # Small chunks (about 2 MB once scaled): a channel image or a region's box
+    # then scales only the chunks it touches, never the whole cube.
+    stored = cube._data.rechunk(scaled_chunks(cube._data.shape, np.dtype(scaling.dtype).itemsize))
     data = stored.map_blocks(scaling.apply, dtype=np.dtype(scaling.dtype))
     mask = LazyMask(np.isfinite, data=data, wcs=cube._wcs)
     return cube._new_cube_with(data=data, mask=mask)

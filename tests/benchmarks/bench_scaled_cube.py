@@ -1,0 +1,95 @@
+"""Benchmark: integer (BITPIX 16, BSCALE/BZERO/BLANK) cubes against their float copy.
+
+Run on demand: ``python tests/benchmarks/bench_scaled_cube.py [--channels 400]``.
+
+Writes a 256 x 256 x N int16 cube and its float32 copy (the same physical
+values) to a temporary folder, warms the page cache, and prints in one run,
+each as a ratio to one ``np.nansum`` pass over the float copy's memory map
+(the baseline):
+
+* `moment_maps` over a window of half the band, int16 and float32;
+* `region_spectrum` of a 20 x 20-pixel box, int16 and float32;
+* the peak of Python allocations (tracemalloc) while opening the int16 cube
+  and making its moment maps, against the size of one float32 copy of the
+  cube: integer data are scaled block by block, never as a whole.
+
+The temporary folder is deleted at the end.
+"""
+
+import argparse
+import shutil
+import statistics
+import sys
+import tempfile
+import time
+import tracemalloc
+import warnings
+from pathlib import Path
+
+import astropy.units as u
+import numpy as np
+from regions import PixCoord, RectanglePixelRegion
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/, for cubefactory
+
+from cubefactory import frequency_axis_hz, write_cube, write_scaled_int_cube  # noqa: E402
+from cubeloupe.analysis import moment_maps, open_cube, region_spectrum  # noqa: E402
+
+
+def median_time(func, repeats):
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        func()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def main():
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--channels", type=int, default=400)
+    parser.add_argument("--size", type=int, default=256)
+    parser.add_argument("--repeats", type=int, default=3)
+    args = parser.parse_args()
+    rng = np.random.default_rng(7)
+    shape = (args.channels, args.size, args.size)
+    folder = Path(tempfile.mkdtemp(prefix="bench_scaled_"))
+    try:
+        data = rng.normal(0.0, 1.0, size=shape).astype(np.float32)
+        data[:, :8, :] = np.nan  # a blanked border
+        int_path, values = write_scaled_int_cube(folder / "int16.fits", data, bzero=0.0)
+        del data
+        float_path = write_cube(folder / "float32.fits", values)
+        del values
+        int_cube, float_cube = open_cube(int_path), open_cube(float_path)
+        freq = frequency_axis_hz(args.channels) / 1e9
+        window = [freq[args.channels // 4], freq[3 * args.channels // 4]] * u.GHz
+        box = RectanglePixelRegion(PixCoord(args.size / 2, args.size / 2), 20, 20)
+        raw = np.asarray(float_cube.unmasked_data[:].value)  # the float copy's memory map
+        np.nansum(raw, axis=0)  # warm the page cache for both files
+        moment_maps(int_cube, window)
+        baseline = median_time(lambda: np.nansum(raw, axis=0), args.repeats)
+        rows = [
+            ("moment_maps int16", median_time(lambda: moment_maps(int_cube, window), args.repeats)),
+            ("moment_maps float32", median_time(lambda: moment_maps(float_cube, window), args.repeats)),
+            ("region_spectrum int16", median_time(lambda: region_spectrum(int_cube, box), args.repeats)),
+            ("region_spectrum float32", median_time(lambda: region_spectrum(float_cube, box), args.repeats)),
+        ]
+        print(f"cube {shape}, float32 copy {raw.nbytes / 2**20:.0f} MB")
+        print(f"baseline: one np.nansum pass over the float32 memory map  {baseline * 1e3:8.1f} ms  (1.00)")
+        for name, seconds in rows:
+            print(f"{name:<28s} {seconds * 1e3:8.1f} ms  ({seconds / baseline:5.2f} x baseline)")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            tracemalloc.start()
+            moment_maps(open_cube(int_path), window)
+            peak = tracemalloc.get_traced_memory()[1]
+            tracemalloc.stop()
+        print(f"peak allocations opening the int16 cube and making its moment maps: {peak / 2**20:.1f} MB "
+              f"({peak / raw.nbytes:.2f} x one float32 copy of the cube)")
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
