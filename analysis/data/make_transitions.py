@@ -27,6 +27,18 @@ would need 34.23 K added.
 
 tests/analysis/test_catalog_reference.py compares the rows with the published
 numbers, vendored in tests/data/catalog_reference.ecsv.
+
+Since issue 15 the catalog also holds, in this order of precedence: the curated
+rows below; every line up to E_up/k = 600 K between 20 GHz and 1.91 THz of the
+LAMDA files vendored in ``sources/lamda/`` (level and line sections, each file
+naming the public copy read; see ``sources/vendor_lamda.py``), hyperfine-resolved
+where the file is; linear rotors computed from constants fitted to recalled or
+published lines (ROTORS); the CH3CN and CH3CCH K ladders from recalled
+symmetric-top constants; hyperfine groups from published component tables
+(N2H+ J=1-0, NH3 (1,1) and (2,2), C17O J=1-0); recalled lines of H2CO, CH3OH,
+HNCO and HDO; and the H, He and C recombination lines of
+`cubeloupe.analysis.recombination`. Each row's g_up follows DEGENERACY below;
+``make_partition_functions.py`` writes the matching partition functions.
 """
 
 from pathlib import Path
