@@ -15,12 +15,15 @@ True
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.stats import norm
+from scipy.stats import t as student_t
 
 from .noise_map import spatial_noise
 from .results import ContinuumSummary
 from .rules import CONTINUUM_RULE
 
-__all__ = ["SIGNIFICANT", "LeftoverContinuum", "correlated_mean_factor", "leftover_continuum_summary"]
+__all__ = ["SIGNIFICANT", "LeftoverContinuum", "correlated_mean_factor", "gaussian_equivalent",
+           "leftover_continuum_summary"]
 
 # Pixels whose line-free mean lies this many standard errors from zero count as holding continuum.
 SIGNIFICANT = 5
@@ -69,6 +72,27 @@ def correlated_mean_factor(correlation, n_terms=50):
     return float(np.sqrt(1.0 + 2.0 * np.sum(rho ** (lags**2))))
 
 
+def gaussian_equivalent(t_values, n):
+    """Student's t of a mean over ``n`` values (its error from their own scatter) as the Gaussian sigma of equal tail.
+
+    With few line-free channels the error of the mean is itself uncertain:
+    the ratio follows Student's t with ``n - 1`` degrees of freedom (Student
+    1908, Biometrika 6, 1), whose tails are far heavier than the Gaussian's
+    (5 "sigma" from 9 channels happens once in a thousand pixels).
+
+    Examples
+    --------
+    >>> round(float(gaussian_equivalent(5.0, 9)), 1)
+    3.3
+    """
+    t_values = np.asarray(t_values, dtype=float)
+    if n < 2:
+        return np.full_like(t_values, np.nan)
+    with np.errstate(invalid="ignore"):
+        tail = student_t.sf(np.abs(t_values), n - 1)
+        return np.sign(t_values) * norm.isf(np.clip(tail, 1e-300, 0.5))
+
+
 def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None, correlation=None, client=None,
                                progress=None, cancel=None):
     """The continuum left in the line-free channels ``free`` of each pixel.
@@ -101,7 +125,7 @@ def leftover_continuum_summary(cube, spectra, free, spatial, *, beam_pixels=None
     notes = []
     mean, error, significance = spectra.line_free_mean(cube, free, client=client, progress=progress, cancel=cancel)
     widening = correlated_mean_factor(correlation)
-    error, significance = error * widening, significance / widening
+    error, significance = error * widening, gaussian_equivalent(significance / widening, n_free)
     if np.isfinite(significance).any():
         where = np.unravel_index(np.nanargmax(np.abs(significance)), significance.shape)
         peak_sig = float(significance[where])

@@ -189,14 +189,13 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
                           progress=_stage(report, 0.35, 0.55), **run)
     lines = find_lines(cube, header, spectra, noise, limit, z)
     report(0.62)
-    free = line_free_channels(header.shape[0], lines.channels, noise.summary.flagged,
-                              pad_fraction=WING_PAD_FRACTION)
+    free = _line_free(header.shape[0], lines.channels, noise.summary.flagged)
     continuum = leftover_continuum_summary(cube, spectra, free, spatial, beam_pixels=beam_fwhm_pixels(header),
                                            correlation=noise.summary.channel_correlation,
                                            progress=_stage(report, 0.62, 0.8), **run)
     report(0.8)
     strongest, strongest_notes = None, []
-    if lines.summary.features:
+    if lines.summary.features and header.frequency is not None:
         strongest = strongest_feature(cube, lines.summary.features[0], header.frequency, free,
                                       progress=_stage(report, 0.8, 0.98), notes=strongest_notes, **run)
     report(1.0)
@@ -233,6 +232,14 @@ def check_detection_options(threshold, false_alarms=FALSE_ALARMS, *, argname="th
                                      or not np.isfinite(false_alarms) or not false_alarms > 0):
         raise ParameterError(f"false_alarms must be a finite positive expected count of noise peaks, or None; "
                              f"got {false_alarms!r}")
+
+
+def _line_free(n_channels, channels, flagged):
+    """Line-free channels without the features' wings; the narrower padding where the wide one leaves too few."""
+    free = line_free_channels(n_channels, channels, flagged, pad_fraction=WING_PAD_FRACTION)
+    if free.sum() < max(3, n_channels // 10):
+        free = line_free_channels(n_channels, channels, flagged)
+    return free
 
 
 def _check_options(threshold, false_alarms):

@@ -36,10 +36,10 @@ __all__ = [
 FLAG_SIGMAS = 5.0
 DETECTION_SNR = 5.0
 MIN_PAD_CHANNELS = 2
-# The line-free channels of the leftover continuum leave out each feature padded by its own number of
+# The line-free channels of the leftover continuum leave out each feature padded by half its number of
 # channels on each side: a Gaussian line whose run reaches down to 3 sigma of a 50-sigma peak spans
-# +-2.4 of its dispersions; the padding reaches +-7, beyond its wings (issue 13).
-WING_PAD_FRACTION = 1.0
+# +-2.4 of its dispersions; the padding reaches +-4.8, where its wings are 1e-5 of its peak (issue 13).
+WING_PAD_FRACTION = 0.5
 
 _KMS = u.km / u.s
 

@@ -117,12 +117,10 @@ def cube_section(entry, check=None):
                  + f"; {len(noise['flagged_channels'])} flagged channel(s)"
                  + (f": {esc(', '.join(map(str, noise['flagged_channels'][:40])))}" if noise["flagged_channels"] else "")
                  + "</p>")
-    parts.append(f'<p class="rule">{esc(noise["flag_rule"])}</p>')
     parts.append(figures.get("noise", ""))
     spatial = noise.get("spatial")
     if spatial is not None:
         parts.append(f"<p>{esc(_spatial_sentence(spatial))}</p>")
-        parts.append(f'<p class="rule">{esc(spatial["rule"])}</p>')
         parts.append(figures.get("noise_map", ""))
     cont = entry["continuum"]
     parts.append("<h3>Leftover continuum</h3>")
@@ -135,7 +133,6 @@ def cube_section(entry, check=None):
             f"{format_or_dash(cont['peak_significance'], '.1f')} sigma (noise of the mean {esc(_q(cont['noise']))}); "
             f"{cont['n_significant_pixels']} pixel(s) at 5 sigma or more; "
             f"{cont['n_line_free_channels']} line-free channels.</p>")
-        parts.append(f'<p class="rule">{esc(cont["rule"])}</p>')
         parts.append(figures.get("continuum", ""))
     lines = entry["lines"]
     parts.append("<h3>Lines</h3>")
@@ -154,8 +151,6 @@ def cube_section(entry, check=None):
             f"are expected beyond it in the whole cube ({lines['expected_noise_peaks_at_threshold']:.2g} beyond "
             f"{lines['threshold_snr']:g} sigma), for about {lines['resolution_elements']:.3g} independent noise "
             "beams per channel.</p>")
-        parts.append(f'<p class="rule">{esc(lines["rule"])}</p>')
-        parts.append(f'<p class="rule">{esc(lines["velocity_reference"])}</p>')
         parts.append(figures.get("lines", ""))
     detections = entry["detections"]
     if detections:
@@ -169,16 +164,38 @@ def cube_section(entry, check=None):
             size = d["depth"] if kind == "absorption" else d["peak"]
             error = d.get("peak_error")
             measure = _q(size, ".3g") + ("" if error is None else f" +/- {_q(error, '.2g')}")
-            rows.append((i + 1, kind, f"{d['frequency_ghz']:.5f}", f"{d['snr']:.1f}", measure,
-                         f"{d['width_mhz']:.3g}", f"{d['width_kms']:.4g}", f"{d['channels'][0]}-{d['channels'][1]}",
-                         cands))
-        parts.append(_table(rows, ["#", "kind", "frequency (GHz)", "S/N", "peak or depth", "width (MHz)",
-                                   "width (km/s)", "channels", "tentative identifications, best first"]))
+            rows.append((i + 1, kind, format_or_dash(d["frequency_ghz"], ".5f"),
+                         format_or_dash(d.get("velocity_kms"), ".2f"), f"{d['snr']:.1f}", measure,
+                         format_or_dash(d["width_mhz"], ".3g"), format_or_dash(d["width_kms"], ".4g"),
+                         f"{d['channels'][0]}-{d['channels'][1]}", cands))
+        parts.append(_table(rows, ["#", "kind", "frequency (GHz)", "velocity (km/s)", "S/N", "peak or depth",
+                                   "width (MHz)", "width (km/s)", "channels", "tentative identifications, best first"]))
     else:
         parts.append("<p>No detection.</p>")
+    if lines is not None and lines.get("redshift_note"):
+        parts.append(f"<p>{esc(lines['redshift_note'])}.</p>")
+    negative = (lines or {}).get("negative_features") or []
+    if negative:
+        parts.append("<p>Negative features (no continuum to absorb, so not absorption): "
+                     + esc("; ".join(f"channels {d['channels'][0]}-{d['channels'][1]}, S/N {d['snr']:.1f}"
+                                     for d in negative))
+                     + f". Likely cause: {esc(negative[0]['likely_cause'] or '-')}.</p>")
     if entry["strongest"] is not None:
         parts.append("<h3>Strongest feature</h3>" + figures.get("strongest", ""))
     return "".join(parts)
+
+
+def _methods(cubes):
+    """The rule texts of every checked cube, each distinct text once, in the order of the sections."""
+    texts = []
+    for cube in cubes:
+        if not cube["ok"]:
+            continue
+        noise, lines, cont = cube["noise"], cube["lines"] or {}, cube["continuum"] or {}
+        found = [noise.get("flag_rule"), (noise.get("spatial") or {}).get("rule"), cont.get("rule"),
+                 lines.get("rule"), lines.get("velocity_reference")]
+        texts.extend(t for t in found if t and t not in texts)
+    return texts
 
 
 def html_page(summary, sections, *, title=None):
@@ -197,13 +214,26 @@ def html_page(summary, sections, *, title=None):
     ]
     rows = []
     for i, cube in enumerate(cubes):
-        status = "ok" if cube["ok"] else "not checked"
-        rows.append((f'<a href="#cube{i}">{i + 1}</a>', esc(cube["path"]), status, esc(_q(cube["rms"])),
-                     len(cube["detections"])))
-    parts.append(_table(rows, ["", "cube", "status", "rms", "detections"], escape=False))
+        status = cube.get("status") or ("ok" if cube["ok"] else "failed")
+        if cube.get("worst_warning"):
+            status += f" (worst: {cube['worst_warning']})"
+        best = cube["detections"][0] if cube["detections"] else None
+        strongest = "-"
+        if best is not None:
+            where = (f"{best['frequency_ghz']:.4f} GHz" if best.get("frequency_ghz") is not None
+                     else f"{format_or_dash(best.get('velocity_kms'), '.1f')} km/s")
+            name = best["candidates"][0]["name"] if best["candidates"] else "unidentified"
+            strongest = f"{where}, S/N {best['snr']:.1f}, {name}"
+        rows.append((f'<a href="#cube{i}">{i + 1}</a>', esc(cube["path"]), esc(status),
+                     esc(cube.get("rms_display") or _q(cube["rms"])), len(cube["detections"]), esc(strongest)))
+    parts.append(_table(rows, ["", "cube", "status", "rms", "detections", "strongest line"], escape=False))
     if summary["skipped"]:
         parts.append("<p>Skipped: " + esc("; ".join(f"{s['path']} ({s['reason']})" for s in summary["skipped"])) + "</p>")
     for i, section in enumerate(sections):
         parts.append(f'<section id="cube{i}">{section}</section>')
+    methods = _methods(cubes)
+    if methods:
+        parts.append("<details><summary>Methods (the rules every number above follows)</summary>"
+                     + "".join(f'<p class="rule">{esc(text)}</p>' for text in methods) + "</details>")
     parts.append("</body></html>\n")
     return "".join(parts)

@@ -134,6 +134,9 @@ __all__ = [
     "json_quantity",
     "json_in",
     "json_position",
+    "status_text",
+    "worst_warning",
+    "display_quantity",
 ]
 
 SCHEMA = "cubeloupe-check/2"
@@ -200,6 +203,7 @@ def _header_dict(header):
         "beam_area_pixels": None if header.beam_area_pixels is None else json_number(header.beam_area_pixels),
         "blanked_fraction": None if blanked is None else json_numbers(blanked),
         "blanked_fraction_max": None if blanked is None or not np.size(blanked) else json_number(np.nanmax(blanked)),
+        "velocity_convention": header.velocity_convention,
     }
 
 
@@ -227,6 +231,9 @@ def _feature_dict(feature):
         "channels": [int(feature.channels.first), int(feature.channels.last)],
         "position": json_position(feature.position),
         "candidates": [_candidate_dict(c) for c in feature.candidates],
+        "velocity_kms": json_in(feature.velocity, u.km / u.s),
+        "peak_velocity_kms": json_in(feature.peak_velocity, u.km / u.s),
+        "likely_cause": feature.likely_cause,
     }
 
 
@@ -246,6 +253,7 @@ def _spatial_dict(spatial, rule, line_free):
         "box_pixels": int(spatial.box_pixels),
         "n_boxes": int(spatial.n_boxes),
         "rule": rule,
+        "per_pixel": bool(getattr(spatial, "per_pixel", False)),
     }
 
 
@@ -267,6 +275,10 @@ def cube_entry(check):
             "frequency_ghz": None if frequency is None else json_in(frequency, u.GHz),
             "flagged_channels": [int(k) for k in noise.flagged],
             "flag_rule": noise.rule,
+            "plain_channel_rms": json_quantity(noise.plain_rms),
+            "channels_rms_from_differences": (None if noise.from_differences is None
+                                              else [int(k) for k in np.flatnonzero(noise.from_differences)]),
+            "channel_correlation": None if noise.channel_correlation is None else json_number(noise.channel_correlation),
             "rms_region": noise.rms_region,
             "spatial": _spatial_dict(noise.spatial, noise.spatial_rule, noise.varies_in_line_free_channels),
         },
@@ -274,6 +286,9 @@ def cube_entry(check):
         "lines": None,
         "strongest": None,
         "warnings": list(check.warnings),
+        "status": status_text(check.warnings),
+        "worst_warning": worst_warning(check.warnings),
+        "rms_display": display_quantity(noise.cube_rms),
     }
     cont = check.continuum
     if cont is not None:
@@ -315,6 +330,12 @@ def cube_entry(check):
             "absorption_edge_level_snr": (None if lines.absorption_edge_level is None
                                           else json_number(lines.absorption_edge_level)),
             "rule": lines.rule,
+            "local_z": None if lines.local_z is None else json_number(lines.local_z),
+            "redshift_note": lines.redshift_note,
+            "redshift_options": [{"z": json_number(z), "lines": list(names)} for z, names in lines.redshift_options],
+            "negative_features": [_feature_dict(f) for f in lines.negative_features],
+            "field_emission_channels": [list(pair) for pair in lines.field_emission_channels],
+            "velocity_only": lines.features != () and all(f.frequency is None for f in lines.features),
         }
     strongest = check.strongest
     if strongest is not None:
@@ -347,6 +368,9 @@ def failure_entry(path, error):
         "lines": None,
         "strongest": None,
         "warnings": [],
+        "status": "failed",
+        "worst_warning": None,
+        "rms_display": None,
     }
 
 
@@ -384,3 +408,59 @@ def summary_dict(entries, *, z=None, threshold=5.0, skipped=()):
         "cubes": [e if isinstance(e, dict) else cube_entry(e) for e in entries],
     }
 
+
+
+# Warnings that only inform (the threshold applied, the redshift left open) do not count in a cube's
+# status; the others are ranked by these words, most serious first.
+_INFORMATION = ("detection threshold raised", "pure-noise peaks or dips are expected", "redshift not constrained",
+                "redshift not solved", "redshift solved", "the field is too small for a smooth noise map")
+_SEVERITY = ("cannot", "failed", "not measured", "no beam", "no BUNIT", "undersampled", "pixels across the beam",
+             "channel(s) with noise that stands out", "leftover continuum", "negative feature", "blanked",
+             "noise rises", "noise varies", "velocity only")
+
+
+def worst_warning(warnings):
+    """The most serious of a cube's warnings (informative notes left aside), or None.
+
+    Examples
+    --------
+    >>> worst_warning(["detection threshold raised from 5 to 5.2 sigma", "leftover continuum: 9 sigma"])
+    'leftover continuum: 9 sigma'
+    """
+    serious = [w for w in warnings if not any(word in w for word in _INFORMATION)]
+    if not serious:
+        return None
+    rank = [next((i for i, word in enumerate(_SEVERITY) if word in w), len(_SEVERITY)) for w in serious]
+    return serious[int(np.argmin(rank))]
+
+
+def status_text(warnings):
+    """``'ok'`` or ``'ok, N warnings'`` (informative notes not counted).
+
+    Examples
+    --------
+    >>> status_text(["detection threshold raised from 5 to 5.2 sigma"])
+    'ok'
+    """
+    serious = [w for w in warnings if not any(word in w for word in _INFORMATION)]
+    return "ok" if not serious else f"ok, {len(serious)} warning{'s' if len(serious) > 1 else ''}"
+
+
+def display_quantity(value):
+    """A brightness in convenient units: mJy/beam under 1 Jy/beam, mK under 1 K, else as it is.
+
+    Examples
+    --------
+    >>> display_quantity(0.0013 * u.Jy / u.beam)
+    '1.3 mJy / beam'
+    >>> display_quantity(0.044 * u.K)
+    '44 mK'
+    """
+    if value is None:
+        return None
+    value = u.Quantity(value)
+    for big, small in ((u.Jy / u.beam, u.mJy / u.beam), (u.K, u.mK), (u.Jy, u.mJy)):
+        if value.unit == big and abs(value.value) < 1:
+            value = value.to(small)
+            break
+    return f"{value.value:.3g} {value.unit.to_string()}"

@@ -56,7 +56,7 @@ def terminal_table(summary):
     for cube in summary["cubes"]:
         name = Path(cube["path"]).name
         if not cube["ok"]:
-            rows.append([name, "FAILED", "-", "-", "-", "-", cube["error"]])
+            rows.append([name, "failed", "-", "-", "-", "-", cube["error"]])
             continue
         rms = cube["rms"]
         cont = cube.get("continuum") or {}
@@ -65,10 +65,15 @@ def terminal_table(summary):
             best = cube["detections"][0]
             ident = best["candidates"][0]["name"] if best["candidates"] else "unidentified"
             kind = " absorption" if best.get("kind") == "absorption" else ""
-            strongest = f"{format_or_dash(best['frequency_ghz'], '.4f')} GHz{kind} S/N {format_or_dash(best['snr'], '.1f')} {ident}"
-        status = "ok" if not cube.get("warnings") else f"ok, {len(cube['warnings'])} warning(s)"
+            where = (f"{format_or_dash(best['frequency_ghz'], '.4f')} GHz" if best.get("frequency_ghz") is not None
+                     else f"{format_or_dash(best.get('velocity_kms'), '.1f')} km/s")
+            strongest = f"{where}{kind} S/N {format_or_dash(best['snr'], '.1f')} {ident}"
+        status = cube.get("status") or ("ok" if not cube.get("warnings") else f"ok, {len(cube['warnings'])} warnings")
+        if cube.get("worst_warning"):
+            status += f" (worst: {cube['worst_warning'][:60]})"
+        shown = cube.get("rms_display") or f"{format_or_dash(rms['value'], '.3g')} {rms['unit']}"
         rows.append([
-            name, status, f"{format_or_dash(rms['value'], '.3g')} {rms['unit']}{rms_region_tag(cube['noise'])}",
+            name, status, f"{shown}{rms_region_tag(cube['noise'])}",
             str(len(cube["noise"]["flagged_channels"])),
             format_or_dash(cont.get("peak_significance"), ".1f"),
             str(len(cube["detections"])), strongest,

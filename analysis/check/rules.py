@@ -33,10 +33,12 @@ FLAG_RULE = (
 )
 CONTINUUM_RULE = (
     "Leftover continuum: mean over the line-free channels in each pixel: all channels except flagged ones, each "
-    "detection (emission, absorption or negative) padded on both sides by its own number of channels (its wings), "
+    "detection (emission, absorption or negative) padded on both sides by half its number of channels (its wings; a quarter where that leaves "
+    "fewer than a tenth of the band line-free), "
     "and the features of the field's mean spectrum (emission spread over the field); significance = mean / (the "
     "pixel's standard deviation over those channels / sqrt(n)), widened by sqrt(1 + 2 sum_L rho_L) for the "
-    "correlation rho of neighbouring channels (measured from the lag-1 and lag-2 channel differences)."
+    "correlation rho of neighbouring channels (measured from the lag-1 and lag-2 channel differences), and given "
+    "as the Gaussian sigma of equal tail probability under Student's t with n - 1 degrees of freedom."
 )
 
 

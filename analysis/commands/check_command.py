@@ -29,6 +29,7 @@ import warnings
 from dataclasses import replace
 from pathlib import Path
 
+import astropy.units as u
 from tqdm import tqdm
 
 from ..check import (
@@ -77,6 +78,12 @@ def register(subparsers):
     parser.add_argument("--threshold", type=float, default=5.0, metavar="SNR",
                         help="smallest detection threshold, in channel rms, for emission and absorption "
                              "(default: 5; raised per cube to keep pure-noise detections rare)")
+    parser.add_argument("--rest-frequency", type=float, default=None, metavar="GHZ",
+                        help="rest frequency in GHz for cubes whose header lacks one (or to replace it): "
+                             "velocity axes then convert to frequency and detections are identified")
+    parser.add_argument("--velocity-convention", choices=("radio", "optical", "relativistic"), default=None,
+                        help="convention of a velocity axis whose header does not state it (legacy VELO "
+                             "without VELREF)")
     parser.add_argument("--overwrite", action="store_true",
                         help="replace a report already in DIR (by default it is kept and nothing is written)")
     parser.add_argument("--quiet", action="store_true",
@@ -147,7 +154,8 @@ def _check_one(path, args, position):
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            cube = open_cube(path)
+            rest = None if args.rest_frequency is None else args.rest_frequency * u.GHz
+            cube = open_cube(path, rest_frequency=rest, velocity_convention=args.velocity_convention)
             result = check_cube(cube, z=args.z, threshold=args.threshold, progress=progress)
         notes = list(dict.fromkeys(str(w.message) for w in caught if _worth_reporting(w)))
         if notes:

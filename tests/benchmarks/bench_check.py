@@ -186,7 +186,7 @@ def main():
               f"{c_nansum:8.2f} {1.0:9.2f} {'':>11s}")
         for name, seconds, cpu, used in rows:
             print(f"{name:58s} {seconds:9.2f} {seconds / t_nansum:9.2f} {cpu:8.2f} {cpu / c_nansum:9.2f} {used:11.0f}")
-        print(f"\ntarget: whole check <= 5x nansum (wall time) -> {'met' if t_check <= 5 * t_nansum else 'NOT met'} "
+        print(f"\ntarget: whole check <= 2x nansum (wall time, issue 13) -> {'met' if t_check <= 2 * t_nansum else 'NOT met'} "
               f"({t_check / t_nansum:.1f}x; CPU time {c_check / c_nansum:.1f}x over all threads)")
         print("CPU time is the sum over threads: the block passes use every core, np.nansum one; on a "
               "loaded machine the wall-time ratio drifts, so compare runs on a quiet machine.")

@@ -262,3 +262,20 @@ def test_primary_beam_corrected_cube_is_recognised_in_the_summary_and_the_table(
     assert entry["rms"]["value"] == pytest.approx(1e-3, rel=0.1)
     assert "primary-beam corrected" in (out / "report.html").read_text()
     assert "(centre; edge x" in capsys.readouterr().out
+
+
+REAL = __import__("pathlib").Path(__file__).resolve().parents[2].parent / "shared" / "real-cubes"
+
+
+@pytest.mark.skipif(not (REAL / "l1448_13co.fits").is_file(), reason=f"real observed cubes not available ({REAL})")
+def test_rest_frequency_option_identifies_a_velocity_only_cube(tmp_path):
+    """Issue 13: a velocity axis without a rest frequency; --rest-frequency supplies it.
+
+    13CO J=1-0 at 110.20135428 GHz (CDMS catalogue, Mueller et al. 2005, as in the bundled catalog).
+    """
+    out = tmp_path / "out"
+    status = _run([str(REAL / "l1448_13co.fits"), "--out", str(out), "--quiet", "--rest-frequency", "110.20135428"])
+    assert status == EXIT_OK
+    cube = _summary(out)["cubes"][0]
+    assert cube["detections"][0]["candidates"][0]["name"] == "13CO J=1-0"
+    assert cube["detections"][0]["frequency_ghz"] == pytest.approx(110.2013 * (1 - 4.3 / 299792.458), abs=5e-4)

@@ -1,6 +1,7 @@
 """Tests of the whole delivery check of one cube (analysis/check/cube_check.py; issue 8)."""
 
 import json
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
@@ -363,3 +364,62 @@ def test_report_states_the_threshold_applied_and_the_velocity_reference(two_line
     assert lines["expected_noise_peaks"] <= FALSE_ALARMS * 1.0001
     assert "LSRK" in lines["velocity_reference"] and "z" in lines["velocity_reference"]
     json.dumps(entry, allow_nan=False)
+
+
+# --------------------------------------------------------------------------- real observed cubes (issue 13)
+
+REAL = Path(__file__).resolve().parents[3].parent / "shared" / "real-cubes"
+needs_real = pytest.mark.skipif(not REAL.is_dir(), reason=f"real observed cubes not available ({REAL} is absent; "
+                                                            "see issue 13)")
+
+
+@needs_real
+def test_real_interferometer_cube_co10_of_a_nearby_spiral():
+    """co10_ngc4047_carma.fits (SOURCES.md): what an observer sees, worked out with numpy below.
+
+    One CO J=1-0 line, 3260-3540 km/s (channels 14-28 brighter than 0.2 Jy/beam somewhere), a rotating
+    disk near the centre; the noise at the centre about 0.013 Jy/beam (the header's RMS keyword says
+    0.0131), rising towards the edge (primary-beam corrected); no absorption, one line: no redshift.
+    """
+    path = REAL / "co10_ngc4047_carma.fits"
+    data = np.squeeze(fits.getdata(path)).astype(float)
+    velocity = 2980 + 20 * np.arange(data.shape[0])  # CRVAL3 2980 km/s, CDELT3 20 km/s, CRPIX3 1 (header)
+    bright = np.flatnonzero(np.nanmax(data, axis=(1, 2)) > 0.2)
+    centre = data[:, 44:84, 44:84]
+    free = np.r_[0:10, 34:44]
+    rms = 1.4826 * np.nanmedian(np.abs(centre[free] - np.nanmedian(centre[free])))
+    result = check_cube(open_cube(path))
+    assert_quantity_allclose(result.noise.cube_rms, rms * u.Jy / u.beam, rtol=0.25)
+    assert len(result.lines.features) == 1 and not result.lines.negative_features
+    line = result.lines.features[0]
+    assert line.kind == "emission" and line.candidates[0].name == "CO J=1-0"
+    assert velocity[bright[0]] - 40 <= line.velocity.to_value(u.km / u.s) <= velocity[bright[-1]] + 40
+    assert result.lines.solved_z is None
+    assert result.noise.spatial.primary_beam_corrected
+
+
+@needs_real
+def test_real_single_dish_cube_13co_filling_the_band():
+    """l1448_13co.fits (SOURCES.md): what an observer sees, worked out with numpy below.
+
+    13CO emission over most of the field and in every channel of the 2.5-6.0 km/s band (the mean over
+    the field peaks near 4.3 km/s); the noise from the differences of neighbouring channels about
+    0.15 K; no rest frequency: the line is reported in km/s; no continuum, so no absorption.
+    """
+    path = REAL / "l1448_13co.fits"
+    header = fits.getheader(path)
+    data = fits.getdata(path).astype(float)
+    velocity = (header["CRVAL3"] + (np.arange(data.shape[0]) + 1 - header["CRPIX3"]) * header["CDELT3"]) / 1e3
+    mean_peak = velocity[np.argmax(np.nanmean(data, axis=(1, 2)))]
+    steps = np.diff(data, axis=0) / np.sqrt(2)
+    rms = 1.4826 * np.median(np.abs(steps - np.median(steps)))
+    with pytest.warns(MissingUnitWarning, match="no BUNIT"):
+        cube = open_cube(path)
+    result = check_cube(cube)
+    assert result.noise.cube_rms.value == pytest.approx(rms, rel=0.25)
+    assert len(result.lines.features) == 1
+    line = result.lines.features[0]
+    assert line.kind == "emission" and line.frequency is None
+    assert abs(line.velocity.to_value(u.km / u.s) - mean_peak) < 0.5
+    assert not result.lines.negative_features and not result.noise.flagged.size
+    assert result.continuum is None or abs(result.continuum.peak_significance) < 5

@@ -291,3 +291,19 @@ def test_report_says_which_region_the_rms_describes_and_that_the_cube_looks_pbco
     assert "primary-beam corrected" in page and "edge/centre noise ratio" in page
     table = terminal_table(summary_dict([entry]))
     assert "(centre; edge x" in table
+
+
+def test_noisier_edge_rows_of_a_small_field_make_no_detection(tmp_path):
+    """Regression test for #13: a field too small for a noise map; its edge rows, 3x noisier, made 100 detections."""
+    from small_field import small_field_cube
+
+    path, velocity = small_field_cube(tmp_path / "edges.fits", np.random.default_rng(14))
+    result = check_cube(open_cube(path))
+    assert result.noise.spatial.per_pixel and not result.noise.spatial.measured
+    # each pixel's own noise: the edge rows stand 3 times above the median pixel (injected)
+    assert np.median(result.noise.spatial.relative[[0, -1]]) == pytest.approx(3.0, rel=0.15)
+    found = [*result.lines.features, *result.lines.negative_features]
+    assert all(f.position[0] not in (0, 19) for f in found)
+    # only the three injected line groups (main line, +8 and -7 km/s), no absorption, no negative feature
+    assert len(result.lines.features) == 3 and not result.lines.negative_features
+    assert all(f.kind == "emission" for f in result.lines.features)
