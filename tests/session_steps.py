@@ -7,6 +7,7 @@ change the sky view's stretch.
 """
 
 import astropy.units as u
+import numpy as np
 from regions import CircleSkyRegion, EllipsePixelRegion, PixCoord, PointSkyRegion, PolygonPixelRegion, \
     RectanglePixelRegion
 
@@ -62,3 +63,22 @@ def drive(case):
     assert loupe.status.level != "error", loupe.status.message
     assert loupe.measurements and loupe.moments is not None
     return loupe
+
+
+def same_map(got, expected, n_channels):
+    """A moment map equal bit for bit, or (a float32 cube) to float32 rounding.
+
+    For a float32 cube the block kernels sum in float32 (the map then holds float32 values), in blocks whose
+    order may differ between runs (threads free at the time), so two runs may differ in the last bits. The bound is that of a sum of n terms in floating point,
+    |error| <= n * eps * sum|x| (Higham 2002, Accuracy and Stability of Numerical Algorithms, 2nd ed., eq. 4.4),
+    with sum|x| taken as n times the map's largest value.
+    """
+    got, expected = np.asarray(got), np.asarray(expected)
+    assert got.shape == expected.shape and np.array_equal(np.isnan(got), np.isnan(expected))
+    if np.array_equal(got, expected, equal_nan=True):
+        return
+    holds_float32 = np.array_equal(expected.astype(np.float32).astype(expected.dtype), expected, equal_nan=True)
+    assert holds_float32, "maps computed in float64 must agree bit for bit"
+    scale = np.nanmax(np.abs(expected))
+    bound = n_channels ** 2 * np.finfo(np.float32).eps * scale
+    np.testing.assert_allclose(got, expected, rtol=0, atol=bound)
