@@ -104,6 +104,18 @@ Top level:
     to that z, with frequencies in the cube's frame, SPECSYS; with z = 0 the
     velocity in that frame itself; null for a lone detection without z)).
 
+    Added by issue 13 (fields only added, none renamed or dropped): per cube
+    ``status`` (``"ok"``, ``"ok, N warnings"`` or ``"failed"``, informative
+    notes not counted), ``worst_warning``, ``rms_display`` (mJy/beam, mK);
+    ``header.velocity_convention``; ``noise.plain_channel_rms``,
+    ``noise.channels_rms_from_differences``, ``noise.channel_correlation``,
+    ``noise.spatial.per_pixel``; each detection's ``velocity_kms``,
+    ``peak_velocity_kms`` (velocity-only detections have
+    ``frequency_ghz`` null and these set) and ``likely_cause``;
+    ``lines.local_z``, ``redshift_note``, ``redshift_options`` (``z``,
+    ``lines``), ``negative_features`` (dips with no continuum to absorb,
+    as detections), ``field_emission_channels``, ``velocity_only``.
+
     ``strongest``: ``detection`` (index into ``detections``), ``window_ghz``,
     ``position``, ``moment0_peak`` (Quantity), ``spectrum``
     (``frequency_ghz`` and ``intensity`` Quantity). Null without detections.
