@@ -59,7 +59,7 @@ import numpy as np
 from astropy.io import fits
 from astropy.table import Table, vstack
 
-from .errors import CubeFileError, ExportContentError, ExportError, OutputExistsError
+from .errors import CubeFileError, ExportContentError, ExportError, OutputExistsError, SpectralAxisError
 from .spectral import frequency_axis
 
 __all__ = ["write_map", "write_maps", "write_spectra", "write_table", "check_output_path"]
@@ -397,8 +397,11 @@ def _write_ecsv(table, path, overwrite):
     return path
 
 
-def write_spectra(spectra, path, *, overwrite=False):
+def write_spectra(spectra, path, *, overwrite=False, meta=None):
     """Write named spectra as one ECSV table (columns name, window, channel, frequency, value).
+
+    Spectra on a velocity axis with no rest frequency (see `velocity_only`)
+    get a ``velocity`` column instead of ``frequency``.
 
     Parameters
     ----------
@@ -408,6 +411,8 @@ def write_spectra(spectra, path, *, overwrite=False):
         with the same text (``1`` and ``"1"``) are refused.
     path, overwrite
         As for `write_map`.
+    meta : dict, optional
+        Added to the table's metadata (e.g. how the spectra were made).
 
     Returns
     -------
@@ -439,17 +444,23 @@ def write_spectra(spectra, path, *, overwrite=False):
                     "pass spectra such as region_spectrum(...)"
                 )
             n = spectrum.shape[0]
+            try:
+                axis_name, axis = "frequency", frequency_axis(spectrum).to(u.GHz)
+            except SpectralAxisError:  # a velocity axis without a rest frequency: its velocities are what it has
+                axis_name, axis = "velocity", spectrum.spectral_axis.to(u.km / u.s)
             parts.append(Table({
                 "name": np.full(n, text, dtype=f"U{max(len(text), 1)}"),
                 "window": np.full(n, window),
                 "channel": np.arange(n),
-                "frequency": frequency_axis(spectrum).to(u.GHz),
+                axis_name: axis,
                 "value": u.Quantity(spectrum.value, spectrum.unit),
             }))
     if not parts:
         raise CubeFileError("there are no spectra to write; add a region first")
     table = vstack(parts)
     table.meta["description"] = "Region spectra written by cubeloupe; frequency is the observed frequency"
+    if meta:
+        table.meta.update(meta)
     return _write_ecsv(table, path, overwrite)
 
 

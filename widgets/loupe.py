@@ -39,7 +39,7 @@ from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
 from .region_list import RegionList
 from .replay import to_code  # sessions and replay (#19)
-from .session import read_session, write_session  # sessions and replay (#19)
+from .session import read_session, session_state, write_session  # sessions and replay (#19)
 from .sky_view import SkyView
 from .snapshot import render_sky, render_spectrum
 from .spectrum_view import SpectrumView
@@ -634,22 +634,49 @@ class Loupe(w.VBox):
         return thread
 
     # ------------------------------------------------------------- exports
+    def provenance(self):
+        """How the suite's results were made, as a plain dict for the metadata of exported files.
+
+        The session description (`session_state`: cube files, regions with their sky shapes,
+        line window, line-free ranges, baseline order, z, velocity convention, rest frequency,
+        cosmology, magnification, cubeloupe version), so that an export and a saved session say
+        the same thing.
+        """
+        return {"cubeloupe_session": session_state(self)}
+
+    def _made_with(self):
+        """One line of text saying how maps were made (for FITS HISTORY, which holds text only)."""
+        state = session_state(self)
+        settings = state["settings"]
+        moments = state.get("moments") or {}
+        cubes = ", ".join(c.get("absolute") or c.get("path", "?") for c in state["cubes"])
+        return (f"cubeloupe {state['cubeloupe_version']}: cube {cubes}; line window {settings.get('line_window')} "
+                f"GHz; line-free {settings.get('line_free')} GHz; baseline order {settings.get('baseline_order')}; "
+                f"z {settings.get('z')}; rest frequency {settings.get('rest_frequency')} GHz; velocity convention "
+                f"{settings.get('convention')}; clip {moments.get('clip')}; moments 1-2 where moment 0 > "
+                f"{self.moment_panel.significance:g} x its error")
+
     def export_moments(self, path, overwrite=False):
-        """Write the last moment maps to one FITS file (WCS, beam and BUNIT kept)."""
+        """Write the last moment maps to one FITS file (WCS, beam and BUNIT kept; HISTORY says how)."""
         if not self.moment_panel.maps:
             raise CubeloupeError("there are no moment maps yet; make them first ('Make moment maps')")
-        return write_maps(self.moment_panel.maps, path, overwrite=overwrite,
-                          history=f"cubeloupe moment maps, window {self.line_window} GHz, z={self.z}")
+        return write_maps(self.moment_panel.maps, path, overwrite=overwrite, history=self._made_with())
 
     def export_spectra(self, path, overwrite=False):
-        """Write every region's spectra (all windows) to one ECSV file."""
-        return write_spectra(self.spectra, path, overwrite=overwrite)
+        """Write every region's spectra (all windows) to one ECSV file, with how they were made in its metadata."""
+        spectra = self.spectra
+        if self.velocity_only:
+            # Their frequencies are nominal: write the file's own velocities instead.
+            spectra = {name: [None if s is None else s.with_spectral_unit(
+                u.km / u.s, velocity_convention=self.convention, rest_value=NOMINAL_REST_FREQUENCY)
+                for s in items] for name, items in spectra.items()}
+        return write_spectra(spectra, path, overwrite=overwrite, meta=self.provenance())
 
     def export_measurements(self, path, overwrite=False):
-        """Write the measurement table to ECSV."""
+        """Write the measurement table to ECSV, with how it was made in its metadata."""
         if not self.measurements:
             raise CubeloupeError("there are no measurements yet; add a region and mark the line window")
-        return self.measurement_table.export_ecsv(path, overwrite=overwrite)
+        return self.measurement_table.export_ecsv(path, overwrite=overwrite, meta=self.provenance())
 
     def save_picture(self, view, path, overwrite=False):
         """Draw the 'sky' or 'spectrum' view to PNG/SVG/PDF with matplotlib (works without a browser).
