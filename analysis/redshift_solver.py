@@ -23,13 +23,24 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
-from .catalog import select_lines
+from .catalog import collapse_hyperfine, select_lines
 from .errors import RedshiftError, UnitMismatchError
 from .spectral import SPEED_OF_LIGHT, Z_MAX, check_redshift
 
 __all__ = ["RedshiftCandidate", "redshift_candidates"]
 
 _C_KMS = SPEED_OF_LIGHT.value
+
+#: Line families searched by default: the lines bright enough to be the peaks a redshift is found from
+#: (common practice); pass ``family=None`` to search the whole catalog (complex organics, recombination
+#: lines and shock tracers would otherwise match almost any pair of peaks).
+REDSHIFT_FAMILIES = ("CO and isotopologues", "dense gas", "water and hydrides", "atoms and ions")
+#: Species searched by default within those families: the main isotopologues whose lines are the
+#: bright peaks of extragalactic spectra (common practice); ``species=`` chooses others.
+REDSHIFT_SPECIES = ("CO", "13CO", "C18O", "HCN", "HNC", "HCO+", "CS", "N2H+", "H2O", "CH+", "OH+", "H2O+", "HF",
+                    "[CI]", "[CII]", "[NII]", "[OI]", "[OIII]")
+#: Upper-level energy cap of the default search: higher lines are rarely the peaks seen first.
+REDSHIFT_MAX_E_UP = 500 * u.K
 _KMS = u.km / u.s
 
 
@@ -120,7 +131,7 @@ def _check_velocity(value, argname, n=None):
 
 def redshift_candidates(peak_frequencies, catalog=None, *, tolerance=150 * _KMS,
                         peak_uncertainty=None, z_range=(-0.01, Z_MAX), species=None,
-                        spin_isomer=None, max_E_up=None, max_candidates=10):
+                        spin_isomer=None, max_E_up=REDSHIFT_MAX_E_UP, max_candidates=10, family=REDSHIFT_FAMILIES):
     """Rank redshifts and line identifications consistent with observed peaks.
 
     Parameters
@@ -176,7 +187,13 @@ def redshift_candidates(peak_frequencies, catalog=None, *, tolerance=150 * _KMS,
     if int(max_candidates) < 1:
         raise RedshiftError(f"max_candidates must be >= 1; got {max_candidates}")
 
-    chosen = select_lines(catalog, species=species, spin_isomer=spin_isomer, max_E_up=max_E_up)
+    if species is None and family == REDSHIFT_FAMILIES:
+        present = set(np.asarray((catalog if catalog is not None else select_lines())["species"]))
+        species = [name for name in REDSHIFT_SPECIES if name in present] or None
+    chosen = select_lines(catalog, species=species, spin_isomer=spin_isomer, max_E_up=max_E_up, family=family)
+    if "hyperfine_group" in chosen.colnames:
+        # A hyperfine group is one peak at a redshift-finding resolution: one candidate line, not several.
+        chosen = collapse_hyperfine(chosen)
     nu = u.Quantity(chosen["rest_frequency"], u.GHz).value
     names = np.asarray(chosen["name"])
     e_up = np.nan_to_num(np.asarray(chosen["E_up"], dtype=float), nan=1e4)

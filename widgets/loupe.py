@@ -39,7 +39,7 @@ from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
 from .region_list import RegionList
 from .replay import to_code  # sessions and replay (#19)
-from .session import read_session, session_state, write_session  # sessions and replay (#19)
+from .session import made_with, read_session, session_state, write_session  # sessions and replay (#19)
 from .sky_view import SkyView
 from .snapshot import render_sky, render_spectrum
 from .spectrum_view import SpectrumView
@@ -47,7 +47,7 @@ from .status import StatusLine
 
 __all__ = ["Loupe"]
 
-SKY_COLUMN = 480  # px: the sky image, its colour bar and the sky controls
+SKY_COLUMN = 460  # px: the sky image, its colour bar and the sky controls
 
 _TITLE = ("<div style='display:flex;align-items:baseline;gap:10px;border-bottom:2px solid #334e68;"
           "padding:0 0 3px 0;margin:0 0 6px 0'><span style='font-size:15px;font-weight:700;color:#243b53'>"
@@ -644,23 +644,11 @@ class Loupe(w.VBox):
         """
         return {"cubeloupe_session": session_state(self)}
 
-    def _made_with(self):
-        """One line of text saying how maps were made (for FITS HISTORY, which holds text only)."""
-        state = session_state(self)
-        settings = state["settings"]
-        moments = state.get("moments") or {}
-        cubes = ", ".join(c.get("absolute") or c.get("path", "?") for c in state["cubes"])
-        return (f"cubeloupe {state['cubeloupe_version']}: cube {cubes}; line window {settings.get('line_window')} "
-                f"GHz; line-free {settings.get('line_free')} GHz; baseline order {settings.get('baseline_order')}; "
-                f"z {settings.get('z')}; rest frequency {settings.get('rest_frequency')} GHz; velocity convention "
-                f"{settings.get('convention')}; clip {moments.get('clip')}; moments 1-2 where moment 0 > "
-                f"{self.moment_panel.significance:g} x its error")
-
     def export_moments(self, path, overwrite=False):
         """Write the last moment maps to one FITS file (WCS, beam and BUNIT kept; HISTORY says how)."""
         if not self.moment_panel.maps:
             raise CubeloupeError("there are no moment maps yet; make them first ('Make moment maps')")
-        return write_maps(self.moment_panel.maps, path, overwrite=overwrite, history=self._made_with())
+        return write_maps(self.moment_panel.maps, path, overwrite=overwrite, history=made_with(self))
 
     def export_spectra(self, path, overwrite=False):
         """Write every region's spectra (all windows) to one ECSV file, with how they were made in its metadata."""
@@ -686,7 +674,8 @@ class Loupe(w.VBox):
         nothing when no browser is attached.
         """
         if view == "sky":
-            return render_sky(self.sky_view, path, overwrite=overwrite)
+            return render_sky(self.sky_view, path, overwrite=overwrite, rest_frequency=self._rest(), z=self.z,
+                              convention=self.convention)
         if view == "spectrum":
             return render_spectrum(self.spectrum_view, path, overwrite=overwrite)
         raise CubeloupeError(f"unknown view {view!r}; choose 'sky' or 'spectrum'")

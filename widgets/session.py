@@ -404,3 +404,16 @@ def read_session(path):
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise SessionError(f"{str(path)!r} is not a cubeloupe session: it is not valid JSON ({exc})") from None
     return SessionState.from_dict(data, where=repr(str(path)))
+
+
+def made_with(loupe):
+    """One line of text saying how maps were made (for FITS HISTORY, which holds text only)."""
+    state = session_state(loupe)
+    settings = state["settings"]
+    moments = state.get("moments") or {}
+    cubes = ", ".join(c.get("absolute") or c.get("path", "?") for c in state["cubes"])
+    return (f"cubeloupe {state['cubeloupe_version']}: cube {cubes}; line window {settings.get('line_window')} "
+            f"GHz; line-free {settings.get('line_free')} GHz; baseline order {settings.get('baseline_order')}; "
+            f"z {settings.get('z')}; rest frequency {settings.get('rest_frequency')} GHz; velocity convention "
+            f"{settings.get('convention')}; clip {moments.get('clip')}; moments 1-2 where moment 0 > "
+            f"{loupe.moment_panel.significance:g} x its error")

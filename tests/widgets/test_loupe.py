@@ -144,3 +144,21 @@ def test_a_velocity_axis_cube_without_rest_frequency_works_in_its_own_velocities
     row = next(r for r in loupe.measurements if r["region"] == "middle")
     assert row["flux"] == pytest.approx(direct.flux.to_value(u.K * u.km / u.s), rel=1e-6)
     assert row["centroid"] == pytest.approx(direct.centroid.to_value(u.km / u.s), abs=1e-6)
+
+
+def test_an_exported_lines_table_is_remeasured_from_its_own_metadata(loupe, tmp_path):
+    """Issue #17: every export says how it was made; the table's metadata re-makes the same fluxes."""
+    import json
+
+    from astropy.table import QTable
+
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=5), name="blob")
+    mark_ranges(loupe)
+    loupe.z = 0.01
+    written = loupe.export_measurements(tmp_path / "lines.ecsv")
+    table = QTable.read(written)
+    session = table.meta["cubeloupe_session"]
+    assert session["settings"]["line_window"] and session["regions"][0]["name"] == "blob"
+    (tmp_path / "again.cubeloupe.json").write_text(json.dumps(session))
+    again = Loupe.from_session(tmp_path / "again.cubeloupe.json")
+    assert [r["flux"] for r in again.measurements] == pytest.approx(list(table["flux"].value), rel=1e-12)
