@@ -70,7 +70,8 @@ def terminal_table(summary):
             strongest = f"{where}{kind} S/N {format_or_dash(best['snr'], '.1f')} {ident}"
         status = cube.get("status") or ("ok" if not cube.get("warnings") else f"ok, {len(cube['warnings'])} warnings")
         if cube.get("worst_warning"):
-            status += f" (worst: {cube['worst_warning'][:60]})"
+            worst = cube["worst_warning"]
+            status += f" (worst: {worst if len(worst) <= 60 else worst[:59] + '…'})"
         shown = cube.get("rms_display") or f"{format_or_dash(rms['value'], '.3g')} {rms['unit']}"
         rows.append([
             name, status, f"{shown}{rms_region_tag(cube['noise'])}",

@@ -1,6 +1,9 @@
-"""Writing large benchmark cubes chunk by chunk (never the whole cube in memory)."""
+"""Shared benchmark pieces: large cubes written chunk by chunk (never whole in memory), and a timer."""
 
+import gc
+import statistics
 import sys
+import time
 from pathlib import Path
 
 import numpy as np
@@ -33,3 +36,15 @@ def write_big_cube(path, shape, *, seed=1, noise=0.01, chunk_bytes=256 * 2**20):
         size = handle.tell()
         handle.write(b"\0" * ((-size) % 2880))
     return Path(path), velocity
+
+
+def timed(func, repeat):
+    """Median wall time of ``repeat`` calls of ``func`` (garbage collected before each) and the last result."""
+    times = []
+    result = None
+    for _ in range(repeat):
+        gc.collect()
+        start = time.perf_counter()
+        result = func()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times), result

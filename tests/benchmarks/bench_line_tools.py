@@ -16,32 +16,20 @@ Targets (issue 18): channel maps < 1 s, a 512-pixel PV path < 300 ms, a Gaussian
 """
 
 import argparse
-import gc
 import os
-import statistics
 import tempfile
-import time
 from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 from astropy.io import fits
 
-from _cubes import write_big_cube
+from _cubes import timed, write_big_cube
 
 KMS = u.km / u.s
 CO21 = 230.538 * u.GHz  # 12CO J=2-1 rest frequency (CDMS catalogue, from memory); the cube's RESTFRQ
 
 
-def timed(func, repeat):
-    times = []
-    result = None
-    for _ in range(repeat):
-        gc.collect()
-        start = time.perf_counter()
-        result = func()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times), result
 
 
 def main():

@@ -14,11 +14,8 @@ Targets: ours <= 1x the nansum pass, >= 5x faster than spectral-cube, allocation
 """
 
 import argparse
-import gc
 import os
-import statistics
 import tempfile
-import time
 import tracemalloc
 import warnings
 from pathlib import Path
@@ -27,20 +24,12 @@ import astropy.units as u
 import numpy as np
 from astropy.io import fits
 
-from _cubes import write_big_cube
+from _cubes import timed, write_big_cube
 
 KMS = u.km / u.s
 CO21 = 230.538 * u.GHz  # 12CO J=2-1 rest frequency (CDMS catalogue, from memory)
 
 
-def timed(func, repeat):
-    times = []
-    for _ in range(repeat):
-        gc.collect()
-        start = time.perf_counter()
-        result = func()
-        times.append(time.perf_counter() - start)
-    return statistics.median(times), result
 
 
 def main():

@@ -15,16 +15,7 @@ from cubeloupe.analysis.check import cube_entry, summary_dict
 from cubeloupe.analysis.check import FALSE_ALARMS, check_cube
 from cubeloupe.analysis.errors import MissingUnitWarning
 
-# Rest frequencies from the CDMS catalogue (Mueller et al. 2005), as in the
-# bundled catalog: CO J=7-6 806.651806 GHz and [CI] 3P2-3P1 809.34197 GHz, the
-# pair that falls in one 2 GHz band at high redshift (common practice).
-CO76 = 806.651806e9
-CI21 = 809.34197e9
-Z = 2.0
-# A 2 GHz band of 8 MHz channels holding both lines at z = 2.
-CRVAL3 = 270.3e9
-CDELT3 = -8.0e6
-NCHAN = 250
+from two_lines import CDELT3, CI21, CO76, CRVAL3, NCHAN, Z
 
 
 
