@@ -14,7 +14,6 @@ Examples
 >>> loupe.measurements[0]["flux"]                                         # doctest: +SKIP
 """
 
-import html
 import os
 
 import astropy.units as u
@@ -24,16 +23,18 @@ from astropy.table import Table
 from traitlets import Bool, Enum, Float, Instance, Int, List, TraitError, Unicode, link, observe, validate
 
 from cubeloupe.analysis import (
-    AXIS_KINDS, CONVENTIONS, BeamError, CubeloupeError, RegionError, SpectralAxisError, catalog_line_at,
+    AXIS_KINDS, CONVENTIONS, CubeloupeError, RegionError, SpectralAxisError, catalog_line_at,
     NOMINAL_REST_FREQUENCY, channel_at, choose_velocity_reference, on_nominal_frequencies, velocity_convention_of,
-    velocity_only, cube_beam, cube_rest_frequency, display_axis, load_catalog,
-    measurement_table, open_cube, region_spectrum, source_name, unit_text, write_maps, write_spectra,
+    velocity_only, cube_rest_frequency, display_axis, load_catalog,
+    measurement_table, open_cube, region_spectrum, write_maps, write_spectra,
 )
 from cubeloupe.analysis import first_view as find_first_view
 
 from ._look import section
 from .channel_bar import ChannelBar
+from .cube_summary import cube_summary, title_html, window_name
 from .code_view import CodeView  # sessions and replay (#19)
+from .export_panel import ExportPanel
 from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
@@ -48,15 +49,6 @@ from .status import StatusLine
 __all__ = ["Loupe"]
 
 SKY_COLUMN = 460  # px: the sky image, its colour bar and the sky controls
-
-_TITLE = ("<div style='display:flex;align-items:baseline;gap:10px;border-bottom:2px solid #334e68;"
-          "padding:0 0 3px 0;margin:0 0 6px 0'><span style='font-size:15px;font-weight:700;color:#243b53'>"
-          "cubeloupe</span><span style='font-size:12px;color:#486581;line-height:1.5'>{info}</span></div>")
-
-
-def _source_name(cube, index):
-    path = source_name(cube, default="")
-    return os.path.basename(path) if path else f"window {index}"
 
 
 # Name of the aperture the suite places by itself on the brightest emission when it opens.
@@ -141,7 +133,7 @@ class Loupe(w.VBox):
         for item in items:
             with self.status.guard(f"opening {item if isinstance(item, (str, os.PathLike)) else 'a cube'}"):
                 self.cubes.append(open_cube(item) if isinstance(item, (str, os.PathLike)) else item)
-        title = w.HTML(_TITLE.format(info="line cube inspection"))
+        title = w.HTML(title_html("line cube inspection"))
         title.add_class("cubeloupe-header")
         if not self.cubes:
             super().__init__(children=[title, self.status], **kwargs)
@@ -193,7 +185,7 @@ class Loupe(w.VBox):
         self.cubes = [on_nominal_frequencies(c, rest) if velocity_only(c) else c for c in self.cubes]
         if rest_frequency is None:
             self.velocity_only = True
-            self.status.warn(f"{_source_name(self.cubes[0], 0)} has a velocity axis ({cube_convention} "
+            self.status.warn(f"{window_name(self.cubes[0], 0)} has a velocity axis ({cube_convention} "
                              "convention) and no rest frequency: the suite works in the file's velocities; "
                              "frequencies and catalog lines cannot be shown. Pass rest_frequency=... to place "
                              "them.")
@@ -235,7 +227,7 @@ class Loupe(w.VBox):
         self.line_overlay = LineOverlay(self.spectrum_view, band, catalog=self.catalog, status=StatusLine())
         self.moment_panel = MomentPanel(self._moment_inputs, status=StatusLine())
         self.measurement_table = MeasurementTable(show_window=len(self.cubes) > 1)
-        self.window_choice = w.Dropdown(options=[(f"{i}: {_source_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
+        self.window_choice = w.Dropdown(options=[(f"{i}: {window_name(c, i)} ({f.min():.3f}–{f.max():.3f} GHz)", i)
                                                  for i, (c, f) in enumerate(zip(self.cubes, self._frequencies))],
                                         description="Sky shows",
                                         tooltip="Which spectral window (cube) the sky view shows",
@@ -250,41 +242,9 @@ class Loupe(w.VBox):
                                            style={"description_width": "initial", "button_width": "120px"},
                                            layout=w.Layout(display="" if len(self.cubes) > 1 else "none"))
         self.span_choice.add_class("cubeloupe-span-choice")
-        self.export_box = self._build_exports()
-
-    def _build_exports(self):
-        self.export_name = w.Text(value="cubeloupe", description="File names start with",
-                                  tooltip="Start of the names of the files written (a folder may be included); "
-                                          "the kind of file and its extension are added",
-                                  style={"description_width": "initial"}, layout=w.Layout(width="360px"))
-        self.export_overwrite = w.Checkbox(value=False, description="Replace existing files", indent=False,
-                                           tooltip="Allow writing over files of the same name")
-        buttons = []
-        for label, icon, tip, action in (
-            ("Moment maps (FITS)", "file", "Write the moment maps as FITS images with sky coordinates, beam "
-                                           "and units", lambda stem, ow: self.export_moments(f"{stem}_moments.fits", ow)),
-            ("Spectra (ECSV)", "table", "Write every region's spectrum as a text table",
-             lambda stem, ow: self.export_spectra(f"{stem}_spectra.ecsv", ow)),
-            ("Measurements (ECSV)", "list", "Write the measurement table as a text table",
-             lambda stem, ow: self.export_measurements(f"{stem}_lines.ecsv", ow)),
-            ("Pictures (PNG)", "image", "Draw the sky and spectrum views to PNG files (made in the kernel, "
-                                        "no browser needed)",
-             lambda stem, ow: [self.save_picture("sky", f"{stem}_sky.png", ow),
-                               self.save_picture("spectrum", f"{stem}_spectrum.png", ow)]),
-        ):
-            button = w.Button(description=label, icon=icon, tooltip=tip, layout=w.Layout(width="200px"))
-            button.add_class("cubeloupe-export-" + label.split()[0].lower())
-            button.on_click(lambda _, action=action, label=label: self._export_clicked(action, label))
-            buttons.append(button)
-        self.export_status = StatusLine()
-        return w.VBox([w.HBox([self.export_name, self.export_overwrite], layout=w.Layout(flex_flow="row wrap")),
-                       w.HBox(buttons, layout=w.Layout(flex_flow="row wrap")), self.export_status])
-
-    def _export_clicked(self, action, label):
-        with self.export_status.guard(f"writing {label}"):
-            written = action(self.export_name.value.strip() or "cubeloupe", self.export_overwrite.value)
-            written = written if isinstance(written, list) else [written]
-            self.export_status.info("Written: " + ", ".join(str(p) for p in written))
+        self.export_box = ExportPanel(self)
+        self.export_name, self.export_overwrite = self.export_box.name, self.export_box.overwrite
+        self.export_status = self.export_box.status
 
     def _layout(self, title):
         tabs = w.Tab(children=[self.moment_panel, self.measurement_table, self.export_box])
@@ -318,35 +278,8 @@ class Loupe(w.VBox):
 
     def _show_header(self):
         """One thin line per cube: file, shape, band, beam, unit (the current window in bold)."""
-        parts = []
-        for index, cube in enumerate(self.cubes):
-            f = self._frequencies[index]
-            try:
-                beam = cube_beam(cube)
-                if np.ndim(beam.major) > 0:
-                    beam_text = f"beam {np.median(beam.major.to_value(u.arcsec)):.2f}″ × " \
-                                f"{np.median(beam.minor.to_value(u.arcsec)):.2f}″ (median; varies by channel)"
-                else:
-                    beam_text = (f"beam {beam.major.to_value(u.arcsec):.2f}″ × {beam.minor.to_value(u.arcsec):.2f}″,"
-                                 f" PA {beam.pa.to_value(u.deg):.0f}°")
-            except BeamError:
-                beam_text = "no beam in the header"
-            n, ny, nx = cube.shape
-            width = abs(f[-1] - f[0]) / max(n - 1, 1) * 1e3
-            band = f"{f.min():.4f}–{f.max():.4f} GHz ({width:.4g} MHz channels; channel centres)"
-            if self.velocity_only:
-                v = display_axis(cube, "velocity", rest_frequency=NOMINAL_REST_FREQUENCY,
-                                 convention=self.convention).to_value(u.km / u.s)
-                band = (f"{v.min():.2f} to {v.max():.2f} km/s ({abs(v[-1] - v[0]) / max(n - 1, 1):.4g} km/s "
-                        f"channels, {self.convention}; no rest frequency)")
-            text = (f"{html.escape(_source_name(cube, index))} · {n} channels × {ny} × {nx} pixels · "
-                    f"{band} · {beam_text} · {html.escape(unit_text(cube.unit) or 'no unit')}")
-            if len(self.cubes) > 1:
-                text = f"window {index}: {text}"
-                if index == self.window:
-                    text = f"<b>{text}</b>"
-            parts.append(text)
-        self.header.value = _TITLE.format(info="<br>".join(parts))
+        self.header.value = title_html(cube_summary(self.cubes, self._frequencies, self.window, self.convention,
+                                                    self.velocity_only))
 
     def _link_parts(self):
         sv, sp, lo, rl, mp, mt, cb = (self.sky_view, self.spectrum_view, self.line_overlay, self.region_list,
