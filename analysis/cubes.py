@@ -45,7 +45,8 @@ _CELESTIAL_PREFIXES = ("RA", "DEC", "GLON", "GLAT", "ELON", "ELAT", "SLON", "SLA
 def cube_source(cube):
     """Where and how ``cube`` was read, as recorded by `open_cube`, or None.
 
-    Keys: ``path``, ``hdu``, ``shape`` (of the stored array), ``stokes``,
+    Keys: ``path`` (made absolute but not resolved, so a symlink keeps its
+    own name), ``hdu``, ``shape`` (of the stored array), ``stokes``,
     ``spectral_axis`` (the header's own CTYPE and how it was read: see
     `SpectralReading.as_record`), ``scaling`` (BSCALE/BZERO/BLANK of integer
     data, or None), ``memory_mapped`` and ``notes`` (header quirks met).
@@ -458,7 +459,7 @@ def open_cube(path, *, hdu=None, use_dask=False, velocity_convention=None, rest_
         cube = scaled_cube(cube, scaling)
     reading = info["spectral_axis"]
     cube.meta["cubeloupe_source"] = {
-        "path": str(path.resolve()),
+        "path": _given_path(path),
         "hdu": index,
         "shape": tuple(np.shape(data)),
         "stokes": stokes,
@@ -468,6 +469,21 @@ def open_cube(path, *, hdu=None, use_dask=False, velocity_convention=None, rest_
         "notes": tuple(info["notes"]),
     }
     return cube
+
+
+def _given_path(path):
+    """The path as the user gave it, made absolute but not resolved: a symlink keeps its own name.
+
+    ``os.path.abspath`` also folds ``..``, which through a symlinked folder can
+    name another file; the unfolded absolute path is kept then.
+    """
+    folded = os.path.abspath(path)
+    try:
+        if os.path.samefile(folded, path):
+            return folded
+    except OSError:
+        pass
+    return str(Path(path).absolute())
 
 
 def _spectral_fits_axis(header):

@@ -42,6 +42,7 @@ import astropy.units as u
 import numpy as np
 
 from .baseline import BaselineFit, CachedAxis, as_spectrum, fit_baseline, line_free_mask
+from .cubes import check_total_intensity
 from .errors import BlankedDataWarning, FitError, UndefinedErrorWarning
 from .polybaseline import check_order
 from .spectral import axis_in, check_convention, check_redshift, check_rest_frequency
@@ -194,7 +195,7 @@ def _fit_gaussian(v, y, rms, guess):
 
 
 def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=None, z=0.0,
-                 convention="radio", spectral_axis=None):
+                 convention="radio", spectral_axis=None, allow_polarisation=False):
     """Measure the integrated flux, centroid, FWHM, peak and S/N of a line.
 
     See the module docstring for the formulas and their sources.
@@ -219,6 +220,9 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     convention : {'radio', 'optical', 'relativistic'}
     spectral_axis : Quantity, optional
         Axis of a plain-Quantity ``spectrum``.
+    allow_polarisation : bool
+        Measure a spectrum of a lone polarisation plane (Stokes Q, U, V, ...)
+        anyway; by default it is refused (see `check_total_intensity`).
 
     Returns
     -------
@@ -235,6 +239,9 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
         ``rest_frequency`` not a frequency, or ranges not spectral.
     SpectralAxisError
         No way to express the axis as velocity (no rest frequency anywhere).
+    PolarisationError
+        ``spectrum`` comes from a cube holding one Stokes plane other than I
+        (its ``meta`` says so), unless ``allow_polarisation`` is True.
 
     Warns
     -----
@@ -259,6 +266,7 @@ def measure_line(spectrum, window, *, line_free=None, order=1, rest_frequency=No
     >>> round(line.centroid.to_value(u.km / u.s)), round(line.snr)
     (1464, 16)
     """
+    check_total_intensity(spectrum, allow_polarisation=allow_polarisation, what="a line flux")
     order = check_order(order)
     check_convention(convention)
     z = check_redshift(z)

@@ -37,6 +37,7 @@ import numpy as np
 
 from .beams import map_beam
 from .blocks import run_blocks, spectra_blocks
+from .cubes import check_total_intensity
 from .errors import SpectralRangeError
 from .polybaseline import BaselineBasis, check_order
 from .spectral import axis_in, channel_mask
@@ -276,7 +277,8 @@ def _projection(values, unit, cube, beam, what):
 
 
 def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z=0.0, convention="radio",
-                clip=None, client=None, progress=None, cancel=None, block_shape=None):
+                clip=None, client=None, progress=None, cancel=None, block_shape=None,
+                allow_polarisation=False):
     """Moment 0, 1 and 2 maps over a window, after an optional per-pixel baseline.
 
     Parameters
@@ -312,6 +314,9 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
         Set it to stop; `CancelledComputation` is then raised.
     block_shape : (int, int), optional
         Pixels (rows, columns) per block; default a few MB per block.
+    allow_polarisation : bool
+        Make maps of a lone polarisation plane (Stokes Q, U, V, ...) anyway;
+        by default they are refused (see `check_total_intensity`).
 
     Returns
     -------
@@ -329,6 +334,9 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
         Velocities asked for without a rest frequency.
     CancelledComputation
         ``cancel`` was set.
+    PolarisationError
+        The cube holds one Stokes plane other than I, unless
+        ``allow_polarisation`` is True.
 
     Warns
     -----
@@ -357,6 +365,7 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
     >>> bool(1300 < np.nanmedian(maps.m1.value) < 1620)    # the disk's systemic velocity is 1462 km/s
     True
     """
+    check_total_intensity(cube, allow_polarisation=allow_polarisation, what="a moment map")
     if line_free is not None and order is not None:
         order = check_order(order)
     clip = _check_clip(clip, line_free)

@@ -28,7 +28,7 @@ import astropy.units as u
 import numpy as np
 
 from .beams import beam_area_pixels, pixel_solid_angle
-from .cubes import cube_source, source_name
+from .cubes import check_total_intensity, cube_source, source_name
 from .errors import BlankedDataWarning, PartialRegionWarning, RegionError, UnitMismatchError
 from .prefetch import prefetch_if_cold
 from .spectral import frequency_axis
@@ -224,7 +224,7 @@ def _default_statistic(unit):
     return "mean"
 
 
-def region_spectrum(cube, region, statistic=None):
+def region_spectrum(cube, region, statistic=None, *, allow_polarisation=False):
     """The spectrum of a region: flux density, mean, sum, median or maximum per channel.
 
     Parameters
@@ -242,6 +242,9 @@ def region_spectrum(cube, region, statistic=None):
         docstring for the formulas; per channel where beams vary); the other
         statistics are taken over the valid pixels of each channel, in the
         cube's unit.
+    allow_polarisation : bool
+        Measure ``'flux'`` on a lone polarisation plane (Stokes Q, U, V, ...)
+        anyway; by default it is refused (see `check_total_intensity`).
 
     Returns
     -------
@@ -262,6 +265,9 @@ def region_spectrum(cube, region, statistic=None):
         ``'flux'`` of a cube whose unit is not Jy/beam, Jy/pixel or K.
     SpectralAxisError
         ``'flux'`` of a K cube whose channel frequencies are unknown.
+    PolarisationError
+        ``'flux'`` of a cube holding one Stokes plane other than I, unless
+        ``allow_polarisation`` is True.
 
     Warns
     -----
@@ -293,6 +299,7 @@ def region_spectrum(cube, region, statistic=None):
     flux_scale = None
     beam_pixels = None
     if statistic == "flux":
+        check_total_intensity(cube, allow_polarisation=allow_polarisation, what="a flux density")
         if is_per_beam(unit):
             beam_pixels = beam_area_pixels(cube)
             flux_scale = (unit * u.beam).to(u.Jy) / beam_pixels

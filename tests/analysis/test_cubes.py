@@ -40,8 +40,10 @@ from cubeloupe.analysis import (
     moment_maps,
     open_cube,
     region_spectrum,
+    source_name,
 )
 from cubeloupe.analysis import cubes as cubes_module
+from cubeloupe.analysis.cube_file import file_view
 
 SHAPE = (6, 5, 4)
 
@@ -176,6 +178,36 @@ def test_memory_mapped_read_only_and_recorded(cube_path):
     cube.moment0()
     del cube, base
     assert file_digest(path) == before
+
+
+def test_symlinked_file_keeps_the_name_the_user_gave(tmp_path, monkeypatch):
+    # A delivery often links cubes under readable names: reports and errors must show that name (#14),
+    # while the data are still read through the target's memory map.
+    store = tmp_path / "store"
+    store.mkdir()
+    target = write_cube(store / "member.uid___A001_X1_spw25.cube.I.pbcor.fits", ramp(), stokes=True,
+                        extra={"CRVAL4": 2.0})
+    link = tmp_path / "my_source_co21.fits"
+    link.symlink_to(target)
+    monkeypatch.chdir(tmp_path)
+    with pytest.warns(PolarisationWarning, match="my_source_co21.fits"):
+        cube = open_cube("my_source_co21.fits")  # relative, as typed
+    assert cube_source(cube)["path"] == str(link)  # absolute, not resolved
+    assert source_name(cube) == str(link)
+    with pytest.raises(PolarisationError, match="my_source_co21.fits"):
+        check_total_intensity(cube)
+    view = file_view(cube)
+    assert view is not None and view.path == str(link)  # the memory-map fast paths still find the file
+    assert_allclose(view.array(), ramp())
+    # Through a symlinked folder, ".." is the target's parent (POSIX path resolution), so folding it
+    # would name another file: the path is then kept unfolded.
+    (tmp_path / "a" / "b").mkdir(parents=True)
+    (tmp_path / "to_b").symlink_to(tmp_path / "a" / "b")
+    meant = write_cube(tmp_path / "a" / "x.fits", ramp() + 1.0)
+    write_cube(tmp_path / "x.fits", ramp() - 1.0)  # the file the folded name would point at
+    tricky = open_cube(tmp_path / "to_b" / ".." / "x.fits")
+    assert os.path.samefile(cube_source(tricky)["path"], meant)
+    assert_allclose(file_view(tricky).array(), ramp() + 1.0)
 
 
 def test_not_fits(tmp_path):

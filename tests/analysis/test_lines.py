@@ -15,6 +15,8 @@ from cubeloupe.analysis import (
     FitError,
     LineFreeOverlapWarning,
     LineMeasurement,
+    PolarisationError,
+    PolarisationWarning,
     RedshiftError,
     SpectralAxisError,
     SpectralRangeError,
@@ -241,3 +243,19 @@ def test_result_is_frozen_and_summarised():
     with pytest.raises(dataclasses.FrozenInstanceError):
         line.flux = 0
     assert "flux" in line.summary() and "FWHM" in line.summary()
+
+
+def test_line_on_a_lone_stokes_v_plane_is_refused_unless_asked(cube_path):
+    # CRVAL4 = 4 on a STOKES axis is V (Greisen & Calabretta 2002, A&A 395, 1061, Table 7). The
+    # spectrum keeps the cube's source, so measuring a line on it is refused unless asked for (#13).
+    v = velocity_axis_kms(60, crpix3=30.5)
+    line = gaussian_profile(v, 0.8, 0.0, 8.0)
+    data = np.broadcast_to(line[:, None, None], (60, 6, 6)).astype(float)
+    with pytest.warns(PolarisationWarning):
+        cube = open_cube(cube_path(data, name="plane_v.fits", crpix3=30.5, stokes=True, extra={"CRVAL4": 4.0}))
+    spec = region_spectrum(cube, CirclePixelRegion(PixCoord(2.5, 2.5), radius=2), statistic="mean")
+    with pytest.raises(PolarisationError, match=r"plane_v\.fits.*Stokes V.*allow_polarisation=True"):
+        measure_line(spec, (-30, 30) * KMS, rest_frequency=REST)
+    asked = measure_line(spec, (-30, 30) * KMS, rest_frequency=REST, allow_polarisation=True)
+    # Integral of a Gaussian: A sigma sqrt(2 pi) (analytic), summed over 1.3 km/s channels.
+    assert_allclose(asked.flux.to_value(u.Jy / u.beam * KMS), 0.8 * 8.0 * np.sqrt(2 * np.pi), rtol=1e-3)

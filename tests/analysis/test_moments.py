@@ -12,6 +12,8 @@ from cubeloupe.analysis import (
     CancelledComputation,
     CubeloupeError,
     FitError,
+    PolarisationError,
+    PolarisationWarning,
     SpectralAxisError,
     SpectralRangeError,
     open_cube,
@@ -323,3 +325,20 @@ def test_temperature_cube_without_beam(centred_path):
     cube = open_cube(centred_path(gaussian_cube(), bunit="K", beam=None))
     maps = moment_maps(cube, WINDOW, rest_frequency=CO21)
     assert maps.m0.unit == u.K * KMS
+
+
+def test_moment_maps_of_a_lone_stokes_q_plane_are_refused_unless_asked(centred_path):
+    # CRVAL4 = 2 on a STOKES axis is Q (Greisen & Calabretta 2002, A&A 395, 1061, Table 7); moment 0 of
+    # Q is not an integrated intensity of the source, so it is refused unless asked for (#13).
+    data = gaussian_cube()
+    with pytest.warns(PolarisationWarning):
+        q_cube = open_cube(centred_path(data, name="plane_q.fits", stokes=True, extra={"CRVAL4": 2.0}))
+    with pytest.raises(PolarisationError, match=r"plane_q\.fits.*Stokes Q.*allow_polarisation=True"):
+        moment_maps(q_cube, WINDOW, line_free=LINE_FREE, rest_frequency=CO21)
+    asked = moment_maps(q_cube, WINDOW, line_free=LINE_FREE, rest_frequency=CO21, allow_polarisation=True)
+    # Asked for, the maps are the plain moments of the values (numpy reference above).
+    free = (np.abs(VEL) >= 70) & (np.abs(VEL) <= 150)
+    window = np.abs(VEL) <= 60
+    expected = naive_moments(data[:, 0, 0].astype(np.float32).astype(float), VEL, window, free, 1)
+    assert_allclose(asked.m0.value[0, 0], expected[0], rtol=1e-5)
+    assert_allclose(asked.m1.value[0, 0], expected[1], atol=1e-3)

@@ -27,6 +27,8 @@ from cubeloupe.analysis import (
     BeamError,
     BlankedDataWarning,
     PartialRegionWarning,
+    PolarisationError,
+    PolarisationWarning,
     RegionError,
     UnitMismatchError,
     open_cube,
@@ -343,3 +345,22 @@ def test_input_file_unchanged_by_every_operation(cube_path, rng):
     measure_line(spec, (16, 36) * u.km / u.s, line_free=[(0, 12), (40, 52)] * u.km / u.s, rest_frequency=rest)
     del cube, spec
     assert file_digest(path) == before
+
+
+def test_flux_of_a_lone_stokes_q_plane_is_refused_unless_asked(cube_path):
+    # CRVAL4 = 2 on a STOKES axis is Q (Greisen & Calabretta 2002, A&A 395, 1061, Table 7): a flux
+    # density of Q is not the source's flux, so it is refused unless asked for (#13).
+    beam = (1.2, 0.8, 30.0)
+    data = np.array([0.5, 2.0])[:, None, None] * beam_image((32, 32), 15.0, 16.0, *beam)
+    with pytest.warns(PolarisationWarning):
+        q_cube = open_cube(cube_path(data, name="plane_q.fits", beam=beam, stokes=True, extra={"CRVAL4": 2.0}))
+    region = CirclePixelRegion(PixCoord(15, 16), radius=10)
+    with pytest.raises(PolarisationError, match=r"plane_q\.fits.*Stokes Q.*allow_polarisation=True"):
+        region_spectrum(q_cube, region)
+    # Asked for, it is the same sum over the beam as for a total-intensity plane of the same values.
+    i_cube = open_cube(cube_path(data, name="plane_i.fits", beam=beam, stokes=True))
+    asked = region_spectrum(q_cube, region, allow_polarisation=True)
+    assert_allclose(asked.value, region_spectrum(i_cube, region).value, rtol=1e-12)
+    assert_allclose(asked.value, [0.5, 2.0], rtol=1e-3)  # point-source fluxes (common practice)
+    # Brightness statistics in the cube's own unit are not fluxes: they stay allowed.
+    assert region_spectrum(q_cube, region, statistic="mean").unit == u.Jy / u.beam

@@ -18,6 +18,8 @@ from cubeloupe.analysis import (
     CubeloupeError,
     CubeShapeError,
     MissingUnitWarning,
+    PolarisationError,
+    PolarisationWarning,
     RegionError,
     SpectralAxisError,
     UndefinedErrorWarning,
@@ -191,6 +193,30 @@ def test_symbolic_link_to_a_cube_opens(sandbox):
     link.symlink_to(target)
     cube = open_cube(link)
     assert cube.shape == SHAPE
+    assert source_name(cube) == str(link)  # the name the user gave, not the target's (#13)
+
+
+# A degenerate STOKES axis at CRVAL4 = 2, 3, 4 is Q, U, V (Greisen & Calabretta 2002, A&A 395, 1061,
+# Table 7): a flux of one polarisation plane is not the source's flux (#13).
+FLUX_PATHS = {
+    "region flux": lambda cube: region_spectrum(cube, CirclePixelRegion(PixCoord(7.5, 7.5), 3)),
+    "line": lambda cube: measure_line(region_spectrum(cube, CirclePixelRegion(PixCoord(7.5, 7.5), 3),
+                                                      statistic="mean"), (-10, 10) * KMS, rest_frequency=REST),
+    "moment maps": lambda cube: moment_maps(cube, (-10, 10) * KMS, rest_frequency=REST),
+}
+
+
+@pytest.mark.parametrize("crval4, stokes", [(2.0, "Q"), (3.0, "U"), (4.0, "V")])
+@pytest.mark.parametrize("measure", list(FLUX_PATHS))
+def test_flux_of_a_lone_polarisation_plane_is_refused_with_the_way_out(sandbox, crval4, stokes, measure):
+    path = sandbox.cube(f"pol_{stokes}.fits", stokes=True, extra={"CRVAL4": crval4})
+    with pytest.warns(PolarisationWarning, match=f"Stokes {stokes}"):
+        cube = open_cube(path)
+    with pytest.raises(PolarisationError) as caught:
+        FLUX_PATHS[measure](cube)
+    message = str(caught.value)
+    assert f"pol_{stokes}.fits" in message and f"Stokes {stokes}" in message
+    assert "Stokes I cube" in message and "allow_polarisation=True" in message
 
 
 def test_file_is_opened_read_only_and_left_as_it_was(sandbox):
