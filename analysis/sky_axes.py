@@ -192,11 +192,14 @@ def sky_axes(wcs, shape):
                    tilt=tilt, shape=(ny, nx))
 
 
-def nice_ticks(low, high, max_ticks):
+def nice_ticks(low, high, max_ticks, min_ticks=2):
     """Tick positions between ``low`` and ``high`` at multiples of 1, 2, 2.5 or 5 times a power of ten.
 
     The step is the smallest such that at most ``max_ticks`` ticks fall in the range (the steps
-    matplotlib's ``MaxNLocator`` uses by default; common practice).
+    matplotlib's ``MaxNLocator`` uses by default; common practice). When that step leaves fewer
+    than ``min_ticks`` ticks in the range (a narrow map with room for one or two labels), the
+    largest step that gives ``min_ticks`` is taken instead, as ``MaxNLocator``'s ``min_n_ticks``
+    does: an axis with a single tick cannot be read.
 
     Parameters
     ----------
@@ -204,6 +207,8 @@ def nice_ticks(low, high, max_ticks):
         The axis range (either order).
     max_ticks : int
         Most ticks wanted (at least 1).
+    min_ticks : int
+        Fewest ticks wanted (default 2); wins over ``max_ticks`` when both cannot hold.
 
     Returns
     -------
@@ -216,22 +221,31 @@ def nice_ticks(low, high, max_ticks):
     [-10.0, -5.0, 0.0, 5.0, 10.0]
     >>> nice_ticks(14.1, -12.3, 3).tolist()
     [-10.0, 0.0, 10.0]
+    >>> nice_ticks(-3.0, 3.0, 2).tolist()   # a 6"-wide map: 0 alone would not say the scale
+    [-2.5, 0.0, 2.5]
     """
     low, high = sorted((float(low), float(high)))
     max_ticks = max(int(max_ticks), 1)
     if not (math.isfinite(low) and math.isfinite(high)) or high == low:
         return np.array([low]) if math.isfinite(low) else np.array([])
-    step_size = 10.0 ** math.floor(math.log10((high - low) / max_ticks))
-    while True:
-        for factor in (1, 2, 2.5, 5):
-            step = factor * step_size
-            first, last = math.ceil(low / step - 1e-9), math.floor(high / step + 1e-9)
-            if last - first + 1 <= max_ticks:
-                ticks = np.arange(first, last + 1) * step
-                # Round away representation noise such as 0.30000000000000004.
-                digits = max(0, -math.floor(math.log10(step)) + 1)
-                return np.round(ticks, digits) + 0.0
-        step_size *= 10
+    min_ticks = max(int(min_ticks), 1)
+
+    def placed(step):
+        first, last = math.ceil(low / step - 1e-9), math.floor(high / step + 1e-9)
+        return first, last, last - first + 1
+
+    exponent = math.floor(math.log10((high - low) / max_ticks))
+    steps = [factor * 10.0 ** e for e in range(exponent, exponent + 3) for factor in (1, 2, 2.5, 5)]
+    chosen = next(step for step in steps + [10.0 ** (exponent + 3)] if placed(step)[2] <= max_ticks)
+    if placed(chosen)[2] < min_ticks:
+        # Finer steps, coarsest first, until enough ticks fall in the range.
+        finer = [factor * 10.0 ** e for e in range(exponent + 2, exponent - 3, -1) for factor in (5, 2.5, 2, 1)]
+        chosen = next((step for step in finer if step < chosen and placed(step)[2] >= min_ticks), chosen)
+    first, last, _ = placed(chosen)
+    ticks = np.arange(first, last + 1) * chosen
+    # Round away representation noise such as 0.30000000000000004.
+    digits = max(0, -math.floor(math.log10(chosen)) + 1)
+    return np.round(ticks, digits) + 0.0
 
 
 def tick_decimals(ticks):

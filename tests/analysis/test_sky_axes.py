@@ -151,6 +151,38 @@ def test_ticks_agree_with_matplotlib(low, high, most):
     assert step[0] <= np.diff(reference)[0] * (1 + 1e-9)
 
 
+def test_a_narrow_map_gets_at_least_two_ticks():
+    """Issue #17: a 6 x 21-pixel map (1" pixels) was drawn with a single x tick.
+
+    Its plot area is ~130 px wide beside a 460 px side, room for two 48 px labels; the offsets run
+    -3" to +3". matplotlib's MaxNLocator relaxes its bin count to keep ``min_n_ticks`` = 2 ticks
+    (matplotlib.ticker): one tick gives no scale to read.
+    """
+    axes = sky_axes(celestial_wcs(cdelt=(-1.0, 1.0), crpix=(3.5, 11.0)), (21, 6))
+    width, _ = axes.plot_size(460)
+    low, high = (v.value for v in axes.offsets([-0.5, 5.5], 0)[0])
+    ticks = nice_ticks(low, high, width // 48)
+    reference = MaxNLocator(nbins=max(width // 48 - 1, 1), steps=[1, 2, 2.5, 5, 10],
+                            min_n_ticks=2).tick_values(low, high)
+    reference = reference[(reference >= min(low, high) - 1e-9) & (reference <= max(low, high) + 1e-9)]
+    assert len(ticks) >= 2
+    assert ticks.tolist() == pytest.approx(reference.tolist())
+    assert all(min(low, high) <= t <= max(low, high) for t in ticks)
+    # Readable labels: no more decimals than the step needs (one for 2.5" steps).
+    assert tick_decimals(ticks) <= 1
+
+
+@pytest.mark.parametrize("low, high, most", [(-3.0, 3.0, 2), (-3.0, 3.0, 1), (-0.3, 0.3, 2), (10.2, 10.9, 1),
+                                              (-7.4, 7.9, 2)])
+def test_too_few_ticks_are_relaxed_as_matplotlib_does(low, high, most):
+    ticks = nice_ticks(low, high, most)
+    # MaxNLocator(min_n_ticks=2) is the reference (matplotlib.ticker).
+    reference = MaxNLocator(nbins=max(most - 1, 1), steps=[1, 2, 2.5, 5, 10], min_n_ticks=2).tick_values(low, high)
+    reference = reference[(reference >= low - 1e-9) & (reference <= high + 1e-9)]
+    assert len(ticks) >= 2
+    assert ticks.tolist() == pytest.approx(reference.tolist())
+
+
 @pytest.fixture
 def real_cube_header():
     def read(name):
