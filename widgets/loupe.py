@@ -443,6 +443,8 @@ class Loupe(w.VBox):
         self._measure()
 
     def _on_shape(self, kind, params):
+        if kind == "path":
+            return  # a path is no region: the position–velocity view takes it (#18)
         self.region_list.wcs = self.cube.wcs
         shape = self.region_list.from_gesture(kind, params, self.cube.wcs)
         if self.region_list.reshape and self.region_list.selected:

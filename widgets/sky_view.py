@@ -24,6 +24,7 @@ from cubeloupe.analysis import (
 )
 
 from ._look import DIVERGING_RAMPS, RAMPS, blank_color, row
+from .path_tool import PathTool  # the path tool of position–velocity slices (#18)
 from .status import StatusLine
 
 __all__ = ["SkyView", "TOOLS", "MAX_WIDTH"]
@@ -54,6 +55,8 @@ TOOLS = {
     "outline": ("Outline", "pencil", "Click corner after corner to outline a free-form region; "
                                      "double-click (or press Close outline) to finish it"),
     "pixel": ("Pixel", "crosshairs", "Click one pixel to make a one-pixel region"),
+    "path": ("Path", "share-alt", "Click point after point along a path for a position–velocity slice; "
+                                  "double-click (or press Finish path) to end it"),
 }
 
 
@@ -193,7 +196,7 @@ class SkyView(w.VBox):
             options=[(label, key) for key, (label, _, _) in TOOLS.items()],
             tooltips=[tip for _, _, tip in TOOLS.values()],
             icons=[icon for _, icon, _ in TOOLS.values()],
-            style=w.ToggleButtonsStyle(button_width="86px"))
+            style=w.ToggleButtonsStyle(button_width="auto"))
         self.tool_buttons.add_class("cubeloupe-region-tools")
         w.link((self.tool_buttons, "value"), (self, "tool"))
         self.close_outline_button = w.Button(description="Close outline", icon="check",
@@ -240,8 +243,10 @@ class SkyView(w.VBox):
                                          style={"description_width": "initial"}, layout=w.Layout(width="180px"))
         self.contour_choice.add_class("cubeloupe-contours")
         w.link((self.contour_choice, "value"), (self, "contour_source"))
+        self.path_tool = PathTool(self)
+        self.figure.marks = [*self.figure.marks, *self.path_tool.marks]
         self._toolbar = w.VBox([
-            row([self.tool_buttons, self.close_outline_button], flex_flow="row wrap"),
+            row([self.tool_buttons, self.close_outline_button, self.path_tool], flex_flow="row wrap"),
             row([self.source_choice, self.contour_choice, self.beam_toggle], flex_flow="row wrap"),
         ])
         self._display_bar = w.VBox([
@@ -563,14 +568,15 @@ class SkyView(w.VBox):
                                display_legend=False, fill="none"))
         self.outline_marks = marks
         self.figure.marks = [self.image, self.contour_mark, *marks, self.beam_mark, self.draft_mark,
-                             self.draft_points, self.oval_draft]
+                             self.draft_points, self.oval_draft, *self.path_tool.marks]
 
     # ------------------------------------------------------------- gestures
     def on_shape(self, callback, remove=False):
         """Register ``callback(kind, params)`` called when a gesture completes a shape.
 
         ``kind`` is 'box' or 'oval' (params: x, y (two corners each, pixels), angle (deg)),
-        'outline' (params: vertices [[x, y], ...]) or 'pixel' (params: x, y).
+        'outline' (params: vertices [[x, y], ...]), 'pixel' (params: x, y) or 'path' (params: vertices
+        [[x, y], ...], width, width_unit 'pixels' or 'arcsec'; see `PathTool`).
         """
         if remove:
             self._shape_callbacks.remove(callback)
@@ -580,6 +586,10 @@ class SkyView(w.VBox):
     def _emit(self, kind, params):
         for callback in list(self._shape_callbacks):
             callback(kind, params)
+
+    def emit_shape(self, kind, params):
+        """Hand a completed shape to every `on_shape` listener (used by gesture tools of their own modules)."""
+        self._emit(kind, params)
 
     def _on_oval_drag(self, change):
         """Draw the ellipse filling the box being dragged with the oval tool."""
@@ -630,6 +640,8 @@ class SkyView(w.VBox):
             self.polygon_vertices = self.polygon_vertices + [[x, y]]
         elif event == "dblclick" and self.tool == "outline":
             self.finish_outline()
+        elif event in ("click", "dblclick") and self.tool == "path":
+            self.path_tool.handle(event, x, y)
 
     def finish_outline(self):
         """Close the free-form outline being clicked and hand it over as a region."""
