@@ -68,7 +68,7 @@ from .display import (
 from .prefetch import prefetch_channels
 from .sky_axes import SkyAxes, nice_ticks, sky_axes, tick_decimals
 from .sky_look import beam_anchor, centred_limits, data_bounds
-from .export import check_output_path, write_map, write_maps, write_spectra, write_table
+from .export import check_output_path, write_figure, write_map, write_maps, write_spectra, write_table
 from .smoothing import (
     SMOOTHING_KERNELS, channel_correlation, correlated_error, noise_correlation_factor, smooth_spectrum,
     smoothing_kernel, with_channel_correlation,
@@ -106,7 +106,7 @@ __all__ = [
     "to_observed_frequency",
     "prefetch_channels",
     "SkyAxes", "nice_ticks", "sky_axes", "tick_decimals", "beam_anchor", "centred_limits", "data_bounds",
-    "check_output_path", "write_map", "write_maps", "write_spectra", "write_table",
+    "check_output_path", "write_figure", "write_map", "write_maps", "write_spectra", "write_table",
     "SMOOTHING_KERNELS", "channel_correlation", "correlated_error", "noise_correlation_factor", "smooth_spectrum",
     "smoothing_kernel", "with_channel_correlation",
     "GaussianComponent", "GaussianFit", "HyperfineSolution", "fit_gaussians", "hyperfine_lines",

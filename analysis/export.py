@@ -30,6 +30,8 @@ What each writer holds:
   one ECSV table in long form (one row per channel per spectrum), because
   spectral windows have different channel grids.
 * `write_table` writes an astropy Table as ECSV.
+* `write_figure` writes a matplotlib Figure (PNG, PDF, SVG, by the name's
+  extension) through ``Figure.savefig``.
 
 Text columns in ECSV: a value that the plain ECSV text form would not give
 back unchanged (leading or trailing spaces, an empty string, a carriage
@@ -62,7 +64,7 @@ from astropy.table import Table, vstack
 from .errors import CubeFileError, ExportContentError, ExportError, OutputExistsError, SpectralAxisError
 from .spectral import frequency_axis
 
-__all__ = ["write_map", "write_maps", "write_spectra", "write_table", "check_output_path"]
+__all__ = ["write_map", "write_maps", "write_spectra", "write_table", "write_figure", "check_output_path"]
 
 # What each operating-system error means for the person exporting, and what to do.
 _CAUSES = {
@@ -487,3 +489,40 @@ def write_table(table, path, *, overwrite=False):
     """
     path = check_output_path(path, overwrite)
     return _write_ecsv(Table(table), path, overwrite)
+
+
+def write_figure(figure, path, *, overwrite=False, **savefig):
+    """Write a matplotlib Figure to PNG, PDF or SVG (by the extension of ``path``), atomically.
+
+    Parameters
+    ----------
+    figure : matplotlib.figure.Figure
+        E.g. from `channel_maps`.
+    path, overwrite
+        As for `write_map`.
+    **savefig
+        Passed to ``Figure.savefig`` (e.g. ``dpi=150``).
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    ExportContentError
+        ``path`` has no extension matplotlib can write, or ``figure`` is no Figure.
+    OutputExistsError, CubeFileError, ExportError
+        See `write_map`.
+    """
+    path = check_output_path(path, overwrite)
+    if not hasattr(figure, "savefig") or not hasattr(figure, "canvas"):
+        raise ExportContentError(f"{type(figure).__name__} is not a matplotlib Figure; pass e.g. channel_maps(...)")
+    kind = path.suffix.lower().lstrip(".")
+    formats = figure.canvas.get_supported_filetypes()
+    if kind not in formats:
+        raise ExportContentError(f"cannot write a figure as {_shown(path)}: end the name with one of "
+                                 f"{', '.join('.' + k for k in sorted(formats))} (e.g. .png or .pdf)")
+    with _replacing(path, overwrite) as temporary:
+        # The temporary name ends in .part: the format is given, not guessed from it.
+        figure.savefig(temporary, format=kind, **savefig)
+    return path

@@ -99,3 +99,27 @@ def test_check_output_path_expands_the_home_folder(monkeypatch, tmp_path):
     monkeypatch.setenv("HOME", str(tmp_path))
     assert check_output_path("~/new.fits") == tmp_path / "new.fits"
     assert os.listdir(tmp_path) == [], "the writability probe leaves nothing"
+
+
+def test_figure_is_written_as_its_extension_says_and_never_replaced(tmp_path):
+    """write_figure (#18): PNG and PDF by the name's extension; an existing file is refused unless asked."""
+    from matplotlib.figure import Figure
+
+    from cubeloupe.analysis import ExportContentError, OutputExistsError, write_figure
+
+    figure = Figure(figsize=(2, 2))
+    figure.add_subplot().plot([0, 1], [1, 0])
+    png = write_figure(figure, tmp_path / "maps.png", dpi=50)
+    pdf = write_figure(figure, tmp_path / "maps.pdf")
+    # PNG signature (PNG specification, ISO/IEC 15948, section 5.2); PDF header (ISO 32000-1, section 7.5.2).
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert pdf.read_bytes()[:5] == b"%PDF-"
+    before = png.read_bytes()
+    with pytest.raises(OutputExistsError, match="overwrite=True"):
+        write_figure(figure, png)
+    assert png.read_bytes() == before
+    write_figure(figure, png, overwrite=True, dpi=30)
+    assert png.read_bytes() != before
+    with pytest.raises(ExportContentError, match=r"\.png"):
+        write_figure(figure, tmp_path / "maps.fits")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["maps.pdf", "maps.png"], "no temporary file is left"
