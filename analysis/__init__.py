@@ -74,6 +74,7 @@ from .smoothing import (
     smoothing_kernel, with_channel_correlation,
 )
 from .gaussian_fits import GaussianComponent, GaussianFit, fit_gaussians
+from .correlated_lines import correlated_line_errors, correlated_measurement_table
 from .hyperfine import HyperfineSolution, hyperfine_lines
 from .pv_slice import PVSlice, pv_slice
 from .channel_maps import ChannelPanels, channel_maps, channel_panels
@@ -110,5 +111,6 @@ __all__ = [
     "SMOOTHING_KERNELS", "channel_correlation", "correlated_error", "noise_correlation_factor", "smooth_spectrum",
     "smoothing_kernel", "with_channel_correlation",
     "GaussianComponent", "GaussianFit", "HyperfineSolution", "fit_gaussians", "hyperfine_lines",
+    "correlated_line_errors", "correlated_measurement_table",
     "PVSlice", "pv_slice", "ChannelPanels", "channel_maps", "channel_panels",
 ]
