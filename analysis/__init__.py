@@ -76,6 +76,10 @@ from .smoothing import (
 from .gaussian_fits import GaussianComponent, GaussianFit, fit_gaussians
 from .correlated_lines import correlated_line_errors, correlated_measurement_table
 from .hyperfine import HyperfineSolution, hyperfine_lines
+from .level_populations import STATISTICAL_ORTHO_PARA, line_intensity, molecular_mass, spin_partition_function, \
+    upper_level_population
+from .population import PopulationComponent, PopulationDiagram, population_diagram
+from .lte_model import lte_lines, lte_spectrum
 from .pv_slice import PVSlice, pv_slice
 from .channel_maps import ChannelPanels, channel_maps, channel_panels
 
@@ -113,4 +117,7 @@ __all__ = [
     "GaussianComponent", "GaussianFit", "HyperfineSolution", "fit_gaussians", "hyperfine_lines",
     "correlated_line_errors", "correlated_measurement_table",
     "PVSlice", "pv_slice", "ChannelPanels", "channel_maps", "channel_panels",
+    "STATISTICAL_ORTHO_PARA", "line_intensity", "molecular_mass", "spin_partition_function",
+    "upper_level_population", "PopulationComponent", "PopulationDiagram", "population_diagram",
+    "lte_lines", "lte_spectrum",
 ]
