@@ -27,6 +27,11 @@ size.
   mode exhaust memory on a cluster). The file must be visible to the workers
   at the same path (a shared file system).
 
+Integer cubes (BITPIX 8 to 64 with BSCALE/BZERO/BLANK) are read the same way:
+each block is copied out of the memory-mapped integers and scaled in that
+copy (`cube_file.stored_array`), never through the per-chunk dask graph that
+`open_cube` builds for other consumers.
+
 Cubes whose data are not a view of their file (built in memory, or the
 result of arithmetic) always run in this process, whatever ``client`` says.
 Dask-backed cubes (``open_cube(..., use_dask=True)``) read through the same
@@ -51,7 +56,7 @@ from dataclasses import dataclass
 import numpy as np
 from threadpoolctl import threadpool_limits
 
-from .cube_file import cube_array, custom_mask, file_view
+from .cube_file import cube_array, custom_mask, file_view, stored_array
 from .errors import CancelledComputation, ClusterError, CubeFileError
 from .prefetch import BlockReadAhead
 
@@ -202,8 +207,12 @@ def plane_blocks(shape, *, channels=None, itemsize=4, block_bytes=DEFAULT_BLOCK_
     return blocks
 
 
-def _read_block(array, block, dtype, mask=None):
-    """Copy ``block`` out of ``array`` into native ``dtype``; masked voxels become NaN."""
+def _read_block(array, block, dtype, mask=None, scaling=None):
+    """Copy ``block`` out of ``array`` into native ``dtype``; masked voxels become NaN.
+
+    With ``scaling`` (an `IntegerScaling`), ``array`` holds the stored
+    values and each run is scaled while it is copied (blanks become NaN).
+    """
     out = np.empty(block.shape, dtype=dtype)
     is_dask = not isinstance(array, np.ndarray)
     k = 0
@@ -212,7 +221,10 @@ def _read_block(array, block, dtype, mask=None):
         if is_dask:
             part = part.compute(scheduler="synchronous")
         # one copy: byte order and dtype are converted while copying out of the memory map
-        out[k:k + stop - start] = part
+        if scaling is None:
+            out[k:k + stop - start] = part
+        else:
+            scaling.apply_into(part, out[k:k + stop - start])
         if mask is not None:
             keep = mask((slice(start, stop), block.rows, block.columns))
             out[k:k + stop - start][~keep] = np.nan
@@ -327,8 +339,9 @@ def run_blocks(cube, kernel, blocks, consume, *, dtype=np.float64, client=None, 
 
 def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     data = cube_array(cube)
+    scaling = None
     if data is None:
-        data = cube._data
+        data, scaling = stored_array(cube) or (cube._data, None)
     mask = custom_mask(cube, data)
     total = len(blocks)
     threads = default_threads() if threads is None else max(1, int(threads))
@@ -337,7 +350,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     def work(block):
         if ahead is not None:
             ahead.before(block)
-        return kernel(_read_block(data, block, dtype, mask))
+        return kernel(_read_block(data, block, dtype, mask, scaling))
 
     if threads == 1 or total <= 1:
         # BLAS threads beyond the cores allowed fight over them: with the process on one core, an

@@ -3,7 +3,8 @@
 `open_cube` maps the file read-only; the fast paths of cubeloupe (block
 kernels, region spectra, channel images, cluster workers) read that array
 directly instead of going through spectral-cube's copies. This module finds
-the array under a cube (`cube_array`), describes where it lies in the file
+the array under a cube (`cube_array`; for integer data scaled block by block,
+the stored integers and their scaling: `stored_array`), describes where it lies in the file
 so that another process can map it itself (`file_view`, `FileView`), and
 gives the cube's own mask where it is more than "finite" (`custom_mask`).
 
@@ -25,9 +26,10 @@ import numpy as np
 from spectral_cube.masks import LazyMask
 
 from .cubes import cube_source
+from .scaled_data import SCALED_NAME_PREFIX, IntegerScaling
 from .errors import CubeFileError
 
-__all__ = ["FileView", "cube_array", "file_view", "custom_mask", "mapped_file"]
+__all__ = ["FileView", "cube_array", "stored_array", "file_view", "custom_mask", "mapped_file"]
 
 
 @dataclass(frozen=True)
@@ -112,6 +114,46 @@ def cube_array(cube):
         inner = getattr(value, "_array", value)
         if isinstance(inner, np.ndarray) and inner.shape == data.shape and inner.dtype == data.dtype:
             return inner
+    return None
+
+
+def stored_array(cube):
+    """The stored values under a cube scaled from them (integer FITS data), and their scaling; else None.
+
+    A cube from `open_cube` over integer data (BSCALE/BZERO/BLANK) is a dask
+    graph that scales the memory-mapped integers chunk by chunk
+    (`scaled_data.scaled_cube`). Block kernels read faster from the
+    integers themselves, scaling each block as they copy it out
+    (`IntegerScaling.apply_into`). Only the graph exactly as `open_cube`
+    made it qualifies: a sliced or computed cube gives None.
+
+    Returns
+    -------
+    (ndarray, IntegerScaling) or None
+        The stored array (channel, y, x), in the file's byte order, and the scaling.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_path, open_cube
+    >>> stored_array(open_cube(demo_path("disk"))) is None   # float data: nothing to scale
+    True
+    """
+    data = cube._data
+    name = getattr(data, "name", "")
+    source = cube_source(cube)
+    if not isinstance(name, str) or not name.startswith(SCALED_NAME_PREFIX) or not source \
+            or not source.get("scaling"):
+        return None
+    record = source["scaling"]
+    scaling = IntegerScaling(**{key: record[key] for key in ("bscale", "bzero", "blank", "dtype")})
+    # The stored array sits alone in the reader's "original-" layer (dask.array.from_array).
+    for layer_name, layer in data.dask.layers.items():
+        if not str(layer_name).startswith("original-"):
+            continue
+        for value in layer.values():
+            inner = getattr(value, "_array", value)
+            if isinstance(inner, np.ndarray) and inner.shape == data.shape:
+                return inner, scaling
     return None
 
 

@@ -7,8 +7,10 @@ Sect. 4.4.2.5 and 5.3). astropy applies the scaling by reading the whole array
 into memory, which a cube larger than memory cannot afford; here the
 memory-mapped integers stay on disk and a dask graph scales each block as it
 is read, so every consumer of the cube (spectral-cube's own methods and
-cubeloupe's block kernels, which read ``cube._data`` block by block) sees
-physical values and no step holds the whole cube.
+cubeloupe's block kernels) sees physical values and no step holds the whole
+cube. The block kernels go faster still: they find the stored integers under
+the graph (`cube_file.stored_array`) and scale each block while copying it
+out of the memory map (`IntegerScaling.apply_into`), as for float data.
 
 Examples
 --------
@@ -20,9 +22,14 @@ array([ 3.,  4., nan], dtype=float32)
 from dataclasses import dataclass
 
 import numpy as np
+from dask.base import tokenize
 from spectral_cube import LazyMask
 
-__all__ = ["IntegerScaling", "integer_scaling", "scaled_chunks", "scaled_cube"]
+__all__ = ["IntegerScaling", "SCALED_NAME_PREFIX", "integer_scaling", "scaled_chunks", "scaled_cube"]
+
+# The name of the dask layer that scales the stored values: a cube whose data still carry it shows
+# the file's values unchanged (any slice or arithmetic names a new layer).
+SCALED_NAME_PREFIX = "cubeloupe-scaled-"
 
 
 @dataclass(frozen=True)
@@ -36,13 +43,38 @@ class IntegerScaling:
 
     def apply(self, stored):
         """Physical values of the stored array ``stored`` (a new float array)."""
-        out = np.asarray(stored).astype(self.dtype)
+        stored = np.asarray(stored)
+        return self.apply_into(stored, np.empty(stored.shape, dtype=self.dtype))
+
+    def apply_into(self, stored, out):
+        """Write the physical values of ``stored`` into the float array ``out`` (same shape); return ``out``.
+
+        The scaling is computed in ``out``'s dtype, or in this scaling's own
+        dtype when that is wider (32-bit integers are scaled in float64, as
+        astropy does, before being rounded to a float32 ``out``). ``stored``
+        may be big-endian (a view of the file): the byte order is converted
+        in the same pass.
+
+        Examples
+        --------
+        >>> scaling = IntegerScaling(bscale=2.0, bzero=1.0, blank=0, dtype="float32")
+        >>> scaling.apply_into(np.array([0, 1, 2], dtype=">i2"), np.empty(3, dtype="float64"))
+        array([nan,  3.,  5.])
+        """
+        work = out
+        if np.dtype(self.dtype).itemsize > out.dtype.itemsize:
+            work = np.empty(out.shape, dtype=self.dtype)
+        kind = work.dtype.type
         if self.bscale != 1:
-            out *= self.dtype_type(self.bscale)
+            np.multiply(stored, kind(self.bscale), out=work, casting="unsafe")
+        else:
+            work[...] = stored
         if self.bzero != 0:
-            out += self.dtype_type(self.bzero)
+            work += kind(self.bzero)
+        if work is not out:
+            out[...] = work
         if self.blank is not None:
-            out[np.asarray(stored) == self.blank] = np.nan
+            out[stored == self.blank] = np.nan
         return out
 
     @property
@@ -104,6 +136,7 @@ def scaled_cube(cube, scaling):
     # Small chunks (about 2 MB once scaled): a channel image or a region's box
     # then scales only the chunks it touches, never the whole cube.
     stored = cube._data.rechunk(scaled_chunks(cube._data.shape, np.dtype(scaling.dtype).itemsize))
-    data = stored.map_blocks(scaling.apply, dtype=np.dtype(scaling.dtype))
+    data = stored.map_blocks(scaling.apply, dtype=np.dtype(scaling.dtype),
+                             name=SCALED_NAME_PREFIX + tokenize(stored.name, scaling.as_record()))
     mask = LazyMask(np.isfinite, data=data, wcs=cube._wcs)
     return cube._new_cube_with(data=data, mask=mask)

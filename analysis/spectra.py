@@ -28,6 +28,7 @@ import astropy.units as u
 import numpy as np
 
 from .beams import beam_area_pixels, pixel_solid_angle
+from .cube_file import stored_array
 from .cubes import check_total_intensity, cube_source, source_name
 from .errors import BlankedDataWarning, PartialRegionWarning, RegionError, UnitMismatchError
 from .prefetch import prefetch_if_cold
@@ -199,14 +200,19 @@ def _read_region(cube, box, inside):
 
     Returns the data (float64, native byte order), whether each voxel is
     finite, and whether it is valid (finite and not excluded by the cube's mask).
-    Only the bounding box is touched; one copy converts it to float64.
+    Only the bounding box is touched; one copy converts it to float64 (and
+    scales integer data, see `cube_file.stored_array`).
     """
     view = (slice(None),) + tuple(box)
+    stored = stored_array(cube)
+    boxed = cube._data[view] if stored is None else stored[0][view]
     # On a cube not in the page cache, faulting the box in page by page is
     # bound by disk latency x channels; announce every page range first.
-    boxed = cube._data[view]
     prefetch_if_cold(boxed)
-    block = np.array(boxed, dtype=np.float64)
+    if stored is None:
+        block = np.array(boxed, dtype=np.float64)
+    else:
+        block = stored[1].apply_into(boxed, np.empty(boxed.shape, dtype=np.float64))
     n_channels = block.shape[0]
     whole_box = bool(inside.all())
     pixels = block.reshape(n_channels, -1) if whole_box else block[:, inside]

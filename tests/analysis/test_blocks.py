@@ -1,13 +1,17 @@
 """Block executor: tiling, file views, masks, threads, cancel, and a real dask.distributed cluster."""
 
 import threading
+import tracemalloc
+import warnings
+from pathlib import Path
 
 import astropy.units as u
 import numpy as np
 import pytest
+from astropy.io import fits
 from numpy.testing import assert_allclose, assert_array_equal
 
-from cubefactory import gaussian_profile, velocity_axis_kms
+from cubefactory import gaussian_profile, velocity_axis_kms, write_cube, write_scaled_int_cube
 from cubeloupe.analysis import CancelledComputation, ClusterError, open_cube
 from cubeloupe.analysis.blocks import (
     channel_runs,
@@ -23,6 +27,7 @@ CO21 = 230.538 * u.GHz  # 12CO J=2-1 rest frequency (CDMS catalogue, from memory
 NCHAN = 120
 CENTRE = NCHAN / 2 + 0.5
 VEL = velocity_axis_kms(NCHAN, crpix3=CENTRE)
+REAL = Path(__file__).resolve().parents[2] / ".." / "shared" / "real-cubes"
 BLOCK_SHAPES = [(1, 1), (1, 4), (2, 3), (3, 2), (4, 5), (5, 3), (7, 9), (9, 7)]
 
 
@@ -188,3 +193,86 @@ def test_cluster_runs_in_memory_cubes_here(cube_path, rng, cluster_client):
     there = moment_maps(doubled, (-40, 40) * KMS, rest_frequency=CO21, client=cluster_client)
     here = moment_maps(doubled, (-40, 40) * KMS, rest_frequency=CO21)
     assert_array_equal(there.m0.value, here.m0.value)
+
+
+def _blocks_of(cube, blocks, dtype=np.float32):
+    out = np.full(cube.shape, -1.0, dtype=dtype)
+
+    def consume(block, result):
+        k = 0
+        for start, stop in block.runs:
+            out[start:stop, block.rows, block.columns] = result[k:k + stop - start]
+            k += stop - start
+
+    run_blocks(cube, lambda d: d, blocks, consume, dtype=dtype)
+    return out
+
+
+def _astropy_scaled(path):
+    """The file's values as astropy.io.fits scales them itself (BSCALE/BZERO/BLANK): the reference."""
+    with fits.open(path) as hdul:
+        return np.array(hdul[0].data)
+
+
+@pytest.mark.parametrize("bitpix", [16, 32])
+def test_integer_blocks_are_astropys_scaling_bit_for_bit(tmp_path, rng, bitpix):
+    # physical = BZERO + BSCALE * stored, BLANK -> NaN (Pence et al. 2010, A&A 524, A42, Sect. 4.4.2.5,
+    # 5.3); astropy.io.fits applies it itself when it reads the file into memory.
+    data = noisy_cube(rng, 12, 10)
+    data[:, :3, :] = np.nan  # a blanked border, stored as BLANK
+    path, _ = write_scaled_int_cube(tmp_path / "int.fits", data, bitpix=bitpix, bzero=-0.5,
+                                    blank=-32768 if bitpix == 16 else -2**31, crpix3=CENTRE)
+    cube = open_cube(path)
+    reference = _astropy_scaled(path).astype(np.float32)  # the float32 working dtype of the kernels
+    channels = np.r_[5:30, 70:90]
+    for blocks in (spectra_blocks(cube.shape, channels=channels, block_shape=(5, 3)),
+                   plane_blocks(cube.shape, channels=channels, itemsize=4, block_bytes=3 * 12 * 10 * 4)):
+        got = _blocks_of(cube, blocks)
+        assert_array_equal(got[channels], reference[channels])
+        assert (got[np.r_[0:5, 30:70, 90:NCHAN]] == -1).all()  # channels not asked for are not read
+    # And the moment maps from the scaled blocks are those of astropy's values read as a float cube.
+    float_cube = open_cube(write_cube(tmp_path / "float.fits", reference, crpix3=CENTRE))
+    window = (-30, 30) * KMS
+    ours, theirs = moment_maps(cube, window, rest_frequency=CO21), moment_maps(float_cube, window, rest_frequency=CO21)
+    assert_array_equal(ours.m0.value, theirs.m0.value)
+
+
+def test_integer_cube_is_scaled_block_by_block_not_as_a_whole(tmp_path, rng):
+    # Issue #13: integer cubes stay memory-mapped and are scaled per block; never a float copy of the cube.
+    data = rng.normal(0.0, 1.0, (200, 128, 128))
+    path, _ = write_scaled_int_cube(tmp_path / "int.fits", data)
+    cube = open_cube(path)
+    blocks = spectra_blocks(cube.shape, itemsize=4, block_bytes=2**18)
+    sums = np.zeros(cube.shape[1:])
+
+    def consume(block, result):
+        sums[block.rows, block.columns] = result
+
+    tracemalloc.start()
+    run_blocks(cube, lambda d: d.sum(axis=0), blocks, consume, threads=1)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    assert peak < data.size * 4 / 8, peak  # an eighth of one float32 copy of the cube (blocks of 1/50)
+    assert_allclose(sums, _astropy_scaled(path).sum(axis=0, dtype=np.float64), rtol=1e-4, atol=1e-3)
+
+
+@pytest.mark.skipif(not REAL.is_dir(), reason=f"real cubes not found at {REAL} (see SOURCES.md there)")
+def test_real_cube_stored_as_scaled_integers_reads_as_astropy_scales_it(tmp_path):
+    # No real delivery in ../shared/real-cubes is stored as integers (both are BITPIX -32), so the real
+    # L1448 13CO map (astropy-data, SOURCES.md) is stored here as int16 with BSCALE/BZERO and a BLANK
+    # border, as integer deliveries are; astropy.io.fits' own scaling of that file is the reference.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        observed = fits.getdata(REAL / "l1448_13co.fits").astype(float)
+    observed[:, :, :20] = np.nan
+    header = fits.getheader(REAL / "l1448_13co.fits")
+    extra = {key: header[key] for key in ("CTYPE3", "CRVAL3", "CDELT3", "CRPIX3", "CUNIT3")}
+    path, _ = write_scaled_int_cube(tmp_path / "l1448_int16.fits", observed, bzero=1.5, bunit="K",
+                                    beam=None, restfrq=110.20135428e9,
+                                    spectral="VOPT", crval3=header["CRVAL3"], cdelt3=header["CDELT3"],
+                                    crpix3=header["CRPIX3"], extra=extra)
+    cube = open_cube(path)
+    reference = _astropy_scaled(path)
+    got = _blocks_of(cube, spectra_blocks(cube.shape, itemsize=4, block_shape=(7, 40)))
+    assert_array_equal(got, reference.astype(np.float32))
+    assert np.isnan(got[:, :, :20]).all() and np.isfinite(got[:, :, 20:]).all()

@@ -1,10 +1,13 @@
 """The memory-mapped array under a cube and where it lies in its file."""
 
+import mmap
+
 import numpy as np
 from numpy.testing import assert_array_equal
 
 from cubeloupe.analysis import open_cube
-from cubeloupe.analysis.cube_file import cube_array, file_view
+from cubefactory import write_cube, write_scaled_int_cube
+from cubeloupe.analysis.cube_file import cube_array, file_view, stored_array
 
 NCHAN = 120
 CENTRE = NCHAN / 2 + 0.5
@@ -39,3 +42,24 @@ def test_cube_array_is_the_files_memory_map(cube_path, rng):
     assert_array_equal(array, data)
     # a cube computed in memory has an array but it is not a view of the file
     assert file_view(cube * 2) is None
+
+
+def test_stored_array_finds_the_integers_under_a_scaled_cube(tmp_path, rng):
+    # Integer data: physical = BZERO + BSCALE * stored, BLANK -> NaN (Pence et al. 2010, A&A 524, A42,
+    # Sect. 4.4.2.5 and 5.3); the kernels read the stored integers from the file's memory map.
+    data = rng.normal(0.0, 1.0, (NCHAN, 7, 9))
+    data[:, 0, :] = np.nan
+    path, values = write_scaled_int_cube(tmp_path / "int.fits", data, bzero=0.25)
+    cube = open_cube(path)
+    assert cube_array(cube) is None  # not a plain array: a graph that scales it
+    array, scaling = stored_array(cube)
+    assert array.dtype == np.dtype(">i2") and array.shape == data.shape
+    base = array
+    while isinstance(base, np.ndarray):
+        base = base.base
+    assert isinstance(base, mmap.mmap)  # the file itself, not a copy
+    np.testing.assert_allclose(scaling.apply(array), values, rtol=1e-6, atol=1e-6, equal_nan=True)
+    # Only the graph as open_cube made it: a slice or arithmetic shows other values.
+    assert stored_array(cube[10:20]) is None
+    assert stored_array(cube * 2) is None
+    assert stored_array(open_cube(write_cube(tmp_path / "float.fits", values))) is None  # nothing to scale

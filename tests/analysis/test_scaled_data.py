@@ -49,3 +49,28 @@ def test_agrees_with_astropy_reading_the_same_file(tmp_path, rng, bitpix):
     assert_allclose(ours, reference, rtol=1e-6, equal_nan=True)
     assert_allclose(ours, values, rtol=1e-6, equal_nan=True)
     assert np.isnan(ours[1, 2, 3])
+
+
+@pytest.mark.parametrize("bitpix, out_dtype", [(16, "float32"), (16, "float64"), (32, "float32"), (32, "float64")])
+def test_scaling_into_a_block_matches_astropy(tmp_path, rng, bitpix, out_dtype):
+    # The block kernels scale big-endian stored values straight into their working dtype. Reference:
+    # astropy's own scaling of the same file (float32 for 16-bit, float64 for 32-bit data), rounded
+    # to the working dtype: the same numbers, bit for bit.
+    data = rng.normal(5.0, 2.0, size=(5, 6, 7))
+    data[2, :, 1] = np.nan
+    blank = -32768 if bitpix == 16 else -2**31
+    path, _ = write_scaled_int_cube(tmp_path / "c.fits", data, bitpix=bitpix, bzero=3.0, blank=blank)
+    with fits.open(path) as hdul:
+        reference = np.array(hdul[0].data)
+    with fits.open(path, do_not_scale_image_data=True, memmap=True) as hdul:
+        stored = hdul[0].data
+        assert stored.dtype.byteorder == ">"  # the file's own layout, not a native copy
+        scaling = integer_scaling(hdul[0].header, stored.dtype)
+        out = scaling.apply_into(stored[1:4, 2:5], np.empty((3, 3, 7), dtype=out_dtype))
+        del stored
+    expected = reference[1:4, 2:5].astype(out_dtype)
+    if reference.dtype.itemsize >= np.dtype(out_dtype).itemsize:
+        np.testing.assert_array_equal(out, expected)
+    else:  # 16-bit data in a float64 block: scaled in float64, closer than astropy's float32
+        assert_allclose(out, expected, rtol=1e-6, equal_nan=True)
+    assert np.isnan(out[1, :, 1]).all() and np.isfinite(out[0]).all()
