@@ -13,6 +13,9 @@ from .spectrum_view import SpectrumView
 from .line_overlay import LineOverlay
 from .moment_panel import MomentPanel
 from .measurement_table import MeasurementTable
+from .channel_map_panel import ChannelMapPanel
+from .pv_panel import PVPanel
+from .path_tool import PathTool
 from .loupe import Loupe
 
 __all__ = [
@@ -25,4 +28,7 @@ __all__ = [
     "LineOverlay",
     "MomentPanel",
     "MeasurementTable",
+    "ChannelMapPanel",
+    "PVPanel",
+    "PathTool",
 ]

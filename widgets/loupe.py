@@ -33,11 +33,13 @@ from cubeloupe.analysis import first_view as find_first_view
 from ._look import section
 from .channel_bar import ChannelBar
 from .cube_summary import cube_summary, title_html, window_name
+from .channel_map_panel import ChannelMapPanel  # channel maps (#18)
 from .code_view import CodeView  # sessions and replay (#19)
 from .export_panel import ExportPanel
 from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
+from .pv_panel import PVPanel  # position–velocity slices (#18)
 from .region_list import RegionList
 from .replay import to_code  # sessions and replay (#19)
 from .session import made_with, read_session, session_state, write_session  # sessions and replay (#19)
@@ -251,6 +253,7 @@ class Loupe(w.VBox):
         for i, name in enumerate(("Moment maps", "Measurements", "Export")):
             tabs.set_title(i, name)
         tabs.add_class("cubeloupe-actions")
+        self.channel_map_panel, self.pv_panel = ChannelMapPanel(self, tabs), PVPanel(self, tabs)  # (#18)
         # Sessions and replay (#19): the script of the current state, in a "Code" tab.
         self.code_view = CodeView(self, tabs)
         self.spectrum_view.figure.layout.height = "330px"
