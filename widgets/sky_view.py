@@ -1,10 +1,11 @@
 """SkyView: one channel (or a moment map) of a cube on the sky, with colour bar, beam and regions.
 
 The image shown is a display copy: the plane is read from the memory map
-(nothing else is read) and block-averaged to ``max_display_size`` by
-`cubeloupe.analysis.display.display_image`; limits and stretch come from the
-same module. Drawing tools turn mouse gestures into region shapes, which are
-handed to whoever listens (`on_shape`), usually a `RegionList`.
+(nothing else is read) and block-averaged to the plot's size on screen (at most
+``max_display_size``) by `cubeloupe.analysis.display.display_image`; limits and
+stretch come from the same module; the image travels as an 8-bit PNG (`SkyImage`).
+Drawing tools turn mouse gestures into region shapes, which are handed to whoever
+listens (`on_shape`), usually a `RegionList`.
 """
 
 import html
@@ -24,6 +25,7 @@ from cubeloupe.analysis import (
 )
 
 from ._look import DIVERGING_RAMPS, RAMPS, blank_color, row
+from .sky_image import SkyImage
 from .path_tool import PathTool  # the path tool of position–velocity slices (#18)
 from .status import StatusLine
 
@@ -98,7 +100,7 @@ class SkyView(w.VBox):
     vmax = Float(None, allow_none=True, help="Fixed upper colour limit in data units (None: percentile)")
     shown_limits = List(help="The colour limits in use, [low, high] in data units (read-only)")
     max_display_size = Int(512, help="Largest side of the image sent to the browser, in display pixels; "
-                                     "bigger planes are block-averaged")
+                                     "bigger planes are block-averaged, to the plot's size on screen")
     display_factor = Int(1, help="Block size of the last block-averaging (1: full resolution; read-only)")
     tool = Enum(list(TOOLS), "look", help="What a mouse gesture on the image does")
     show_beam = Bool(True, help="Draw the beam (FWHM ellipse) to scale, on the data near the lower left corner")
@@ -136,11 +138,11 @@ class SkyView(w.VBox):
         self.y_scale = LinearScale(allow_padding=False)
         self.color_scale = ColorScale(min=0.0, max=1.0, colors=RAMPS[self.palette])
         scales = {"x": self.x_scale, "y": self.y_scale}
-        self.image = ImageGL(image=np.zeros((2, 2), np.float32), scales={**scales, "image": self.color_scale})
+        self.image = SkyImage(image=np.zeros((2, 2), np.float32), scales={**scales, "image": self.color_scale})
         self.contour_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=1, opacities=[0.8])
         self.beam_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], fill="inside",
                                fill_colors=["#ffffff"], fill_opacities=[0.35], stroke_width=1.5)
-        self.outline_marks = []
+        self.outline_marks, self._outline_pool = [], []
         self.draft_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], line_style="dashed")
         self.draft_points = Scatter(x=[], y=[], scales=scales, colors=["#ffffff"], default_size=24)
         # The oval being dragged: the ellipse filling the dragged box, drawn by the kernel.
@@ -469,11 +471,18 @@ class SkyView(w.VBox):
         projection = self.maps[self.source]
         return np.asarray(projection.value), projection.unit
 
+    def _display_size(self, shape):
+        """Largest side of the image sent: the plot's size on screen, at most ``max_display_size`` (#20)."""
+        longest = max(shape)
+        # The largest block size that keeps the image at least as large as the plot: the screen loses nothing.
+        factor = max(1, longest // max(int(max(self.plot_size or [MAX_PLOT_SIDE])), 1))
+        return min(self.max_display_size, -(-longest // factor))
+
     def _redraw(self):
         with self.status.guard("drawing the sky image"):
             values, unit = self.current_plane()
             self._plane = values
-            image, factor = display_image(values, self.max_display_size)
+            image, factor = display_image(values, self._display_size(values.shape))
             self._image_shown = image
             limits = centred_limits if self.diverging else display_limits
             lo, hi = limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin, vmax=self.vmax)
@@ -544,7 +553,7 @@ class SkyView(w.VBox):
             self.contour_mark.x, self.contour_mark.y = [], []
             return
         projection = self.maps[self.contour_source]
-        image, factor = display_image(np.asarray(projection.value), self.max_display_size)
+        image, factor = display_image(np.asarray(projection.value), self._display_size(projection.shape))
         levels = list(self.contour_levels)
         if not levels:
             lo, hi = display_limits(image, 5, 99.5)
@@ -559,16 +568,21 @@ class SkyView(w.VBox):
             self.contour_mark.y = np.concatenate(ys) if ys else []
 
     def _draw_outlines(self):
-        scales = {"x": self.x_scale, "y": self.y_scale}
-        marks = []
-        for item in self.outlines:
-            # Outline only: a fill would tint the data beneath (issue #17).
-            marks.append(Lines(x=np.asarray(item["x"], float), y=np.asarray(item["y"], float), scales=scales,
-                               colors=[item["color"]], stroke_width=2.5, labels=[item["name"]],
-                               display_legend=False, fill="none"))
-        self.outline_marks = marks
-        self.figure.marks = [self.image, self.contour_mark, *marks, self.beam_mark, self.draft_mark,
-                             self.draft_points, self.oval_draft, *self.path_tool.marks]
+        # Marks are reused and updated in place (#20): a new mark list makes the browser lay out the figure anew.
+        pool, items, grown = self._outline_pool, list(self.outlines), len(self.outlines) > len(self._outline_pool)
+        while len(pool) < len(items):  # outline only: a fill would tint the data beneath (issue #17)
+            pool.append(Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale}, colors=["#ffffff"],
+                              stroke_width=2.5, display_legend=False, fill="none"))
+        with self.figure.hold_sync():
+            for k, mark in enumerate(pool):
+                item = items[k] if k < len(items) else {"x": [], "y": [], "color": mark.colors[0], "name": ""}
+                with mark.hold_sync():
+                    mark.x, mark.y = np.asarray(item["x"], float), np.asarray(item["y"], float)
+                    mark.colors, mark.labels = [item["color"]], [item["name"]]
+        self.outline_marks = pool[:len(items)]
+        if grown:
+            self.figure.marks = [self.image, self.contour_mark, *pool, self.beam_mark, self.draft_mark,
+                                 self.draft_points, self.oval_draft, *self.path_tool.marks]
 
     # ------------------------------------------------------------- gestures
     def on_shape(self, callback, remove=False):

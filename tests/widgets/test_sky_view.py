@@ -287,3 +287,29 @@ def test_real_sin_cube_with_blanked_border_draws_the_beam_on_the_data():
     assert np.isfinite(plane[np.round(y).astype(int), np.round(x).astype(int)]).all()
     assert axis_ends(sky.x_axis_scale) == pytest.approx([64.0, -64.0], rel=1e-4)
     assert sky.centre_text.endswith("(FK5)")  # EPOCH = 2000 in the header: FK5 J2000 (FITS Paper II)
+
+
+def test_large_plane_is_sent_at_the_plot_size_on_screen(cube_path, rng):
+    # A 1024-pixel map in a plot about 300 px wide: blocks of 3 (342 px) keep at least one image
+    # pixel per screen pixel (issue #20); blocks of 2 (512 px) would send 2.2x the pixels for nothing.
+    sky = SkyView([open_cube(cube_path(rng.normal(size=(2, 1024, 1024)).astype(np.float32)))])
+    side = max(sky.plot_size)
+    assert sky.display_factor == 1024 // side
+    assert side <= max(sky.image.image.shape) < 2 * side
+    sky.max_display_size = 128  # the cap still holds
+    assert max(sky.image.image.shape) <= 128
+
+
+def test_region_outlines_are_updated_in_place(loupe):
+    sky = loupe.sky_view
+    loupe.add_region(RectanglePixelRegion(PixCoord(14, 12), width=6, height=4), name="core")
+    loupe.add_region(RectanglePixelRegion(PixCoord(8, 8), width=4, height=4), name="edge")
+    first, second = sky.outline_marks
+    marks = list(sky.figure.marks)
+    loupe.remove_region("edge")
+    assert sky.outline_marks == [first] and list(second.x) == []
+    loupe.add_region(RectanglePixelRegion(PixCoord(20, 8), width=4, height=4), name="east")
+    # The same marks and mark list: the browser updates two lines and lays out nothing anew.
+    assert sky.outline_marks == [first, second] and list(sky.figure.marks) == marks
+    assert max(second.x) > 20 and second.labels == ["east"]
+
