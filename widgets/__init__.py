@@ -11,7 +11,7 @@ from .channel_bar import ChannelBar
 from .region_list import RegionList
 from .spectrum_view import SpectrumView
 from .line_overlay import LineOverlay
-from .moment_panel import MomentPanel
+from .moment_panel import MomentPanel, within_window
 from .measurement_table import MeasurementTable
 from .channel_map_panel import ChannelMapPanel
 from .pv_panel import PVPanel
@@ -27,6 +27,7 @@ __all__ = [
     "SpectrumView",
     "LineOverlay",
     "MomentPanel",
+    "within_window",
     "MeasurementTable",
     "ChannelMapPanel",
     "PVPanel",

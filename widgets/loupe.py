@@ -40,7 +40,7 @@ from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
 from .pv_panel import PVPanel  # position–velocity slices (#18)
-from .region_list import RegionList
+from .region_list import RegionList, check_regions
 from .replay import to_code  # sessions and replay (#19)
 from .session import made_with, read_session, session_state, write_session  # sessions and replay (#19)
 from .sky_view import SkyView
@@ -148,7 +148,7 @@ class Loupe(w.VBox):
         if any(velocity_only(c) for c in self.cubes):
             with self.status.guard("placing a velocity-only cube"):
                 rest_frequency, convention = self._adopt_velocity_axis(rest_frequency, convention)
-        self.catalog = self._load_catalog(catalog)
+        self.catalog, self.catalog_argument = self._load_catalog(catalog), catalog  # sessions record the latter
         self._build()
         self.header = title
         super().__init__(children=self._layout(title), **kwargs)
@@ -301,7 +301,7 @@ class Loupe(w.VBox):
         for name in ("z", "rest_frequency", "convention"):
             link((self, name), (cb, name))
         w.dlink((self, "velocity_reference"), (cb, "reference_label"), transform=self._short_reference)
-        link((self, "regions"), (rl, "regions"))
+        rl.observe(self._from_region_list, names="regions")  # not a link: see _on_regions
         link((self, "clip"), (mp, "clip"))
         link((self, "magnification"), (mt, "magnification"))
         link((self, "cosmology"), (mt, "cosmology"))
@@ -365,6 +365,18 @@ class Loupe(w.VBox):
             return 0
         return int(min(max(proposal["value"], 0), self.cube.shape[0] - 1))
 
+    @validate("reference_line")
+    def _valid_reference_line(self, proposal):
+        # A line given by rest_frequency= or from code may lie outside the band: offer it in the choice too (#19).
+        name = proposal["value"]
+        choice = self.line_overlay.reference_choice if hasattr(self, "line_overlay") else None
+        if name and choice is not None and name not in [value for _, value in choice.options]:
+            if name not in set(np.asarray(self.catalog["name"])):
+                raise TraitError(f"{name!r} is not a line of the catalog; pick one under 'Velocity zero' or set "
+                                 "rest_frequency instead")
+            choice.options = [*choice.options, (name, name)]
+        return name
+
     @validate("sky_source")
     def _valid_sky_source(self, proposal):
         if proposal["value"] != "channel" and proposal["value"] not in self.sky_view.maps:
@@ -377,6 +389,8 @@ class Loupe(w.VBox):
     def _on_window(self, change):
         self.channel_bar.set_cube(self.cube)
         self.region_list.wcs = self.cube.wcs
+        # The sky view drops its maps when its window changes: switch it first, then give back this window's (#19).
+        self.sky_view.window = self.window
         self.sky_view.outlines = self.region_list.outlines_for(self.cube)
         if self.moment_panel.maps and self.moment_panel.window_index == self.window:
             self.sky_view.maps = self.moment_panel.maps
@@ -403,10 +417,20 @@ class Loupe(w.VBox):
     def _update_cursor(self, change=None):
         self.spectrum_view.cursor_frequency = float(self._frequencies[self.window][self.channel])
 
+    @validate("regions")
+    def _valid_regions(self, proposal):
+        return check_regions(proposal["value"])
+
     @observe("regions")
     def _on_regions(self, change):
+        # The region list holds the shapes the spectra are made from: it takes the regions first. (A traitlets
+        # link gave them to it after this observer, and broke when a region without spectrum was dropped; #19.)
+        self.region_list.regions = change.new
         with self.status.guard("updating the region spectra"):
             self._sync_spectra()
+
+    def _from_region_list(self, change):
+        self.regions = change.new
 
     def _sync_spectra(self):
         current = {r["name"]: r for r in self.regions}

@@ -30,7 +30,7 @@ from cubeloupe.analysis import RegionError
 
 from ._look import REGION_COLORS, section_title
 
-__all__ = ["RegionList", "REGION_KINDS"]
+__all__ = ["RegionList", "REGION_KINDS", "check_regions"]
 
 REGION_KINDS = ("box", "oval", "circle", "outline", "pixel")
 _REQUIRED = {
@@ -40,6 +40,28 @@ _REQUIRED = {
     "outline": ("vertices",),
     "pixel": ("ra", "dec"),
 }
+
+
+def check_regions(regions):
+    """Copies of region dicts checked for kind, required keys and unique names; `TraitError` names the problem."""
+    items = []
+    names = set()
+    for item in regions:
+        if not isinstance(item, dict):
+            raise TraitError(f"each region must be a dict; got {item!r}")
+        kind = item.get("kind")
+        if kind not in REGION_KINDS:
+            raise TraitError(f"region kind {kind!r} is unknown; use one of {list(REGION_KINDS)}")
+        missing = [key for key in ("name", "color", *_REQUIRED[kind]) if key not in item]
+        if missing:
+            raise TraitError(f"region {item.get('name', '?')!r} lacks {missing}")
+        if item["name"] in names:
+            raise TraitError(f"two regions are named {item['name']!r}; names must be unique")
+        if kind == "outline" and len(item["vertices"]) < 3:
+            raise TraitError(f"outline region {item['name']!r} needs at least 3 vertices")
+        names.add(item["name"])
+        items.append(dict(item))
+    return items
 
 
 def _frame(wcs):
@@ -103,24 +125,7 @@ class RegionList(w.VBox):
     # ------------------------------------------------------------ validation
     @validate("regions")
     def _valid_regions(self, proposal):
-        items = []
-        names = set()
-        for item in proposal["value"]:
-            if not isinstance(item, dict):
-                raise TraitError(f"each region must be a dict; got {item!r}")
-            kind = item.get("kind")
-            if kind not in REGION_KINDS:
-                raise TraitError(f"region kind {kind!r} is unknown; use one of {list(REGION_KINDS)}")
-            missing = [key for key in ("name", "color", *_REQUIRED[kind]) if key not in item]
-            if missing:
-                raise TraitError(f"region {item.get('name', '?')!r} lacks {missing}")
-            if item["name"] in names:
-                raise TraitError(f"two regions are named {item['name']!r}; names must be unique")
-            if kind == "outline" and len(item["vertices"]) < 3:
-                raise TraitError(f"outline region {item['name']!r} needs at least 3 vertices")
-            names.add(item["name"])
-            items.append(dict(item))
-        return items
+        return check_regions(proposal["value"])
 
     @validate("selected")
     def _valid_selected(self, proposal):

@@ -173,7 +173,9 @@ def _moment_section(loupe, state):
         return ["# No moment maps were made in the suite."]
     cube = loupe.cubes[made["window"]]
     free = _ranges_in(cube, made["line_free"])
-    return [f"# The moment maps of window {made['window']}, with the settings they were made with.",
+    client = (["# The suite made them on a dask.distributed client (not saved); add client=... to do the same."]
+              if state.client else [])
+    return [f"# The moment maps of window {made['window']}, with the settings they were made with.", *client,
             "moments = moment_maps(",
             f"    cubes[{made['window']}], window={_ghz(made['line_window'])},",
             f"    line_free={_optional_ghz(free)},",
@@ -184,19 +186,26 @@ def _moment_section(loupe, state):
 
 
 def _significance_lines(loupe, made):
-    """Moments 1 and 2 as the suite shows them: where moment 0 is significant (maps with an error only)."""
+    """Moments 1 and 2 as the suite shows them: where moment 0 is significant (maps with an error only) and
+    moment 1 lies within the window's channel velocities (`within_window`)."""
     significance = getattr(loupe.moment_panel, "significance", None)
     if significance is None or not made["line_free"]:
-        return []
-    return [f"# Moments 1 and 2 as the suite shows them: where moment 0 exceeds {significance!r} times its error.",
-            f"shown = significant_moments(moments, {significance!r})"]
+        return ["# Moments 1 and 2 as the suite shows them: where moment 1 lies within the window's velocities.",
+                "shown_m1, shown_m2 = within_window(moments.m1, moments.m2, moments.window)"]
+    return [f"# Moments 1 and 2 as the suite shows them: where moment 0 exceeds {significance!r} times its error",
+            "# and moment 1 lies within the window's channel velocities.",
+            f"shown = significant_moments(moments, {significance!r})",
+            "shown_m1, shown_m2 = within_window(shown.m1, shown.m2, moments.window)"]
 
 
 def _loupe_section(loupe, state):
     s = state.settings
-    arguments = ", first_view=False" if "first_view" in inspect.signature(type(loupe)).parameters else ""
-    lines = ["# The suite in the same state: same cubes, regions, ranges, settings and view.",
-             f"loupe = {type(loupe).__name__}(paths{arguments})"]
+    arguments = ", catalog=catalog" if state.catalog else ""
+    arguments += ", first_view=False" if "first_view" in inspect.signature(type(loupe)).parameters else ""
+    lines = ["# The suite in the same state: same cubes, regions, ranges, settings and view."]
+    if state.client:
+        lines.append("# The suite sent its moment maps to a dask.distributed client: add client=... to do so again.")
+    lines.append(f"loupe = {type(loupe).__name__}(paths{arguments})")
     current = {name: s[name] for name in MOMENT_SETTINGS}
     shown = None  # the window the script has shown last: it is set only where it changes
 
@@ -233,9 +242,20 @@ def _loupe_section(loupe, state):
 
 def _analysis_names(loupe, state):
     names = ["measurement_table", "moment_maps", "open_cube", "region_spectrum"]
-    if state.moments is not None and _significance_lines(loupe, state.moments):
+    if state.moments is not None and state.moments["line_free"]:
         names.append("significant_moments")
     return sorted(names)
+
+
+def _catalog_lines(state):
+    """The extra line lists the suite was given (files by path; a table given in memory cannot be written out)."""
+    if not state.catalog:
+        return []
+    lines = ["# Extra line lists merged into the bundled catalog, as given to the suite.", "catalog = ["]
+    for record in state.catalog:
+        lines.append(f"    {record['absolute']!r}," if "absolute" in record else
+                     f"    # a {record['in_memory']} given in memory (not saved): put it here, e.g. my_lines,")
+    return lines + ["]", ""]
 
 
 def to_code(loupe):
@@ -275,13 +295,14 @@ def to_code(loupe):
               ")",
               "",
               f"from cubeloupe.analysis import {', '.join(_analysis_names(loupe, state))}",
-              f"from cubeloupe.widgets import {type(loupe).__name__}",
+              f"from cubeloupe.widgets import {', '.join([type(loupe).__name__] + (['within_window'] if state.moments is not None else []))}",
               "",
               "# The cubes: the suite's spectral windows, in its order.",
               "paths = ["] + [f"    {p!r}," for p in paths] + [
               "]",
               "cubes = [open_cube(path) for path in paths]",
               "",
+              *_catalog_lines(state),
               "# Redshift, velocity zero, line window and baseline as set in the suite (frequencies observed).",
               f"z = {s['z']!r}",
               f"rest_frequency = {_rest_code(s['rest_frequency'])}" + (f"  # {s['reference_line']}"

@@ -17,7 +17,9 @@ The file format ("cubeloupe-session", version 1) is our own::
       "regions": [{"name": "core", "color": "#...", "kind": "box", "ra": ..., ...,
                    "drawn": {"window": 0, "shape": "rectangle", "x": ..., "y": ..., ...}}],
       "views": {"sky_view": {"stretch": "asinh", ...}, "line_overlay": {...}, ...},
-      "moments": {"window": 0, "line_window": [...], ...} or null
+      "moments": {"window": 0, "line_window": [...], ...} or null,
+      "catalog": [{"path": "my_lines.ecsv", "absolute": "/data/my_lines.ecsv"}],
+      "client": false
     }
 
 Cube paths are stored relative to the session file (``path``) and as given
@@ -25,6 +27,10 @@ Cube paths are stored relative to the session file (``path``) and as given
 sessions can be moved as a whole. A region keeps its sky shape and, when it was
 drawn on the sky view, the exact pixel shape on the grid it was drawn on
 (``drawn``), so its spectrum is made from the same pixels after a restore.
+``catalog`` lists the extra line lists given to the suite (``Loupe(catalog=...)``),
+found like the cubes; a table given in memory is noted (``in_memory``) and must be
+given again. ``client`` says whether a dask.distributed client made the moment maps;
+the client itself is not saved (pass ``client=`` again to use one).
 
 Examples
 --------
@@ -79,22 +85,36 @@ def _drawn_window(loupe, name):
     return None
 
 
-def _cube_record(cube, index, relative_to):
-    source = cube_source(cube)
-    if not source or not source.get("path"):
-        raise SessionError(f"window {index} is a cube made in memory, with no file; a session can only name "
-                           "cubes opened from files (open it with open_cube or pass its path to Loupe)")
-    absolute = os.path.abspath(str(source["path"]))
+def _file_record(path, relative_to):
+    """{"path": relative to ``relative_to`` when given, "absolute": ...} of a file."""
+    absolute = os.path.abspath(str(path))
     path = absolute
     if relative_to is not None:
         try:
             path = os.path.relpath(absolute, os.path.abspath(relative_to))
         except ValueError:  # another drive on Windows: keep the absolute path
             path = absolute
-    record = {"path": Path(path).as_posix(), "absolute": absolute, "shape": [int(n) for n in cube.shape]}
+    return {"path": Path(path).as_posix(), "absolute": absolute}
+
+
+def _cube_record(cube, index, relative_to):
+    source = cube_source(cube)
+    if not source or not source.get("path"):
+        raise SessionError(f"window {index} is a cube made in memory, with no file; a session can only name "
+                           "cubes opened from files (open it with open_cube or pass its path to Loupe)")
+    record = {**_file_record(source["path"], relative_to), "shape": [int(n) for n in cube.shape]}
     if source.get("hdu") not in (None, 0):
         record["hdu"] = source["hdu"]
     return record
+
+
+def _catalog_records(catalog, relative_to):
+    """The extra line lists given to a suite: files by path, tables in memory noted by type (not saved)."""
+    if catalog is None:
+        return ()
+    items = catalog if isinstance(catalog, (list, tuple)) else [catalog]
+    return tuple(_file_record(item, relative_to) if isinstance(item, (str, os.PathLike))
+                 else {"in_memory": type(item).__name__} for item in items)
 
 
 # ------------------------------------------------------------------ the state
@@ -116,6 +136,11 @@ class SessionState:
         Settings of the parts: ``sky_view``, ``line_overlay``, ``spectrum_view``, ``region_list``.
     moments : dict or None
         ``window`` and the `MOMENT_SETTINGS` the last moment maps were made with; None without maps.
+    catalog : tuple of dict
+        The extra line lists given to the suite: ``path`` and ``absolute`` of a file, or
+        ``in_memory`` (the type of a table given in memory, which a session cannot hold).
+    client : bool
+        Whether the suite sent its moment maps to a dask.distributed client (the client is not saved).
     cubeloupe_version : str
     version : int
         The session format version.
@@ -126,6 +151,8 @@ class SessionState:
     regions: tuple
     views: dict
     moments: object = None
+    catalog: tuple = ()
+    client: bool = False
     cubeloupe_version: str = dataclasses.field(default_factory=cubeloupe_version)
     version: int = SESSION_VERSION
 
@@ -149,7 +176,9 @@ class SessionState:
             widget = getattr(loupe, part)
             views[part] = {name: _plain(getattr(widget, name)) for name, _, _ in traits if widget.has_trait(name)}
         return cls(cubes=cubes, settings=settings, regions=tuple(regions), views=views,
-                   moments=moment_settings(loupe))
+                   moments=moment_settings(loupe),
+                   catalog=_catalog_records(getattr(loupe, "catalog_argument", None), relative_to),
+                   client=getattr(loupe, "client", None) is not None)
 
     # ------------------------------------------------------------- to and from JSON
     def to_dict(self):
@@ -157,7 +186,8 @@ class SessionState:
         return {"format": SESSION_FORMAT, "version": self.version, "cubeloupe_version": self.cubeloupe_version,
                 "cubes": [dict(c) for c in self.cubes], "settings": dict(self.settings),
                 "regions": [dict(r) for r in self.regions], "views": {k: dict(v) for k, v in self.views.items()},
-                "moments": None if self.moments is None else dict(self.moments)}
+                "moments": None if self.moments is None else dict(self.moments),
+                "catalog": [dict(c) for c in self.catalog], "client": self.client}
 
     def to_json(self):
         """The session file's text (see `session_text`)."""
@@ -168,25 +198,25 @@ class SessionState:
         """Check a session dict field by field and return the state; `SessionError` names the bad field."""
         parts = check_session(data, where)
         return cls(cubes=tuple(parts["cubes"]), settings=parts["settings"], regions=tuple(parts["regions"]),
-                   views=parts["views"], moments=parts["moments"], cubeloupe_version=parts["cubeloupe_version"],
+                   views=parts["views"], moments=parts["moments"], catalog=tuple(parts["catalog"]),
+                   client=parts["client"], cubeloupe_version=parts["cubeloupe_version"],
                    version=parts["version"])
 
     # ------------------------------------------------------------- to a suite
     def cube_paths(self, folder=None):
         """The cube files, found relative to ``folder`` first, else at their absolute path; checked to exist."""
-        paths = []
-        for index, cube in enumerate(self.cubes):
-            tried = []
-            if folder is not None and not os.path.isabs(cube["path"]):
-                tried.append(os.path.normpath(os.path.join(folder, cube["path"])))
-            tried += [p for p in (cube["path"], cube.get("absolute")) if p and os.path.isabs(p)]
-            found = next((p for p in tried if os.path.isfile(p)), None)
-            if found is None:
-                raise CubeFileError(f"the cube of window {index} is missing: no file at "
-                                    f"{' or '.join(repr(p) for p in dict.fromkeys(tried)) or repr(cube['path'])}; "
-                                    "put the cube back, or edit its 'path' in the session file")
-            paths.append(found)
-        return paths
+        return [_found(cube, folder, f"the cube of window {index}", "the cube")
+                for index, cube in enumerate(self.cubes)]
+
+    def catalog_paths(self, folder=None):
+        """The extra line list files, found as the cubes are; `SessionError` for a table that was given in memory."""
+        for index, record in enumerate(self.catalog):
+            if "in_memory" in record:
+                raise SessionError(f"the session's catalog[{index}] was a line list given in memory (a "
+                                   f"{record['in_memory']}), which a session cannot hold; pass it again with "
+                                   "catalog=... (e.g. Loupe.from_session(path, catalog=my_lines))")
+        return [_found(record, folder, f"line list catalog[{index}]", "the line list")
+                for index, record in enumerate(self.catalog)]
 
     def restore(self, loupe_class, folder=None, **kwargs):
         """A new suite of class ``loupe_class`` in this state (whole, or not at all).
@@ -199,7 +229,10 @@ class SessionState:
             if cube.get("hdu") not in (None, 0):
                 raise SessionError(f"window {index} is read from HDU {cube['hdu']!r}, which a suite opened from "
                                    "paths cannot choose; open the cube with open_cube(path, hdu=...) instead")
-        loupe = loupe_class(paths, **_construction_arguments(loupe_class, self.settings), **kwargs)
+        arguments = _construction_arguments(loupe_class, self.settings)
+        if self.catalog and "catalog" not in kwargs:
+            arguments["catalog"] = self.catalog_paths(folder)
+        loupe = loupe_class(paths, **arguments, **kwargs)
         try:
             if loupe.status.level == "error":
                 raise SessionError(f"the cubes could not be shown: {loupe.status.message}")
@@ -217,10 +250,28 @@ class SessionState:
                     widget = loupe if target == "loupe" else getattr(loupe, target)
                     _set(widget, target, name, value)
             _check_restored(loupe, self)
+            if self.client and kwargs.get("client") is None:
+                loupe.moment_panel.status.info("The session's moment maps were made on a dask.distributed client; "
+                                               "these were made in this kernel (the same maps). Pass client=... "
+                                               "to from_session to use one.")
         except BaseException:
             loupe.close()
             raise
         return loupe
+
+
+def _found(record, folder, what, thing):
+    """The file of a session ``record`` (path, absolute): relative to ``folder`` first, else absolute; checked."""
+    tried = []
+    if folder is not None and not os.path.isabs(record["path"]):
+        tried.append(os.path.normpath(os.path.join(folder, record["path"])))
+    tried += [p for p in (record["path"], record.get("absolute")) if p and os.path.isabs(p)]
+    found = next((p for p in tried if os.path.isfile(p)), None)
+    if found is None:
+        raise CubeFileError(f"{what} is missing: no file at "
+                            f"{' or '.join(repr(p) for p in dict.fromkeys(tried)) or repr(record['path'])}; "
+                            f"put {thing} back, or edit its 'path' in the session file")
+    return found
 
 
 def moment_settings(loupe):
@@ -349,7 +400,7 @@ def session_state(loupe, relative_to=None):
     -------
     dict
         JSON-ready: ``format``, ``version``, ``cubeloupe_version``, ``cubes``, ``settings``, ``regions``,
-        ``views``, ``moments``.
+        ``views``, ``moments``, ``catalog``, ``client``.
     """
     return SessionState.from_loupe(loupe, relative_to=relative_to).to_dict()
 
@@ -412,7 +463,10 @@ def made_with(loupe):
     settings = state["settings"]
     moments = state.get("moments") or {}
     cubes = ", ".join(c.get("absolute") or c.get("path", "?") for c in state["cubes"])
-    return (f"cubeloupe {state['cubeloupe_version']}: cube {cubes}; line window {settings.get('line_window')} "
+    extra = "".join(f"; extra line list {c.get('absolute') or c.get('path') or 'given in memory'}"
+                    for c in state.get("catalog", []))
+    extra += "; moment maps made on a dask.distributed client" if state.get("client") else ""
+    return (f"cubeloupe {state['cubeloupe_version']}: cube {cubes}{extra}; line window {settings.get('line_window')} "
             f"GHz; line-free {settings.get('line_free')} GHz; baseline order {settings.get('baseline_order')}; "
             f"z {settings.get('z')}; rest frequency {settings.get('rest_frequency')} GHz; velocity convention "
             f"{settings.get('convention')}; clip {moments.get('clip')}; moments 1-2 where moment 0 > "

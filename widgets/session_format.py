@@ -198,7 +198,8 @@ def check_session(data, where="the session"):
     Returns
     -------
     dict
-        ``cubes``, ``settings``, ``regions``, ``views``, ``moments``, ``cubeloupe_version`` and ``version``.
+        ``cubes``, ``settings``, ``regions``, ``views``, ``moments``, ``catalog`` (extra line lists),
+        ``client`` (whether a dask.distributed client made the moment maps), ``cubeloupe_version`` and ``version``.
     """
     if not isinstance(data, dict):
         raise SessionError(f"{where} is not a cubeloupe session (a JSON object was expected)")
@@ -212,7 +213,8 @@ def check_session(data, where="the session"):
         raise SessionError(f"{where} is session format version {found}, written by cubeloupe "
                            f"{data.get('cubeloupe_version', '?')}; this cubeloupe ({cubeloupe_version()}) reads "
                            f"versions up to {SESSION_VERSION}: update cubeloupe to open it")
-    known = {"format", "version", "cubeloupe_version", "cubes", "settings", "regions", "views", "moments"}
+    known = {"format", "version", "cubeloupe_version", "cubes", "settings", "regions", "views", "moments", "catalog",
+             "client"}
     unknown = sorted(set(data) - known)
     if unknown:
         raise SessionError(f"{where}: unknown field(s) {unknown}; a version {found} session has {sorted(known)}")
@@ -224,10 +226,15 @@ def check_session(data, where="the session"):
     regions = _checked_regions(data["regions"], len(cubes), where)
     views = _checked_views(data["views"], where)
     moments = _checked_moments(data.get("moments"), len(cubes), where)
+    catalog = _checked_catalog(data.get("catalog", []), where)
+    if not isinstance(data.get("client", False), bool):
+        raise SessionError(f"{where}: field 'client' must be true or false (whether a dask.distributed client made "
+                           f"the moment maps); got {data['client']!r}")
     if settings["sky_source"] != "channel" and moments is None:
         raise SessionError(f"{where}: field 'settings.sky_source' is {settings['sky_source']!r} but the session "
                            "has no moment maps; set it to 'channel'")
     return {"cubes": cubes, "settings": settings, "regions": regions, "views": views, "moments": moments,
+            "catalog": catalog, "client": data.get("client", False),
             "cubeloupe_version": str(data.get("cubeloupe_version", "unknown")), "version": found}
 
 
@@ -249,6 +256,27 @@ def _checked_cubes(cubes, where):
         if unknown:
             raise SessionError(f"{where}: unknown field(s) {unknown} in {field}")
         out.append(dict(cube))
+    return out
+
+
+def _checked_catalog(catalog, where):
+    """The extra line lists: files (``path``, ``absolute``) or a note of a table given in memory (``in_memory``)."""
+    if not isinstance(catalog, list):
+        raise SessionError(f"{where}: field 'catalog' must be a list of line list files; got {catalog!r}")
+    out = []
+    for index, record in enumerate(catalog):
+        field = f"catalog[{index}]"
+        if isinstance(record, dict) and set(record) == {"in_memory"} and isinstance(record["in_memory"], str):
+            out.append(dict(record))
+            continue
+        if not isinstance(record, dict) or not isinstance(record.get("path"), str) or not record["path"]:
+            raise SessionError(f"{where}: field {field}.path must be a line list's file path; got {record!r}")
+        if "absolute" in record and not isinstance(record["absolute"], str):
+            raise SessionError(f"{where}: field {field}.absolute must be a path; got {record['absolute']!r}")
+        unknown = sorted(set(record) - {"path", "absolute"})
+        if unknown:
+            raise SessionError(f"{where}: unknown field(s) {unknown} in {field}")
+        out.append(dict(record))
     return out
 
 

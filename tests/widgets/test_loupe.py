@@ -162,3 +162,74 @@ def test_an_exported_lines_table_is_remeasured_from_its_own_metadata(loupe, tmp_
     (tmp_path / "again.cubeloupe.json").write_text(json.dumps(session))
     again = Loupe.from_session(tmp_path / "again.cubeloupe.json")
     assert [r["flux"] for r in again.measurements] == pytest.approx(list(table["flux"].value), rel=1e-12)
+
+
+# ------------------------------------------------------------------ known suite bugs (#17, #19)
+def test_regions_set_from_code_keep_the_list_and_views_in_step(loupe):
+    """Regression test for #19: setting ``loupe.regions`` directly broke its link to the region list."""
+    first = loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=4), name="core")
+    core = loupe.regions[0]
+    # Another region, given in sky coordinates as a user types it: 2" east of the core.
+    east = dict(core, name="east", color="#123456", ra=core["ra"] + 2 / 3600 / np.cos(np.deg2rad(core["dec"])))
+    loupe.regions = [core, east]
+    for names in (loupe.region_list.names, list(loupe.spectra), list(loupe.spectrum_view.spectra),
+                  [o["name"] for o in loupe.sky_view.outlines]):
+        assert sorted(names) == ["core", "east"]
+    # Its spectrum is the region's own (the regions package's sky shape on the cube's grid).
+    expected = region_spectrum(loupe.cube, loupe.region_list.sky_region("east"))
+    assert_allclose(loupe.spectra["east"][0].value, expected.value, rtol=1e-6)
+    # The link still holds both ways: the list's remove button and a drawn shape reach the suite.
+    loupe.region_list.remove(first)
+    assert [r["name"] for r in loupe.regions] == ["east"] and list(loupe.spectra) == ["east"]
+    loupe.sky_view._emit("box", {"x": [3.0, 8.0], "y": [3.0, 9.0]})
+    assert len(loupe.regions) == 2 and len(loupe.spectra) == 2
+    loupe.regions = []
+    assert loupe.region_list.names == [] and loupe.spectra == {} and loupe.sky_view.outlines == []
+
+
+def test_a_bad_region_set_from_code_is_refused_and_changes_nothing(loupe):
+    loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=4), name="core")
+    before = list(loupe.regions)
+    with pytest.raises(Exception, match="lacks"):
+        loupe.regions = [*before, {"name": "odd", "color": "#000000", "kind": "circle"}]
+    assert loupe.regions == before and loupe.region_list.regions == before and list(loupe.spectra) == ["core"]
+    # A region entirely off the image has no spectrum anywhere: it is not kept, and the status says why.
+    far = dict(before[0], name="far", dec=before[0]["dec"] + 1.0)
+    loupe.regions = [*before, far]
+    assert [r["name"] for r in loupe.regions] == ["core"] == loupe.region_list.names
+    assert loupe.status.level == "error" and "far" in loupe.status.message
+
+
+def test_moment_maps_stay_on_the_sky_after_switching_windows_and_back(cube_path, rng):
+    """Regression test for #19: the maps vanished from the sky's 'Show' choice after a switch away and back."""
+    low = cube_path(rng.normal(size=(20, 24, 28)), crval3=230.0e9, cdelt3=-2e6)
+    high = cube_path(rng.normal(size=(30, 12, 14)), crval3=232.0e9, cdelt3=1e6, pixel=0.5)
+    loupe = Loupe([low, high], first_view=False)
+    f = np.sort(loupe._frequencies[0])
+    loupe.line_free = [[float(f[0]), float(f[4])], [float(f[15]), float(f[19])]]
+    loupe.line_window = [float(f[6]), float(f[13])]
+    loupe.make_moments(wait=True)
+    made = ["moment 0", "moment 1", "moment 2", "moment 0 error", "rms"]
+    assert list(loupe.sky_view.maps) == made
+    loupe.window = 1
+    # The other window's grid cannot show them (another pixel grid): only its channels are offered.
+    assert loupe.sky_view.maps == {} and loupe.sky_view.source_choice.options == (("channel", "channel"),)
+    loupe.window = 0
+    assert list(loupe.sky_view.maps) == made
+    assert [value for _, value in loupe.sky_view.source_choice.options] == ["channel", *made]
+    loupe.sky_source = "moment 1"
+    assert loupe.sky_view.source == "moment 1"
+
+
+def test_a_given_rest_frequency_outside_the_band_is_offered_as_velocity_zero():
+    """Regression test for #19: with rest_frequency= of a line outside the band, the suite failed to list it.
+
+    The varying-beams demo covers 342.3-343.1 GHz; CO J=2-1 rests at 230.538 GHz (CDMS catalogue).
+    """
+    from cubeloupe.analysis import demo_path
+
+    loupe = Loupe(demo_path("varying_beams"), rest_frequency=230.538 * u.GHz, first_view=False)
+    assert loupe.status.level != "error", loupe.status.message
+    assert loupe.reference_line == "CO J=2-1" and loupe.rest_frequency == pytest.approx(230.538)
+    choice = loupe.line_overlay.reference_choice
+    assert choice.value == "CO J=2-1" and "CO J=2-1" in [value for _, value in choice.options]

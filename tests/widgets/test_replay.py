@@ -4,10 +4,12 @@ import ast
 import json
 import subprocess
 import sys
+import warnings
 
 import numpy as np
 import pytest
 
+from cubeloupe.analysis import CubeloupeWarning
 from cubeloupe.widgets.replay import to_code
 from session_steps import CASES, drive, same_map
 
@@ -132,3 +134,39 @@ def test_cube_made_in_memory_has_no_script(line_cube):
     loupe = Loupe(in_memory, first_view=False)
     with pytest.raises(SessionError, match="made in memory"):
         to_code(loupe)
+
+
+def test_script_gives_the_suite_its_extra_line_lists(line_cube, tmp_path):
+    """Regression test for #19: the script's Loupe lacked the catalog the suite was given."""
+    import astropy.units as u
+    from astropy.table import Table
+
+    from cubeloupe.widgets import Loupe
+
+    lines = tmp_path / "my_lines.ecsv"
+    Table({"species": ["XY"], "transition": ["3-2"], "rest_frequency": [230.1] * u.GHz}).write(lines)
+    loupe = Loupe(line_cube, catalog=[str(lines)], first_view=False)
+    code = to_code(loupe)
+    assert "catalog=catalog" in code and repr(str(lines)) in code
+    ns = {}
+    exec(compile(code, "script", "exec"), ns)
+    assert "XY 3-2" in list(ns["loupe"].catalog["name"])
+
+
+def test_moments_as_shown_lie_within_the_window(driven):
+    """The script's moments 1 and 2 are the suite's shown maps (significant, moment 1 within the window)."""
+    case, loupe = driven
+    code = to_code(loupe)
+    assert "within_window(" in code
+    ns = {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", CubeloupeWarning)  # the demo's blanked pixels, warned in the suite already
+        exec(compile(code, "script", "exec"), ns)
+    for name, key in (("moment 1", "shown_m1"), ("moment 2", "shown_m2")):
+        same_map(np.asarray(ns[key].value), loupe.moment_panel.maps[name].value, loupe.moments.n_channels)
+    low, high = sorted(loupe.moments.window.value)
+    m1 = ns["shown_m1"].value[np.isfinite(ns["shown_m1"].value)]
+    # An intensity-weighted mean of the window's velocities with positive weights lies between them.
+    assert np.all((m1 >= low - 1e-3) & (m1 <= high + 1e-3))
+    if case == "disk":  # the disk's rotation is seen (the lensed demo's line-free windows have none)
+        assert m1.size > 100 and m1.max() - m1.min() > 100

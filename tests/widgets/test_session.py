@@ -267,3 +267,77 @@ def test_sessions_of_earlier_versions_still_open(fixture):
         for name, value in values.items():
             assert getattr(getattr(loupe, part), name) == value
     assert loupe.measurements and loupe.moments is not None
+
+
+def _line_list(folder):
+    """A user's line list of one invented line (ECSV, the catalog's columns; see read_line_list)."""
+    from astropy.table import Table
+    import astropy.units as u
+
+    path = folder / "my_lines.ecsv"
+    Table({"species": ["XY"], "transition": ["3-2"], "rest_frequency": [230.1 * 1e9] * u.Hz}).write(path)
+    return path
+
+
+def test_catalog_files_are_saved_and_given_back(line_cube, tmp_path):
+    """Regression test for #19: a suite's extra line lists were not saved, so a restore lost their lines."""
+    lines = _line_list(tmp_path)
+    loupe = Loupe(line_cube, catalog=str(lines), first_view=False)
+    assert "XY 3-2" in list(loupe.catalog["name"])
+    saved = loupe.save_session(tmp_path / "with_lines.cubeloupe.json")
+    data = json.loads(saved.read_text())
+    assert data["catalog"] == [{"path": "my_lines.ecsv", "absolute": str(lines)}] and data["client"] is False
+    again = Loupe.from_session(saved)
+    assert "XY 3-2" in list(again.catalog["name"])
+    # A moved folder keeps working (the path is relative to the session file), a missing list is named.
+    moved = tmp_path / "moved"
+    moved.mkdir()
+    for name in ("with_lines.cubeloupe.json", "my_lines.ecsv"):
+        shutil.copy(tmp_path / name, moved / name)
+    data["cubes"][0]["path"] = os.path.relpath(data["cubes"][0]["absolute"], moved)
+    (moved / "with_lines.cubeloupe.json").write_text(json.dumps(data))
+    (tmp_path / "my_lines.ecsv").unlink()
+    assert "XY 3-2" in list(Loupe.from_session(moved / "with_lines.cubeloupe.json").catalog["name"])
+    (moved / "my_lines.ecsv").unlink()
+    with pytest.raises(CubeFileError, match="catalog"):
+        Loupe.from_session(moved / "with_lines.cubeloupe.json")
+
+
+def test_a_line_list_given_in_memory_is_noted_and_must_be_given_again(line_cube, tmp_path):
+    from cubeloupe.analysis import read_line_list
+
+    table = read_line_list(_line_list(tmp_path))
+    loupe = Loupe(line_cube, catalog=[table], first_view=False)
+    saved = loupe.save_session(tmp_path / "in_memory.cubeloupe.json")
+    assert json.loads(saved.read_text())["catalog"] == [{"in_memory": "QTable"}]
+    with pytest.raises(SessionError, match="catalog=") as refused:
+        Loupe.from_session(saved)
+    assert "catalog[0]" in str(refused.value)
+    assert "XY 3-2" in list(Loupe.from_session(saved, catalog=[table]).catalog["name"])
+
+
+def test_a_client_is_noted_not_saved(line_cube, tmp_path):
+    """The session and the script say a dask.distributed client made the maps; a restore says it computes here."""
+    from cubeloupe.widgets.replay import to_code
+
+    class StandIn:  # only its presence is recorded: the session never serialises a client
+        pass
+
+    loupe = Loupe(line_cube, client=StandIn(), first_view=False)
+    saved = loupe.save_session(tmp_path / "client.cubeloupe.json")
+    assert json.loads(saved.read_text())["client"] is True
+    assert "StandIn" not in saved.read_text()
+    assert "dask.distributed client" in to_code(loupe)
+    again = Loupe.from_session(saved)
+    assert again.client is None and "dask.distributed client" in again.moment_panel.status.message
+
+
+def test_session_fields_catalog_and_client_are_checked(tmp_path):
+    good = json.loads((SESSIONS / "v1-disk.cubeloupe.json").read_text())
+    for field, value, words in (("catalog", "lines.ecsv", "must be a list"), ("catalog", [{"path": ""}], "path"),
+                                ("catalog", [{"path": "a.ecsv", "extra": 1}], "unknown"), ("client", "yes", "true or false")):
+        with pytest.raises(SessionError, match=words):
+            SessionState.from_dict({**good, field: value})
+    # A version 1 session written before these fields existed still reads: no extra list, no client.
+    state = SessionState.from_dict({k: v for k, v in good.items() if k not in ("catalog", "client")})
+    assert state.catalog == () and state.client is False
