@@ -188,11 +188,10 @@ class _MomentKernel:
         (a continuum much brighter than the noise) it would lose digits, so
         those pixels are redone in float64 with the residual formed explicitly.
         """
-        matrix = weights.matrix.astype(y.dtype, copy=False)
-        sums = (matrix @ y).astype(np.float64)
+        n_free, n_basis = self.n_free_selected, weights.n_basis
+        sums = self._products(weights, y, n_free, n_basis)
         if not weights.n_free:
             return sums, np.zeros(y.shape[1])
-        n_free, n_basis = self.n_free_selected, weights.n_basis
         free = y[:n_free]
         squares = np.einsum("ij,ij->j", free, free).astype(np.float64)
         if not n_basis:
@@ -207,6 +206,28 @@ class _MomentKernel:
             exact -= basis.T @ (basis @ exact)
             residual[risky] = np.einsum("ij,ij->j", exact, exact)
         return sums, np.maximum(residual, 0.0)
+
+    @staticmethod
+    def _products(weights, y, n_free, n_basis):
+        """Every weighted sum of each pixel (``weights.matrix @ y``) in float64, as few short products.
+
+        The moment rows reach the line-free channels only through the baseline, so there they lie
+        in the span of the orthonormal basis rows ``Q^T``: ``M[:, free] = (M[:, free] Q) Q^T``.
+        Forming ``Q^T y`` once costs ``order + 1`` rows over the line-free channels instead of every
+        row over every channel; and one row times a block (a matrix-vector product) runs at memory
+        speed where a product with a 5-row matrix does not (2.4x faster on a 1000 x 1024 float32
+        block with one BLAS thread, measured for issue #20).
+        """
+        matrix = weights.matrix
+        sums = np.zeros((matrix.shape[0], y.shape[1]))
+        window_rows = matrix[:3, n_free:].astype(y.dtype)
+        for row in range(3):
+            sums[row] = window_rows[row] @ y[n_free:]
+        if n_basis:
+            basis = matrix[3:3 + n_basis, :n_free]
+            projected = np.stack([row.astype(y.dtype) @ y[:n_free] for row in basis]).astype(np.float64)
+            sums += (matrix[:, :n_free] @ basis.T) @ projected
+        return sums
 
     def _irregular(self, y, out, columns):
         """Pixels with blank channels: group them by their pattern of valid channels."""

@@ -488,7 +488,9 @@ class SkyView(w.VBox):
             lo, hi = limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin, vmax=self.vmax)
             colour = stretched(image, lo, hi, self.stretch)
             ramp = stretched(np.linspace(lo, hi, 256, dtype=np.float32)[:, None], lo, hi, self.stretch)
-            with self.figure.hold_sync(), self.colorbar.hold_sync():
+            # One message per widget (#20): the browser redraws the colour bar's axis once, not per trait.
+            with self.figure.hold_sync(), self.colorbar.hold_sync(), self.bar_image.hold_sync(), \
+                    self._bar_scale.hold_sync(), self._bar_axis.hold_sync():
                 self.image.image = colour
                 self.bar_image.image = ramp
                 self.bar_image.y = (lo, hi)

@@ -242,7 +242,10 @@ class Driver:
                 if what != previous:
                     steps.append(f"{at}:{what}")
                 previous = what
-            print(f"  {name}: {ms:.0f} ms; changes: {'; '.join(steps[:40])}")
+            # The WebGL draws and the first and last few changes tell where the time went.
+            kept = [step for k, step in enumerate(steps) if k < 6 or k >= len(steps) - 4 or ":tex" in step
+                    or ":gl" in step]
+            print(f"  {name}: {ms:.0f} ms; changes: {'; '.join(kept)}")
         return state
 
     # --- the gestures -------------------------------------------------------------------------
@@ -407,8 +410,9 @@ def scenarios(folder, only):
         if (REAL_CUBES / name).exists():
             found[f"real {name.split('_')[0]}"] = [FILE_SUITE.format(path=str((REAL_CUBES / name).resolve()))]
     if not only or "big" in only:
-        found["1024x1024"] = [FILE_SUITE.format(path=str(_big_cube(folder)))]
-    return {k: v for k, v in found.items() if not only or k in only or (k.split()[0] in only and " " not in k[:5])}
+        found["big 1024x1024"] = [FILE_SUITE.format(path=str(_big_cube(folder)))]
+    return {k: v for k, v in found.items()
+            if not only or k in only or any(o in ("real", "big") and k.startswith(o) for o in only)}
 
 
 def summary_table(results, load):
