@@ -144,6 +144,10 @@ class Loupe(w.VBox):
                 self.status.error("No cube to show: pass the path of a FITS line cube, e.g. Loupe('cube.fits').")
             return
         problem = self.status.message if self.status.level == "error" else ""
+        if rest_frequency is not None and not isinstance(rest_frequency, u.Quantity):
+            problem = problem or (f"rest_frequency={rest_frequency!r} has no unit; pass e.g. {rest_frequency!r} * u.GHz "
+                                  "(import astropy.units as u). The suite opened without it.")
+            rest_frequency = None
         self.velocity_only = False
         if any(velocity_only(c) for c in self.cubes):
             with self.status.guard("placing a velocity-only cube"):

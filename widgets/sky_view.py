@@ -340,7 +340,7 @@ class SkyView(w.VBox):
 
     @property
     def diverging(self):
-        """True when the map shown is a velocity field, drawn in a diverging ramp centred on zero."""
+        """True when the map shown is a velocity field, drawn in a diverging ramp (centred on zero when it spans zero)."""
         return bool(_DIVERGING_MAP.match(self.source))
 
     def _apply_ramp(self):
@@ -484,8 +484,10 @@ class SkyView(w.VBox):
             self._plane = values
             image, factor = display_image(values, self._display_size(values.shape))
             self._image_shown = image
-            limits = centred_limits if self.diverging else display_limits
-            lo, hi = limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin, vmax=self.vmax)
+            lo, hi = display_limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin, vmax=self.vmax)
+            if self.diverging and lo < 0 < hi:  # a velocity field about zero; one off zero keeps its own range (#17)
+                lo, hi = centred_limits(image, self.lower_percentile, self.upper_percentile, vmin=self.vmin,
+                                        vmax=self.vmax)
             colour = stretched(image, lo, hi, self.stretch)
             ramp = stretched(np.linspace(lo, hi, 256, dtype=np.float32)[:, None], lo, hi, self.stretch)
             # One message per widget (#20): the browser redraws the colour bar's axis once, not per trait.

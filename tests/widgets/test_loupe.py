@@ -233,3 +233,11 @@ def test_a_given_rest_frequency_outside_the_band_is_offered_as_velocity_zero():
     assert loupe.reference_line == "CO J=2-1" and loupe.rest_frequency == pytest.approx(230.538)
     choice = loupe.line_overlay.reference_choice
     assert choice.value == "CO J=2-1" and "CO J=2-1" in [value for _, value in choice.options]
+
+
+def test_a_rest_frequency_without_unit_is_named_and_the_suite_still_opens(cube_path, rng):
+    """A bare number for rest_frequency broke the opening of a velocity-axis cube (a traceback from the channel bar)."""
+    path = cube_path(rng.normal(size=(12, 8, 9)).astype(np.float32), spectral="VOPT", restfrq=None, bunit="K")
+    loupe = Loupe(path, rest_frequency=110.20135428, first_view=False)
+    assert loupe.cubes and loupe.velocity_only
+    assert loupe.status.level == "error" and "110.20135428 * u.GHz" in loupe.status.message

@@ -5,10 +5,11 @@ widgets in the form the bqplot front end sends them.
 """
 
 import astropy.units as u
+import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from cubeloupe.analysis import centred_limits, open_cube
+from cubeloupe.analysis import centred_limits, display_limits, open_cube
 from cubeloupe.analysis.display import display_image, stretched
 from cubeloupe.analysis.moments import moment_maps
 from cubeloupe.widgets import Loupe
@@ -29,12 +30,19 @@ def test_moment_action_equals_moment_maps(loupe, line_cube):
     # the maps are shown as soon as they are ready, moment 0 first
     assert loupe.sky_source == "moment 0"
     loupe.sky_source = "moment 1"
-    # moment 1 is shown where moment 0 exceeds 3 times its error (common practice)
+    # moment 1 is shown where moment 0 exceeds 3 times its error (common practice) and within the window's
+    # velocities (a weighted mean of them with positive weights lies between them)
     shown = expected.m1.value.copy()
     shown[~(expected.m0.value > 3 * expected.m0_error.value)] = float("nan")
+    low, high = sorted(expected.window.to_value(u.km / u.s))
+    with np.errstate(invalid="ignore"):
+        shown[(shown < low - 1e-3) | (shown > high + 1e-3)] = float("nan")
     assert 0 < (expected.m0.value > 3 * expected.m0_error.value).sum() < shown.size
     image, _ = display_image(shown, loupe.sky_view.max_display_size)
-    lo, hi = centred_limits(image)  # a velocity field: colour limits symmetric about zero (#17)
+    # A velocity field: colour limits symmetric about zero when it spans zero, else its own range (#17).
+    lo, hi = display_limits(image)
+    if lo < 0 < hi:
+        lo, hi = centred_limits(image)
     assert_allclose(loupe.sky_view.image.image, stretched(image, lo, hi), rtol=1e-5, equal_nan=True)
     loupe.sky_view.contour_source = "moment 0"
     assert len(loupe.sky_view.contour_mark.x) > 0
@@ -125,3 +133,32 @@ def test_moment_1_outside_the_window_is_not_shown():
     assert_allclose(shown_m1.value, [[np.nan, -250.0, 0.0], [120.0, 250.0, np.nan]], equal_nan=True)
     assert_allclose(shown_m2.value, [[np.nan, 30.0, 30.0], [30.0, 30.0, np.nan]], equal_nan=True)
     assert np.isnan(m1.value).sum() == 1  # the inputs are left as they were
+
+
+def test_moment_1_of_the_demo_disk_is_drawn_over_the_disks_velocities():
+    """Issue #17: moment 1 of the disk demo was drawn over about -2 000..+5 000 km/s, set by noise pixels.
+
+    The demo's injected disk (its sidecar, `demo_truth`): systemic 1 462 km/s, v_flat 195 km/s at inclination
+    52 deg, so line-of-sight velocities within 1 462 +- 195 sin 52 = +-154 km/s, plus 14 km/s dispersion.
+    """
+    from cubeloupe.analysis import demo_path, demo_truth
+
+    truth = demo_truth("disk")
+    disk = truth["disk"]
+    systemic = disk["systemic_velocity"].to_value(u.km / u.s)
+    reach = (disk["v_flat"] * np.sin(disk["inclination"])).to_value(u.km / u.s) + 3 * disk[
+        "velocity_dispersion"].to_value(u.km / u.s)
+    loupe = Loupe(demo_path("disk"))
+    rest = truth["lines"][0]["rest_frequency"]
+
+    def observed(v):  # radio convention at z = 0 (Greisen et al. 2006)
+        return float((v * u.km / u.s).to(u.GHz, equivalencies=u.doppler_radio(rest)).value)
+
+    loupe.line_free = [sorted([observed(systemic - 600), observed(systemic - 300)]),
+                       sorted([observed(systemic + 300), observed(systemic + 600)])]
+    loupe.line_window = sorted([observed(systemic - 250), observed(systemic + 250)])
+    loupe.make_moments(wait=True)
+    loupe.sky_source = "moment 1"
+    low, high = loupe.sky_view.shown_limits
+    assert high - low < 1000
+    assert systemic - reach - 10 <= low < high <= systemic + reach + 10, (low, high)
