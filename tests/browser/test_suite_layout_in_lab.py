@@ -4,15 +4,16 @@ A notebook holding one suite per demo cube is opened at 1 440 x 900 with Jupyter
 browser open and at 1 280 x 800 with it closed. At each size: nothing of the suite sticks out
 of the notebook's output area or scrolls sideways, the first view shows a channel with
 emission and a spectrum with units, the sky axes are in world coordinates, the browser
-console stays clean and no news prompt covers the page. Screenshots of each state go to the
-browser suite's screenshot folder.
+console stays clean and no news prompt covers the page. Moment 1 of the disk, made with the
+moment button and chosen under "Show", is drawn over the disk's velocities only (< 1 000 km/s).
+Screenshots of each state go to the browser suite's screenshot folder.
 """
 
 import json
 
 import pytest
 
-from lab import PROBE_SETUP, ask_kernel
+from lab import PROBE_SETUP, ask_kernel, distinct_colours, wait_until
 
 pytestmark = pytest.mark.browser
 
@@ -105,3 +106,45 @@ def test_first_view_shows_emission_and_a_spectrum(opened):
                              "'unit': L.spectrum_view.y_axis.label}")
     assert answer["spectra"], "the first view has no spectrum"
     assert answer["unit"], "the spectrum's axis has no unit"
+
+
+# Typed into the notebook: line-free ranges and a line window about the disk demo's systemic velocity (its sidecar,
+# demo_truth), in observed frequency (radio convention at z = 0, Greisen et al. 2006).
+DISK_RANGES = (
+    "import astropy.units as u; from cubeloupe.analysis import demo_truth; _t = demo_truth('disk'); "
+    "_s = _t['disk']['systemic_velocity'].to_value(u.km / u.s); _rest = _t['lines'][0]['rest_frequency']; "
+    "_f = lambda v: float((v * u.km / u.s).to(u.GHz, equivalencies=u.doppler_radio(_rest)).value); "
+    "loupe.line_free = [sorted([_f(_s - 600), _f(_s - 300)]), sorted([_f(_s + 300), _f(_s + 600)])]; "
+    "loupe.line_window = sorted([_f(_s - 250), _f(_s + 250)]); print(_s)"
+)
+
+
+def test_moment_1_of_the_disk_spans_its_velocities_only(opened):
+    """Issue #17: moment 1 of the disk spanned about -2 000..+5 000 km/s (noise pixels); the disk's own velocities
+    are 1 462 +- 154 km/s (its sidecar: v_flat 195 km/s at 52 deg inclination)."""
+    # Both pages show one notebook, hence one kernel: its `loupe` is the suite the last page ran and shows.
+    size = SIZES[-1][0]
+    _, lab = opened[size]
+    suite = lab.notebook.locator(".cubeloupe-loupe").first
+    assert lab.run_code(PROBE_SETUP) == "Loupe"
+    systemic = float(lab.run_code(DISK_RANGES).splitlines()[-1])
+    suite.locator(".cubeloupe-moment-button").scroll_into_view_if_needed()
+    suite.locator(".cubeloupe-moment-button").click()
+    choice = suite.locator(".cubeloupe-source select")
+    status = suite.locator(".cubeloupe-moment-panel .cubeloupe-status-text")
+
+    def offered():
+        return [text.replace("\xa0", " ") for text in choice.locator("option").all_inner_texts()]
+
+    wait_until(lambda: "moment 1" in offered() or "✖" in status.inner_text(), "'moment 1' to be offered under Show")
+    assert "✖" not in status.inner_text(), status.inner_text()
+    choice.select_option(index=offered().index("moment 1"))
+    wait_until(lambda: ask_kernel(lab, "L.sky_source") == "moment 1", "moment 1 on the sky")
+    low, high = ask_kernel(lab, "L.sky_view.shown_limits")
+    assert high - low < 1000 and systemic - 200 <= low < high <= systemic + 200, (low, high)
+    canvas = suite.locator(".cubeloupe-sky-figure canvas").first
+    suite.locator(".cubeloupe-sky-view").evaluate("(view) => view.scrollIntoView({block: 'start'})")
+    wait_until(lambda: distinct_colours(canvas) > 10, "moment 1 to be drawn")
+    lab.screenshot(f"layout-{size}-disk-moment-1")
+    assert lab.error_outputs() == []
+    assert lab.console_errors == []
