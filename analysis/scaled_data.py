@@ -74,7 +74,9 @@ class IntegerScaling:
         if work is not out:
             out[...] = work
         if self.blank is not None:
-            out[stored == self.blank] = np.nan
+            blanked = stored == self.blank
+            if blanked.any():
+                np.copyto(out, np.nan, where=blanked)
         return out
 
     @property

@@ -22,7 +22,7 @@ import numpy as np
 from ..blocks import plane_blocks, run_blocks
 from ..errors import SpectralRangeError
 from .detections import flag_channels
-from .grid_noise import channel_rms_from_grid, grid_noise_statistics, steady_rms
+from .grid_noise import channel_rms_from_grid, correlation_stride, grid_noise_statistics, steady_rms
 from .noise_map import noise_scaled_extremes
 from .results import NoiseSummary
 from .rules import FLAG_RULE, SPATIAL_RULE
@@ -86,11 +86,12 @@ class _GridChannelNoise:
     """Kernel over whole channel images: the MADs of `grid_noise_statistics` over every ``step``-th pixel."""
 
     max_pixels: int
+    stride: int = 1  # of the lag MADs: see grid_noise.correlation_stride
 
     def __call__(self, data):
         flat = data.reshape(data.shape[0], -1)
         step = max(1, -(-flat.shape[1] // self.max_pixels))
-        return grid_noise_statistics(np.ascontiguousarray(flat[:, ::step]))
+        return grid_noise_statistics(np.ascontiguousarray(flat[:, ::step]), stride=self.stride)
 
 
 def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=None, cancel=None):
@@ -116,7 +117,8 @@ def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=
         for name, values in result.items():
             columns[name][start:start + len(values)] = values
 
-    run_blocks(cube, _GridChannelNoise(int(max_pixels)), plane_blocks(cube.shape, itemsize=4), consume,
+    kernel = _GridChannelNoise(int(max_pixels), correlation_stride(n_chan))
+    run_blocks(cube, kernel, plane_blocks(cube.shape, itemsize=4), consume,
                dtype=np.float32, client=client, progress=progress, cancel=cancel)
     return columns
 

@@ -40,6 +40,8 @@ __all__ = [
     "SWITCH_SIGMAS",
     "GridNoise",
     "grid_noise_statistics",
+    "correlation_stride",
+    "CORRELATION_CHANNELS",
     "channel_correlation",
     "channel_rms_from_grid",
     "row_mads",
@@ -58,6 +60,9 @@ MAD_EFFICIENCY = 1.1664
 # neighbouring channels (at most MAX_STEADY_CHANNELS) to reach it: 1.1664 / sqrt(4096) = 1.8 %.
 STEADY_PIXELS = 4096
 MAX_STEADY_CHANNELS = 101
+# Channels behind the medians of the lag-1 and lag-2 MADs that give the channel correlation
+# (see `correlation_stride`).
+CORRELATION_CHANNELS = 128
 
 
 def row_mads(values):
@@ -79,7 +84,10 @@ def row_mads(values):
     full = finite.all(axis=1)
     if full.any():
         rows = values if full.all() else values[full]
-        median = median_rows(rows)
+        # The deviations in the rows' own dtype: float32 rows less a float64 column go through numpy's
+        # casting loop, which took three quarters of the whole MAD (bench_check.py, #13); the median
+        # rounded to float32 moves the MAD by a float32 rounding at most.
+        median = median_rows(rows).astype(rows.dtype, copy=False)
         mad[full] = median_rows(np.abs(rows - median[:, None]))
     mixed = ~full & finite.any(axis=1)
     if mixed.any():
@@ -89,8 +97,33 @@ def row_mads(values):
     return mad
 
 
-def grid_noise_statistics(grid):
+def correlation_stride(n_channels):
+    """Every how many channels `grid_noise_statistics` measures the lag-1 and lag-2 MADs for the correlation.
+
+    `channel_correlation` keeps only their medians over the band, so about
+    ``CORRELATION_CHANNELS`` channels of them do (the MAD of each over the
+    grid's thousands of pixels is already within a few per cent); measuring
+    them at every channel of a large cube cost a third of the check's noise
+    pass (bench_check.py, #13).
+
+    Examples
+    --------
+    >>> correlation_stride(1000), correlation_stride(60)
+    (7, 1)
+    """
+    return max(1, int(n_channels) // CORRELATION_CHANNELS)
+
+
+def grid_noise_statistics(grid, *, stride=1):
     """Per channel of ``grid`` (channels, pixels), a copy the caller owns: MADs of the values and of their differences.
+
+    Parameters
+    ----------
+    grid : ndarray, shape (n, n_pixels)
+        Reordered in place.
+    stride : int
+        ``step_mad`` and ``lag2_mad`` are measured from every ``stride``-th
+        channel of the grid only (NaN for the others); see `correlation_stride`.
 
     Returns
     -------
@@ -100,12 +133,18 @@ def grid_noise_statistics(grid):
         channel k + 1 less the mean of its neighbours), ``n_pixels`` (n:
         pixels with data) and ``total`` (n: their sum).
     """
+    n = grid.shape[0]
+    stride = max(1, int(stride))
     n_pixels = np.isfinite(grid).sum(axis=1)
-    step = grid[1:] - grid[:-1]
-    lag2 = grid[2:] - grid[:-2]
+    step_mad = np.full(max(n - 1, 0), np.nan)
+    lag2_mad = np.full(max(n - 2, 0), np.nan)
+    for lag, mads in ((1, step_mad), (2, lag2_mad)):
+        if n > lag:
+            first = np.arange(0, n - lag, stride)
+            mads[first] = row_mads(grid[first + lag] - grid[first])
     curvature = grid[1:-1] - 0.5 * (grid[:-2] + grid[2:])
     total = np.nansum(grid, axis=1, dtype=np.float64)
-    return {"mad": row_mads(grid), "step_mad": row_mads(step), "lag2_mad": row_mads(lag2),
+    return {"mad": row_mads(grid), "step_mad": step_mad, "lag2_mad": lag2_mad,
             "curvature_mad": row_mads(curvature), "n_pixels": n_pixels, "total": total}
 
 

@@ -31,7 +31,7 @@ from ..blocks import plane_blocks, run_blocks, spectra_blocks
 from ..errors import CubeloupeError
 from ..noise import MAD_TO_SIGMA
 from ..row_statistics import row_extremes, row_medians
-from .grid_noise import MAD_EFFICIENCY, channel_rms_from_grid, grid_noise_statistics, row_mads
+from .grid_noise import MAD_EFFICIENCY, channel_rms_from_grid, correlation_stride, grid_noise_statistics, row_mads
 
 __all__ = ["SpatialNoise", "spatial_noise", "pixel_noise_map", "NoiseScaledExtremes", "noise_scaled_extremes"]
 
@@ -442,6 +442,7 @@ class _NoiseScaledExtremes:
     inverse: np.ndarray    # (n_pixels,) float32: 1 / scale (1 where blank)
     sample: np.ndarray     # pixels of the grid for the rms
     grid_inverse: np.ndarray  # (len(sample),) float32: 1 / relative at the grid pixels
+    stride: int = 1  # of the lag MADs: see grid_noise.correlation_stride
 
     def __call__(self, data):
         n_chan = data.shape[0]
@@ -455,7 +456,7 @@ class _NoiseScaledExtremes:
         np.multiply(values, self.inverse, out=values)
         peak, where, trough, where_low, _ = row_extremes(values, count=False)
         return {"peak": peak, "where": where, "trough": trough, "where_low": where_low,
-                **grid_noise_statistics(grid)}
+                **grid_noise_statistics(grid, stride=self.stride)}
 
 
 def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None, stride=1, pixels_per_sample=1.0,
@@ -519,7 +520,7 @@ def noise_scaled_extremes(cube, level, relative, *, scale=None, rms_pixels=None,
     kernel = _NoiseScaledExtremes(
         level=np.where(usable, level, 0.0).astype(np.float32), inverse=inverse.astype(np.float32),
         sample=sample,
-        grid_inverse=(1.0 / relative.ravel()[sample]).astype(np.float32))
+        grid_inverse=(1.0 / relative.ravel()[sample]).astype(np.float32), stride=correlation_stride(n_chan))
     columns = {name: np.full(n_chan, np.nan) for name in ("peak", "trough")}
     where = {name: np.full(n_chan, -1, dtype=int) for name in ("where", "where_low")}
     noise = {"mad": np.full(n_chan, np.nan), "step_mad": np.full(max(n_chan - 1, 0), np.nan),
