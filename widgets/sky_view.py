@@ -422,7 +422,8 @@ class SkyView(w.VBox):
         with self.figure.hold_sync():
             self.figure.layout.width = self.figure.layout.min_width = f"{figure_width}px"
             self.figure.layout.height = f"{figure_height}px"
-            self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = figure_width / figure_height
+            with self.figure.hold_trait_notifications():  # both bounds checked together (min > max in between)
+                self.figure.min_aspect_ratio = self.figure.max_aspect_ratio = figure_width / figure_height
             self.x_scale.min, self.x_scale.max = -0.5, nx - 0.5
             self.y_scale.min, self.y_scale.max = -0.5, ny - 0.5
             self.image.x, self.image.y = (-0.5, nx - 0.5), (-0.5, ny - 0.5)

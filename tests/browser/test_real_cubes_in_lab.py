@@ -87,6 +87,18 @@ suites['narrow'] = narrow
 narrow
 """
 
+# Two windows: the disk demo and the strip above; moment maps of the strip (window 1), shown before display.
+PAIR = """\
+from cubeloupe.analysis import demo_path
+pair = Loupe([demo_path('disk'), 'narrow_strip_moments.fits'], first_view=False)
+pair.window = 1
+pair.line_free, pair.line_window = narrow.line_free, narrow.line_window
+pair.make_moments(wait=True)
+pair.sky_source = 'moment 1'
+suites['pair'] = pair
+pair
+"""
+
 # Typed into the notebook for one suite: the redshift that puts velocity zero on the channel the suite opened on
 # (the brightest emission), for the z box; the line window and line-free ranges around it in the suite's frame.
 # Observed frequency of a rest-frame velocity v: rest (1 - v/c) / (1 + z) (radio convention, Greisen et al. 2006).
@@ -110,7 +122,7 @@ def _write_notebook(folder, real):
     notebook = nbformat.v4.new_notebook()
     notebook.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
     cells = [SETUP] + [REAL_CELL.format(name=name, path=str(path), rest=rest)
-                       for name, (path, rest, _) in real.items()] + [NARROW]
+                       for name, (path, rest, _) in real.items()] + [NARROW, PAIR]
     notebook.cells = [nbformat.v4.new_code_cell(source) for source in cells]
     nbformat.write(notebook, str(folder / NOTEBOOK))
 
@@ -137,7 +149,7 @@ def real_page(lab_page, lab_root):
     lab.page.locator(".jp-SideBar.jp-mod-left .lm-TabBar-tab").first.click()
     lab.page.locator("#jp-left-stack").wait_for(state="visible")
     lab.run_all()
-    names = [*real, "narrow"]
+    names = [*real, "narrow", "pair"]
     suites = lab.notebook.locator(".cubeloupe-loupe")
     wait_until(lambda: suites.count() == len(names), f"{len(names)} suites on the page")
     assert lab.error_outputs() == []
@@ -241,3 +253,29 @@ def test_maps_made_before_display_and_a_resize_leave_no_console_error(real_page)
     assert not [e for e in lab.console_errors if "undefined" in e]
     assert lab.console_errors == []
     assert lab.error_outputs() == []
+
+
+def test_moment_maps_come_back_after_switching_windows_and_back(real_page):
+    """Regression test for #19 in the browser: the maps vanished from 'Show' after a switch away and back; the
+    switch is also one of the places the once-seen console error was looked for."""
+    lab, suites = real_page
+    suite = suites["pair"]
+    windows = suite.locator(".cubeloupe-window-choice select")
+    shown = suite.locator(".cubeloupe-source select")
+    canvas = suite.locator(".cubeloupe-sky-figure canvas").first
+
+    def offered():
+        return [text.replace("\xa0", " ") for text in shown.locator("option").all_inner_texts()]
+
+    suite.locator(".cubeloupe-sky-view").scroll_into_view_if_needed()
+    wait_until(lambda: "moment 1" in offered(), "the strip's moment maps under Show")
+    for index, maps in ((0, False), (1, True)):
+        windows.select_option(index=index)
+        wait_until(lambda: ask(lab, "suites['pair'].window") == index, f"window {index} on the sky")
+        wait_until(lambda: ("moment 1" in offered()) == maps, f"Show to {'offer' if maps else 'drop'} the maps")
+        wait_until(lambda: distinct_colours(canvas) > 5, "the sky image to be drawn")
+    shown.select_option(index=offered().index("moment 1"))
+    wait_until(lambda: ask(lab, "suites['pair'].sky_source") == "moment 1", "moment 1 on the sky again")
+    shot(lab, suite, "real-pair-window-back")
+    assert lab.error_outputs() == []
+    assert lab.console_errors == []

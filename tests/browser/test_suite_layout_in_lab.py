@@ -103,9 +103,13 @@ def test_first_view_shows_emission_and_a_spectrum(opened):
     _, lab = opened[SIZES[0][0]]
     assert lab.run_code(PROBE_SETUP) == "Loupe"
     answer = ask_kernel(lab, "{'channel': L.channel, 'spectra': list(L.spectra), "
-                             "'unit': L.spectrum_view.y_axis.label}")
+                             "'unit': L.spectrum_view.y_axis.label, "
+                             "'peak': float(__import__('numpy').nanmax(L.cube[L.channel].value)), "
+                             "'rms': float(__import__('cubeloupe.analysis').analysis.demo_truth('disk')['rms'].value)}")
     assert answer["spectra"], "the first view has no spectrum"
     assert answer["unit"], "the spectrum's axis has no unit"
+    # The channel shown holds emission: its brightest pixel stands well above the demo's injected noise (sidecar rms).
+    assert answer["peak"] > 10 * answer["rms"], answer
 
 
 # Typed into the notebook: line-free ranges and a line window about the disk demo's systemic velocity (its sidecar,

@@ -241,3 +241,18 @@ def test_a_rest_frequency_without_unit_is_named_and_the_suite_still_opens(cube_p
     loupe = Loupe(path, rest_frequency=110.20135428, first_view=False)
     assert loupe.cubes and loupe.velocity_only
     assert loupe.status.level == "error" and "110.20135428 * u.GHz" in loupe.status.message
+
+
+def test_windows_of_different_shapes_switch_both_ways(cube_path, rng):
+    """Switching back from a narrow window to a square one failed (bqplot refused min_aspect_ratio > max)."""
+    square = cube_path(rng.normal(size=(20, 24, 24)), crval3=230.0e9, cdelt3=-2e6)
+    strip = cube_path(rng.normal(size=(30, 21, 6)), crval3=232.0e9, cdelt3=1e6)
+    loupe = Loupe([square, strip], first_view=False)
+    for window, (ny, nx) in ((1, (21, 6)), (0, (24, 24)), (1, (21, 6))):
+        loupe.window = window
+        assert loupe.status.level != "error", loupe.status.message
+        width, height = loupe.sky_view.plot_size
+        # Square sky pixels whatever the window (equal pixel sizes here): the plot area keeps the map's shape.
+        assert width / height == pytest.approx(nx / ny, rel=0.02)
+        figure = loupe.sky_view.figure
+        assert figure.min_aspect_ratio == figure.max_aspect_ratio
