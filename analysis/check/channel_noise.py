@@ -1,9 +1,11 @@
 """The noise of each channel, measured so that sources do not lift it, and the channels that stand out.
 
 Pass 2 of the check (`channel_noise`): with a noise uniform across the
-field, `noise.channel_statistics` over a regular grid of pixels (every k-th
-image row, `noise_grid`), leaving out pixels with significant continuum when
-they are more than a few; with a noise varying across the field (a
+field, the robust statistics of each channel over a regular grid of pixels
+(every k-th image row, `noise_grid`), leaving out pixels with significant
+continuum when they are more than a few; the grid's values are kept by pass 1
+(`first_pass.NoiseGrid`), so this needs no read of the cube of its own except
+for cubes too large for that (`grid_statistics`); with a noise varying across the field (a
 primary-beam-corrected cube), `noise_scaled_extremes` over every channel
 image, each pixel's values over its relative noise. `flag_channels` then
 (`detections.flag_channels`) names the channels whose rms stands out.
@@ -19,7 +21,9 @@ from dataclasses import dataclass
 import astropy.units as u
 import numpy as np
 
-from ..blocks import plane_blocks, run_blocks
+import concurrent.futures
+
+from ..blocks import default_threads, plane_blocks, run_blocks
 from ..errors import SpectralRangeError
 from .detections import flag_channels
 from .grid_noise import channel_rms_from_grid, correlation_stride, grid_noise_statistics, steady_rms
@@ -33,6 +37,7 @@ __all__ = [
     "ChannelNoise",
     "channel_noise",
     "grid_statistics",
+    "kept_grid_statistics",
     "noise_grid",
 ]
 
@@ -94,6 +99,13 @@ class _GridChannelNoise:
         return grid_noise_statistics(np.ascontiguousarray(flat[:, ::step]), stride=self.stride)
 
 
+def _empty_columns(n_chan):
+    return {"mad": np.full(n_chan, np.nan), "step_mad": np.full(max(n_chan - 1, 0), np.nan),
+            "lag2_mad": np.full(max(n_chan - 2, 0), np.nan),
+            "curvature_mad": np.full(max(n_chan - 2, 0), np.nan), "n_pixels": np.zeros(n_chan),
+            "total": np.zeros(n_chan)}
+
+
 def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=None, cancel=None):
     """The MADs of `grid_noise_statistics` for every channel of ``cube``, over about ``max_pixels`` of its pixels.
 
@@ -107,10 +119,7 @@ def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=
         The keywords of `channel_rms_from_grid`.
     """
     n_chan = cube.shape[0]
-    columns = {"mad": np.full(n_chan, np.nan), "step_mad": np.full(max(n_chan - 1, 0), np.nan),
-               "lag2_mad": np.full(max(n_chan - 2, 0), np.nan),
-               "curvature_mad": np.full(max(n_chan - 2, 0), np.nan), "n_pixels": np.zeros(n_chan),
-               "total": np.zeros(n_chan)}
+    columns = _empty_columns(n_chan)
 
     def consume(block, result):
         (start, stop), = block.runs
@@ -120,6 +129,46 @@ def grid_statistics(cube, *, max_pixels=NOISE_MAX_PIXELS, client=None, progress=
     kernel = _GridChannelNoise(int(max_pixels), correlation_stride(n_chan))
     run_blocks(cube, kernel, plane_blocks(cube.shape, itemsize=4), consume,
                dtype=np.float32, client=client, progress=progress, cancel=cancel)
+    return columns
+
+
+def kept_grid_statistics(noise_grid, left_out=None, *, max_pixels=NOISE_MAX_PIXELS):
+    """What `grid_statistics` gives, from the grid pass 1 kept (`first_pass.NoiseGrid`) instead of a read.
+
+    The channels are taken in the runs `grid_statistics` would read as
+    blocks (differences across their boundaries are not measured, as
+    there), on one thread per core.
+
+    Parameters
+    ----------
+    noise_grid : first_pass.NoiseGrid
+    left_out : ndarray of bool, shape (ny, nx), optional
+        Pixels to leave out (NaN in every channel).
+    max_pixels : int
+        As for `grid_statistics`.
+
+    Returns
+    -------
+    dict
+        The keywords of `channel_rms_from_grid`.
+    """
+    values = noise_grid.values
+    n_chan, n_rows, n_columns = values.shape
+    if left_out is not None:
+        kept = ~np.asarray(left_out, dtype=bool)[::noise_grid.row_stride, ::noise_grid.column_step]
+        values = np.where(kept, values, np.float32(np.nan))
+    values = values.reshape(n_chan, -1)
+    # the grid is already thinned to about max_pixels: the kernel keeps every pixel of it
+    kernel = _GridChannelNoise(max(int(max_pixels), values.shape[1]), correlation_stride(n_chan))
+    # the channel runs grid_statistics reads: plane blocks of the rows it reads, whole rows wide
+    runs = [block.runs[0] for block in plane_blocks((n_chan, n_rows, n_columns * noise_grid.column_step),
+                                                    itemsize=4)]
+    columns = _empty_columns(n_chan)
+    with concurrent.futures.ThreadPoolExecutor(max_workers=default_threads()) as pool:
+        results = pool.map(lambda run: (run, kernel(values[run[0]:run[1]].copy())), runs)
+        for (start, _), result in results:
+            for name, found in result.items():
+                columns[name][start:start + len(found)] = found
     return columns
 
 
@@ -258,12 +307,18 @@ def channel_noise(cube, header, spectra, spatial, *, threshold, fwhm_pixels=None
         # channel, so those pixels are left out; below that the bias is at most a
         # few per cent and the faster unmasked pass is used.
         left_out = _continuum_pixels_left_out(spectra, notes, local=False)
-        noise_cube = cube if left_out is None else cube.with_mask(~left_out)
         stride, max_pixels = noise_grid(header.shape)
-        if stride > 1:
-            noise_cube = noise_cube[:, ::stride, :]
-        statistics = grid_statistics(noise_cube, max_pixels=max_pixels, client=client, progress=progress,
-                                     cancel=cancel)
+        kept = getattr(spectra, "noise_grid", None)
+        if kept is not None and kept.row_stride == stride:
+            statistics = kept_grid_statistics(kept, left_out, max_pixels=max_pixels)
+            if progress is not None:
+                progress(1.0)
+        else:
+            noise_cube = cube if left_out is None else cube.with_mask(~left_out)
+            if stride > 1:
+                noise_cube = noise_cube[:, ::stride, :]
+            statistics = grid_statistics(noise_cube, max_pixels=max_pixels, client=client, progress=progress,
+                                         cancel=cancel)
         grid = channel_rms_from_grid(**statistics, pixels_per_sample=_pixels_per_sample(fwhm_pixels, stride))
         channel_rms = u.Quantity(grid.rms, cube.unit)
         total_rms = _median_rms(channel_rms)

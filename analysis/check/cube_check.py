@@ -109,7 +109,7 @@ import numpy as np
 from ..cubes import open_cube, source_name
 from ..errors import ParameterError
 from ..spectral import check_redshift
-from .channel_noise import channel_noise
+from .channel_noise import channel_noise, noise_grid
 from .continuum import leftover_continuum_summary
 from .detections import DETECTION_SNR, WING_PAD_FRACTION, line_free_channels
 from .false_alarms import FALSE_ALARMS, detection_threshold
@@ -178,7 +178,7 @@ def check_cube(cube, *, z=None, threshold=DETECTION_SNR, false_alarms=FALSE_ALAR
     report, run = progress or (lambda fraction: None), {"client": client, "cancel": cancel}
     header = header_summary(cube)
     # Pass 1: each pixel's continuum level and noise; the peak and trough spectra without it.
-    spectra = continuum_free_peaks(cube, progress=_stage(report, 0.0, 0.3), **run)
+    spectra = continuum_free_peaks(cube, progress=_stage(report, 0.0, 0.3), noise_grid=noise_grid(cube.shape), **run)
     header = replace(header, blanked_fraction=1.0 - spectra.valid_fraction)
     limit = detection_threshold(header, spectra, threshold=threshold, false_alarms=false_alarms)
     # Pass 2: the noise across the field, then of each channel (in units of the noise map).

@@ -6,7 +6,9 @@ channel subsample), its noise and its channel-to-channel noise; per channel,
 the highest and lowest values of the data less that level (peak and trough
 spectra) and the valid fraction; per pixel, sums over all channels for the
 line-free mean (`noise.PixelSums`); over the channel subsample, the
-correlation of neighbouring pixels (`noise_fwhm_from_lags`).
+correlation of neighbouring pixels (`noise_fwhm_from_lags`); and, when asked
+(``noise_grid``), the values of a regular grid of pixels in every channel, so
+that the channel rms of pass 2 needs no read of its own (`NoiseGrid`).
 
 Examples
 --------
@@ -21,17 +23,39 @@ from dataclasses import dataclass, field
 import astropy.units as u
 import numpy as np
 
-from ..blocks import run_blocks, spectra_blocks
+from ..blocks import DEFAULT_BLOCK_BYTES, run_blocks, spectra_blocks
 from ..noise import MAD_TO_SIGMA, PixelSums, pixel_sums
 from ..row_statistics import row_extremes, row_medians
 
-__all__ = ["CONTINUUM_SAMPLE_CHANNELS", "ContinuumFreePeaks", "continuum_free_peaks", "noise_fwhm_from_lags"]
+__all__ = ["CONTINUUM_SAMPLE_CHANNELS", "ContinuumFreePeaks", "NoiseGrid", "continuum_free_peaks",
+           "noise_fwhm_from_lags"]
 
 # Channels used per pixel for the continuum estimate of `continuum_free_peaks`:
 # the median of 64 channels has a noise of about 1.25 sigma / 8 (common
 # practice for the median's efficiency), small next to the detection threshold,
 # and costs a fraction of a full median over every channel.
 CONTINUUM_SAMPLE_CHANNELS = 64
+# The grid of pixels for the channel rms is kept from pass 1 only while it (and pass 1's blocks, which
+# must then hold whole multiples of the grid's row spacing) stays this small; larger cubes read it in
+# a pass of its own.
+MAX_GRID_BYTES = 256 * 2**20
+MAX_GRID_BLOCK_BYTES = 4 * DEFAULT_BLOCK_BYTES
+
+
+@dataclass(frozen=True)
+class NoiseGrid:
+    """The values of every ``row_stride``-th image row, every ``column_step``-th pixel of it, in every channel.
+
+    Attributes
+    ----------
+    row_stride, column_step : int
+    values : ndarray, shape (n_channels, n_rows, n_columns), float32
+        NaN where the cube is blank or masked.
+    """
+
+    row_stride: int
+    column_step: int
+    values: np.ndarray = field(repr=False)
 
 
 @dataclass(frozen=True)
@@ -85,6 +109,7 @@ class ContinuumFreePeaks:
     troughs: object = None
     trough_positions: object = None
     step_noise: object = None
+    noise_grid: object = field(default=None, repr=False)  # NoiseGrid or None
 
     def line_free_mean(self, cube, line_free, *, client=None, progress=None, cancel=None):
         """Mean over line-free channels per pixel, its standard error and significance.
@@ -188,9 +213,13 @@ class _ContinuumFreePeaks:
     """Block kernel: per-pixel median, MAD and channel-step noise over a channel subsample; per-channel extremes."""
 
     step: int
+    grid_rows: int = 0  # keep every grid_rows-th row (blocks start on such rows) ...
+    grid_columns: int = 1  # ... every grid_columns-th pixel of it, for the channel rms; 0: none
 
     def __call__(self, data):
         n_chan = data.shape[0]
+        # before the block is changed in place below: the raw values of the noise grid
+        grid = data[:, ::self.grid_rows, ::self.grid_columns].copy(order="C") if self.grid_rows else None
         flat = data.reshape(n_chan, -1)
         # pixels along the rows so that each pixel's channels are contiguous for the partition
         sample = np.ascontiguousarray(flat[::self.step].T)
@@ -225,7 +254,7 @@ class _ContinuumFreePeaks:
         count, sum1, sum2 = sums
         return {"peak": peak, "where": where, "trough": trough, "where_low": where_low, "level": level,
                 "noise": MAD_TO_SIGMA * spread, "step_noise": MAD_TO_SIGMA / np.sqrt(2) * step_spread,
-                "valid": valid, "count": count, "sum1": sum1, "sum2": sum2, "lags": lags}
+                "valid": valid, "count": count, "sum1": sum1, "sum2": sum2, "lags": lags, "grid": grid}
 
 
 def _pixels_with_data(flat, level):
@@ -264,7 +293,24 @@ def _scatter(values, kept, size):
     return out
 
 
-def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
+def _grid_layout(shape, noise_grid):
+    """(row_stride, column_step, rows per block) for keeping the noise grid in pass 1, or None when too large."""
+    if noise_grid is None:
+        return None
+    n_chan, ny, nx = (int(n) for n in shape)
+    stride, max_pixels = (max(1, int(n)) for n in noise_grid)
+    n_rows = -(-ny // stride)
+    # every column_step-th pixel of the grid rows: the pixels channel_noise.grid_statistics takes
+    # from the same rows (exactly those when nx is a multiple of the step)
+    column_step = max(1, -(-(n_rows * nx) // max_pixels))
+    row_bytes = nx * n_chan * 4
+    if n_chan * n_rows * (-(-nx // column_step)) * 4 > MAX_GRID_BYTES or stride * row_bytes > MAX_GRID_BLOCK_BYTES:
+        return None
+    rows = max(1, DEFAULT_BLOCK_BYTES // row_bytes)
+    return stride, column_step, max(stride, rows // stride * stride)
+
+
+def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None, noise_grid=None):
     """Peak-intensity spectrum after removing each pixel's continuum level; per-pixel level and noise.
 
     The continuum level of a pixel is the median of its spectrum over an
@@ -282,6 +328,11 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
     cube : SpectralCube
     client, progress, cancel
         As for `blocks.run_blocks`.
+    noise_grid : (int, int), optional
+        ``(stride, max_pixels)`` of `channel_noise.noise_grid`: keep the
+        values of every ``stride``-th row, about ``max_pixels`` of their
+        pixels, in every channel (``ContinuumFreePeaks.noise_grid``), unless
+        that grid would be larger than ``MAX_GRID_BYTES``.
 
     Returns
     -------
@@ -305,6 +356,11 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
     valid = np.zeros(n_chan)
     sums = np.zeros((3, ny, nx))
     lags = np.zeros((6, len(range(0, n_chan, step))))
+    layout = _grid_layout(cube.shape, noise_grid)
+    grid = None
+    if layout is not None:
+        row_stride, column_step, block_rows = layout
+        grid = np.full((n_chan, -(-ny // row_stride), -(-nx // column_step)), np.nan, dtype=np.float32)
 
     def consume(block, result):
         rows, columns = block.rows, block.columns
@@ -317,6 +373,9 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
         step_noise[rows, columns] = result["step_noise"].reshape(shape)
         valid[:] += result["valid"]
         lags[:] += result["lags"]
+        if grid is not None:
+            first = rows.start // row_stride
+            grid[:, first:first + result["grid"].shape[1]] = result["grid"]
         for extreme, place, value, where, better in (
                 (best, positions, result["peak"], result["where"], result["peak"] > best),
                 (lowest, low_positions, result["trough"], result["where_low"], result["trough"] < lowest)):
@@ -325,9 +384,13 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
                 place[better, 0] = rows.start + where[better] // width
                 place[better, 1] = columns.start + where[better] % width
 
-    blocks = spectra_blocks(cube.shape, itemsize=4)
-    run_blocks(cube, _ContinuumFreePeaks(step), blocks, consume, dtype=np.float32, client=client,
-               progress=progress, cancel=cancel)
+    if layout is None:
+        blocks, kernel = spectra_blocks(cube.shape, itemsize=4), _ContinuumFreePeaks(step)
+    else:
+        # blocks of whole rows starting on grid rows, so that each block keeps its own grid rows
+        blocks = spectra_blocks(cube.shape, itemsize=4, block_shape=(block_rows, nx))
+        kernel = _ContinuumFreePeaks(step, grid_rows=row_stride, grid_columns=column_step)
+    run_blocks(cube, kernel, blocks, consume, dtype=np.float32, client=client, progress=progress, cancel=cancel)
     best[~np.isfinite(best)] = np.nan
     lowest[~np.isfinite(lowest)] = np.nan
     unit = u.Unit(cube.unit)
@@ -338,6 +401,7 @@ def continuum_free_peaks(cube, *, client=None, progress=None, cancel=None):
         pixel_noise=u.Quantity(noise, unit), valid_fraction=valid / float(ny * nx),
         n_sample=len(range(0, n_chan, step)), noise_fwhm_pixels=noise_fwhm_from_lags(lags), pixel_sums=sums,
         troughs=u.Quantity(lowest, unit), trough_positions=low_positions, step_noise=u.Quantity(step_noise, unit),
+        noise_grid=None if grid is None else NoiseGrid(row_stride=row_stride, column_step=column_step, values=grid),
     )
 
 

@@ -4,6 +4,7 @@
 import astropy.units as u
 import numpy as np
 import pytest
+from astropy.io import fits
 from astropy.tests.helper import assert_quantity_allclose
 
 from cubefactory import correlated_noise, line_cube_data, write_cube
@@ -48,3 +49,22 @@ def test_noise_correlation_is_measured_from_the_data(tmp_path, fwhm):
         np.testing.assert_allclose(measured, fwhm, rtol=0.1)
     else:
         assert max(measured) < 0.7  # white noise: neighbours uncorrelated
+
+
+@pytest.mark.parametrize("shape, stride, max_pixels", [((30, 41, 37), 3, 200), ((12, 20, 24), 1, 10_000)])
+def test_noise_grid_kept_by_the_first_pass_is_the_data_on_that_grid(tmp_path, rng, shape, stride, max_pixels):
+    # The grid pass 2 measures the channel rms on: every stride-th row and every k-th pixel of it, in every
+    # channel, as the file holds them (astropy.io.fits reads the reference), NaN where blank.
+    data = rng.normal(0.0, 1.0, shape)
+    data[:, 5, :] = np.nan
+    data[4, 9, 3] = np.nan
+    path = write_cube(tmp_path / "g.fits", data)
+    spectra = continuum_free_peaks(open_cube(path), noise_grid=(stride, max_pixels))
+    grid = spectra.noise_grid
+    assert grid.row_stride == stride
+    n_rows = -(-shape[1] // stride)
+    assert grid.column_step == max(1, -(-(n_rows * shape[2]) // max_pixels))
+    expected = fits.getdata(path).astype(np.float32)[:, ::stride, ::grid.column_step]
+    np.testing.assert_array_equal(grid.values, expected)
+    # without the option (or for a grid too large to keep) there is none
+    assert continuum_free_peaks(open_cube(path)).noise_grid is None
