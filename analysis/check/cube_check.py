@@ -9,7 +9,8 @@ is checked in bounded memory; lines come from `catalog` and
 `redshift_solver`. The command ``cubeloupe check`` (`cubeloupe.analysis.commands`) runs
 it over many files and the ``report_*`` modules of this package write the report.
 
-The check reads the cube in two full passes plus a small one:
+The check reads a cube with uniform noise once in full, plus the channels of its detections
+(a cube whose noise varies across the field twice):
 
 1. `continuum_free_peaks`: per pixel, the continuum level (median over a
    channel subsample), its noise and its channel-to-channel noise; per
@@ -17,13 +18,16 @@ The check reads the cube in two full passes plus a small one:
    (peak and trough spectra), and the valid fraction; per pixel, sums over
    all channels for the line-free mean (`noise.PixelSums`); over the channel
    subsample, the correlation of neighbouring pixels (the noise FWHM,
-   `noise_fwhm_from_lags`). From the channel-to-channel noise,
-   `spatial_noise` makes a smooth map of the noise across the field.
-2. When the noise is uniform: `noise.channel_statistics` over every k-th
-   image row (without pixels with significant continuum when it is
-   extended), using every k-th pixel of those rows (`noise_grid`): the robust
-   rms per channel. When it varies across the field (a primary-beam-corrected
-   cube): `noise_scaled_extremes` over every channel image, each pixel's
+   `noise_fwhm_from_lags`); and the values of every k-th pixel of every
+   k-th image row in every channel (`noise_grid`, `first_pass.NoiseGrid`).
+   From the channel-to-channel noise, `spatial_noise` makes a smooth map of
+   the noise across the field.
+2. When the noise is uniform: the robust rms per channel over that grid
+   (without pixels with significant continuum when it is extended), from
+   the values pass 1 kept (`channel_noise.kept_grid_statistics`; a cube
+   whose grid is too large to keep reads its rows again). When it varies
+   across the field (a primary-beam-corrected cube): `noise_scaled_extremes`
+   over every channel image, each pixel's
    data less its level divided by its relative noise: the peak and trough
    spectra in those units and the rms of the quietest part of the field.
 3. The channels excluded from the line-free set are read again to take them
