@@ -9,7 +9,7 @@ import pytest
 from astropy.io import fits
 from astropy.tests.helper import assert_quantity_allclose
 
-from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube
+from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube, write_scaled_int_cube
 from cubeloupe.analysis import open_cube
 from cubeloupe.analysis.check import cube_entry, summary_dict
 from cubeloupe.analysis.check import FALSE_ALARMS, check_cube
@@ -414,3 +414,29 @@ def test_real_single_dish_cube_13co_filling_the_band():
     assert abs(line.velocity.to_value(u.km / u.s) - mean_peak) < 0.5
     assert not result.lines.negative_features and not result.noise.flagged.size
     assert result.continuum is None or abs(result.continuum.peak_significance) < 5
+
+
+def test_integer_cube_is_checked_as_its_float_copy(tmp_path):
+    """Issue 13: a BITPIX 16 cube (BSCALE/BZERO/BLANK) is checked like the float cube of the same values.
+
+    physical = BZERO + BSCALE * stored, BLANK -> undefined (FITS standard 3.0, Pence et al. 2010, A&A 524,
+    A42, Sect. 4.4.2.5 and 5.3): the float copy written from those values is the reference.
+    """
+    rng = np.random.default_rng(16)
+    data = line_cube_data((NCHAN, 32, 32), rng=rng, noise_rms=1e-3, lines=_two_lines(), crval3=CRVAL3,
+                          cdelt3=CDELT3)
+    data[:, :, :3] = np.nan  # a blanked border, stored as BLANK
+    header = dict(crval3=CRVAL3, cdelt3=CDELT3, restfrq=CO76 / (1 + Z))
+    path, values = write_scaled_int_cube(tmp_path / "int16.fits", data, bzero=1e-4, **header)
+    integer = check_cube(open_cube(path), z=Z)
+    plain = check_cube(open_cube(write_cube(tmp_path / "float.fits", values, **header)), z=Z)
+    assert_quantity_allclose(integer.noise.channel_rms, plain.noise.channel_rms, rtol=1e-5)
+    # the same channels; the S/N equal to float32 rounding (the float copy rounds the values once more)
+    spans = [[(f.channels.first, f.channels.last, f.channels.peak) for f in check.lines.features]
+             for check in (integer, plain)]
+    assert spans[0] == spans[1] and len(spans[0]) == 2
+    np.testing.assert_allclose([f.channels.peak_snr for f in integer.lines.features],
+                               [f.channels.peak_snr for f in plain.lines.features], rtol=1e-5)
+    assert [f.candidates[0].name for f in integer.lines.features] == ["CO J=7-6", "[CI] 3P2-3P1"]
+    assert integer.strongest.position == plain.strongest.position
+    assert_quantity_allclose(integer.header.blanked_fraction, plain.header.blanked_fraction)
