@@ -165,12 +165,25 @@ class ChannelBar(w.VBox):
 
     def channel_velocity(self):
         """Velocity of the selected channel, or None when no rest frequency is known to measure it from."""
+        return self.channel_velocity_of(self.channel)
+
+    def _velocity_text(self, v):
+        """``v`` in km/s with the decimals that tell neighbouring channels apart (66 m/s channels: 2), no "-0.0"."""
+        k = self.channel
+        other = k + 1 if k + 1 < len(self._frequencies) else k - 1
+        step = self.channel_velocity_of(other) if other >= 0 else None
+        width = abs((step - v).to_value(u.km / u.s)) if step is not None else 0.0
+        decimals = max(1, -int(np.floor(np.log10(width)))) if np.isfinite(width) and width > 0 else 1
+        return f"{round(float(v.to_value(u.km / u.s)), decimals) + 0.0:+.{decimals}f}"
+
+    def channel_velocity_of(self, channel):
+        """Velocity of ``channel``, or None when no rest frequency is known to measure it from."""
         rest = self._rest()
         if rest is None:
             return None
         try:
-            # Only the shown channel: cheap enough for every z or slider change.
-            return velocity(self._frequencies[self.channel], rest, self.z, self.convention)
+            # One channel at a time: cheap enough for every z or slider change.
+            return velocity(self._frequencies[channel], rest, self.z, self.convention)
         except CubeloupeError:
             return None
 
@@ -211,7 +224,7 @@ class ChannelBar(w.VBox):
                 # Another window's line: a velocity of -100 000 km/s helps no one.
                 text += f" · velocity zero, {self.reference_label or 'the rest frequency'}, lies in another window"
             else:
-                text += f" · {v.to_value(u.km / u.s):+.1f} km/s ({self.convention}, {self.velocity_reference()})"
+                text += f" · {self._velocity_text(v)} km/s ({self.convention}, {self.velocity_reference()})"
         self.readout = text
         self.label.value = (f"<span style='font-family:var(--jp-code-font-family,monospace)'>"
                             f"{html.escape(text)}</span>")

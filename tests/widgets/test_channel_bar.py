@@ -42,3 +42,17 @@ def test_the_suite_opens_on_the_line_and_the_brightest_button_comes_back_to_it(l
     loupe.channel = 0
     loupe.channel_bar.brightest_button.click()
     assert abs(loupe.channel - 30) <= 1
+
+
+def test_velocity_readout_tells_narrow_channels_apart(cube_path, rng):
+    """Issue #17: a 66 m/s-channel cube read "-0.0 km/s" and every neighbouring channel alike at 0.1 km/s."""
+    # 25 kHz channels at 230.538 GHz: c * 25e3 / 230.538e9 = 0.0325 km/s (radio convention, Greisen et al. 2006).
+    path = cube_path(rng.normal(size=(8, 4, 4)), crval3=230.538e9 + 100.0, cdelt3=-25e3)
+    bar = ChannelBar(open_cube(path))
+    readouts = []
+    for k in range(4):
+        bar.channel = k
+        v = C_KMS * (230.538 - (230.538e9 + 100.0 - 25e3 * k) / 1e9) / 230.538
+        assert f"{round(v, 2) + 0.0:+.2f} km/s" in bar.readout, (k, bar.readout)
+        readouts.append(bar.readout)
+    assert len(set(readouts)) == 4 and "-0.00" not in readouts[0]
