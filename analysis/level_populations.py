@@ -4,7 +4,7 @@ An optically thin line's velocity-integrated intensity counts the molecules in
 its upper level. Two forms are in use:
 
 * a map in brightness temperature, ``W = int T dv`` [K km/s], gives the
-  upper-level column density (Goldsmith & Langer 1999, ApJ 517, 209, eq. 9),
+  upper-level column density (Goldsmith & Langer 1999, ApJ 517, 209),
   ``N_u = 8 pi k nu^2 W / (h c^3 A_ul)``;
 * an unresolved source at redshift z, ``S dv`` [Jy km/s], gives the number of
   molecules in the upper level: the line luminosity ``L = 4 pi D_L^2 F`` with
@@ -226,8 +226,8 @@ def upper_level_population(intensity, rest_frequency, einstein_A, *, z=0.0, magn
     Returns
     -------
     Quantity [cm^-2 or dimensionless]
-        ``N_u = 8 pi k nu^2 W / (h c^3 A_ul)`` (Goldsmith & Langer 1999,
-        eq. 9) for K km/s; ``4 pi D_L^2 S dv / ((1 + z) c h A_ul mu)`` (from
+        ``N_u = 8 pi k nu^2 W / (h c^3 A_ul)`` (Goldsmith & Langer
+        1999) for K km/s; ``4 pi D_L^2 S dv / ((1 + z) c h A_ul mu)`` (from
         Solomon & Vanden Bout 2005, eq. 1) for Jy km/s.
 
     Examples

@@ -4,15 +4,15 @@ Every catalog line of the given species whose redshifted frequency falls in
 (or near) the band gets the integrated intensity of an optically thin line in
 LTE at temperature T: the upper level holds
 ``N_u = N_s g_u exp(-(E_up - E_0,s)/kT) / Q_s(T)`` (Goldsmith & Langer 1999,
-ApJ 517, 209, eq. 15), which `line_intensity` turns into K km/s (a column
-density; Goldsmith & Langer eq. 9) or Jy km/s of an unresolved source at z (a
+ApJ 517, 209), which `line_intensity` turns into K km/s (a column
+density; Goldsmith & Langer) or Jy km/s of an unresolved source at z (a
 number of molecules; Solomon & Vanden Bout 2005, ARA&A 43, 677, eq. 1). Each
 line is a Gaussian of the given FWHM in velocity, so its peak is
 ``W / (1.0645 FWHM)`` (1.0645 = sqrt(pi / (4 ln 2)), common practice).
 
 With ``opacity=True`` (brightness temperature only) the lines are not thin:
 the optical depth ``int tau dv = c^3 A_ul N_u (exp(h nu/kT) - 1) / (8 pi nu^3)``
-(Mangum & Shirley 2015, PASP 127, 266, eq. 29) is spread with the same
+(Mangum & Shirley 2015, PASP 127, 266) is spread with the same
 profile and ``T = J(T) (1 - exp(-tau))`` per channel, lines overlapping in a
 channel sharing one optical depth.
 
@@ -274,7 +274,7 @@ def lte_spectrum(spectral_axis, species_list, *, temperature, column_density=Non
     if opacity:
         t = float(temperature.to_value(u.K))
         rest = lines["rest_frequency"]
-        # int tau dv = c^3 A N_u (exp(h nu / k T) - 1) / (8 pi nu^3) (Mangum & Shirley 2015, eq. 29)
+        # int tau dv = c^3 A N_u (exp(h nu / k T) - 1) / (8 pi nu^3) (Mangum & Shirley 2015)
         hnu_kt = (h * rest / (k_B * t * u.K)).to_value(u.one)
         tau_area = (c**3 * lines["einstein_A"] * lines["N_u"] * np.expm1(hnu_kt) / (8 * np.pi * rest**3)).to_value(_KMS)
         source = planck_temperature(t, rest)

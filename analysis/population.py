@@ -53,13 +53,13 @@ from dataclasses import dataclass, field
 
 import astropy.units as u
 import numpy as np
-from astropy.table import QTable, Table
+from astropy.table import QTable
 
-from .catalog import find_line
 from .errors import CatalogError, FitError, ParameterError, UnitMismatchError
 from .hyperfine import planck_temperature
-from .level_populations import (STATISTICAL_ORTHO_PARA, check_magnification, intensity_kind, molecular_mass,
-                                spin_partition_function, upper_level_population)
+from .level_populations import (STATISTICAL_ORTHO_PARA, check_magnification, molecular_mass, spin_partition_function,
+                                upper_level_population)
+from .line_intensities import read_line_intensities
 from .luminosity import get_cosmology
 from .spectral import check_redshift
 
@@ -204,103 +204,6 @@ class PopulationDiagram:
 
 
 # ---------------------------------------------------------------------------
-# Reading the lines
-# ---------------------------------------------------------------------------
-
-def _column_quantity(table, name):
-    column = table[name]
-    if isinstance(column, u.Quantity):
-        return u.Quantity(column, copy=True)
-    unit = getattr(column, "unit", None)
-    if unit is None:
-        raise UnitMismatchError(
-            f"column {name!r} of the lines table has no unit; give it one, e.g. "
-            f"{name}=[1.2, 3.9] * u.K * u.km / u.s (K km/s for a map, Jy km/s for an unresolved source)"
-        )
-    return u.Quantity(np.asarray(column, dtype=float), unit)
-
-
-def _read_table(lines, region):
-    if not isinstance(lines, Table):
-        try:
-            lines = QTable(lines)
-        except Exception:
-            raise ParameterError(
-                f"lines must be a table (astropy Table, or a dict of columns) with columns 'line', 'flux' and "
-                f"'flux_error'; got {type(lines).__name__}"
-            ) from None
-    missing = [c for c in ("line", "flux", "flux_error") if c not in lines.colnames]
-    if missing:
-        raise ParameterError(
-            f"the lines table lacks the column(s) {missing}; it needs 'line' (catalog names such as 'CO J=2-1'), "
-            f"'flux' and 'flux_error' (as measurement_table writes them). It has {lines.colnames}"
-        )
-    if "region" in lines.colnames:
-        regions = [str(r) for r in lines["region"]]
-        if region is None and len(set(regions)) > 1:
-            raise ParameterError(
-                f"the lines table holds several regions {sorted(set(regions))}; pass region=... to choose one"
-            )
-        if region is not None:
-            if str(region) not in regions:
-                raise ParameterError(f"no region {region!r} in the lines table; it has {sorted(set(regions))}")
-            lines = lines[np.array(regions) == str(region)]
-    elif region is not None:
-        raise ParameterError(f"region={region!r} was given but the lines table has no 'region' column")
-    if len(lines) == 0:
-        raise FitError("the lines table is empty; give at least two detected lines of one species")
-    names = [str(n).strip() for n in lines["line"]]
-    seen = set()
-    for name in names:
-        if name.lower() in seen:
-            raise ParameterError(
-                f"line {name!r} appears twice in the lines table (two windows?); keep one row per line"
-            )
-        seen.add(name.lower())
-    flux = _column_quantity(lines, "flux")
-    error = _column_quantity(lines, "flux_error")
-    kind = intensity_kind(flux.unit)
-    if intensity_kind(error.unit) != kind or not error.unit.is_equivalent(flux.unit):
-        raise UnitMismatchError(
-            f"flux is in {flux.unit} but flux_error in {error.unit}; give both in the same kind of unit"
-        )
-    error = error.to(flux.unit)
-    limits = (np.asarray(lines["upper_limit"], dtype=bool) if "upper_limit" in lines.colnames
-              else np.zeros(len(lines), dtype=bool))
-    for i, name in enumerate(names):
-        if not np.isfinite(flux[i]) or (not limits[i] and flux[i].value <= 0) or (limits[i] and flux[i].value <= 0):
-            raise ParameterError(
-                f"line {name!r} has flux {flux[i]}; a detection (or an upper limit) needs a finite flux > 0. "
-                "Drop the row, or give a non-detection as an upper limit (upper_limit=True, flux = e.g. 3 sigma)"
-            )
-        if not limits[i] and not (np.isfinite(error[i]) and error[i].value > 0):
-            raise ParameterError(
-                f"line {name!r} has flux_error {error[i]}; a detection needs a finite error > 0 (its weight in "
-                "the fit is 1 / error^2)"
-            )
-        if limits[i] and error[i].value < 0:
-            raise ParameterError(f"line {name!r} has a negative flux_error {error[i]}; errors are >= 0")
-    return names, flux, error, limits, kind
-
-
-def _catalog_rows(names, catalog):
-    rows = []
-    for name in names:
-        row = find_line(name, catalog)  # CatalogError with close matches for an unknown name
-        a_ul = float(u.Quantity(row["einstein_A"], 1 / u.s).value)
-        g_up = float(row["g_up"])
-        if not (np.isfinite(a_ul) and a_ul > 0 and np.isfinite(g_up) and g_up > 0):
-            raise CatalogError(
-                f"line {name!r} has no {'Einstein A' if not np.isfinite(a_ul) or a_ul <= 0 else 'g_up'} in the "
-                "catalog; give it in a line list (species, transition, rest_frequency, E_up, einstein_A, g_up) "
-                "and pass catalog=load_catalog(extra=...), or drop the line"
-            )
-        rows.append((str(row["species"]), str(row["spin_isomer"]), float(u.Quantity(row["rest_frequency"], u.GHz).value),
-                     float(u.Quantity(row["E_up"], u.K).value), a_ul, g_up))
-    return rows
-
-
-# ---------------------------------------------------------------------------
 # The fit
 # ---------------------------------------------------------------------------
 
@@ -339,7 +242,7 @@ def _design(spins, energy, groups, joint):
 
 def _background_correction(frequency_ghz, temperature, background, radiation):
     """``ln(1 / (1 - J(T_bg)/J(T)))``: a line seen against a background of T_bg (Goldsmith & Langer 1999,
-    with J the Planck brightness temperature, Mangum & Shirley 2015, PASP 127, 266, eq. 27)."""
+    with J the Planck brightness temperature, Mangum & Shirley 2015, PASP 127, 266)."""
     if background is None:
         return np.zeros_like(frequency_ghz)
     if radiation == "planck":
@@ -470,7 +373,7 @@ def population_diagram(lines, *, species=None, spin="joint", z=0.0, magnificatio
         temperature. Without a background the two give the same N_u.
     optical_depth : dict of str to float, optional
         Line optical depths tau; each such line's N_u is multiplied by
-        ``C_tau = tau / (1 - exp(-tau))`` (Goldsmith & Langer 1999, eq. 16).
+        ``C_tau = tau / (1 - exp(-tau))`` (Goldsmith & Langer 1999).
 
     Returns
     -------
@@ -511,22 +414,10 @@ def population_diagram(lines, *, species=None, spin="joint", z=0.0, magnificatio
     spin = _check_choice(spin, SPIN_FITS, "spin")
     radiation = _check_choice(radiation, RADIATION_LAWS, "radiation")
     z = check_redshift(z)
-    names, flux, error, limits, kind = _read_table(lines, region)
-    rows = _catalog_rows(names, catalog)
-    present = sorted({r[0] for r in rows})
-    if species is None:
-        if len(present) > 1:
-            raise ParameterError(f"the lines table holds several species {present}; pass species=... to fit one")
-        species = present[0]
-    else:
-        match = [s for s in present if s.lower() == str(species).strip().lower()]
-        if not match:
-            raise ParameterError(f"no line of species {species!r} in the lines table; it has {present}")
-        species = match[0]
-    keep = np.array([r[0] == species for r in rows])
-    names = [n for n, k in zip(names, keep) if k]
-    rows = [r for r, k in zip(rows, keep) if k]
-    flux, error, limits = flux[keep], error[keep], limits[keep]
+    table = read_line_intensities(lines, region=region, species=species, catalog=catalog)
+    species, kind = table.meta["species"], table.meta["kind"]
+    names = list(table["line"])
+    flux, error, limits = table["flux"], table["flux_error"], np.asarray(table["upper_limit"], dtype=bool)
     background = None
     if background_temperature is not None:
         if not isinstance(background_temperature, u.Quantity) or not background_temperature.unit.is_equivalent(u.K):
@@ -538,11 +429,11 @@ def population_diagram(lines, *, species=None, spin="joint", z=0.0, magnificatio
     tau = _optical_depths(optical_depth, names)
     c_tau = np.where(tau > 0, tau / -np.expm1(-np.where(tau > 0, tau, 1.0)), 1.0)
 
-    spins = np.array(["all" if r[1] == "none" else r[1] for r in rows])
-    frequency = np.array([r[2] for r in rows])
-    energy = np.array([r[3] for r in rows])
-    g_up = np.array([r[5] for r in rows])
-    n_u = upper_level_population(flux, frequency * u.GHz, np.array([r[4] for r in rows]) / u.s, z=z,
+    spins = np.array(["all" if s == "none" else s for s in table["spin_isomer"]])
+    frequency = table["rest_frequency"].to_value(u.GHz)
+    energy = table["E_up"].to_value(u.K)
+    g_up = np.asarray(table["g_up"], dtype=float)
+    n_u = upper_level_population(flux, table["rest_frequency"], table["einstein_A"], z=z,
                                  magnification=magnification, cosmology=cosmology) * c_tau
     n_u_error = n_u * (error / flux).to_value(u.dimensionless_unscaled)
     y0 = np.log(n_u.value / g_up)
@@ -676,7 +567,7 @@ def population_diagram(lines, *, species=None, spin="joint", z=0.0, magnificatio
                      "disagree (another temperature, or the limit's line is fainter than LTE predicts)")
     factor = np.exp(y - y0)
     points = QTable({
-        "line": names, "species": [species] * len(names), "spin_isomer": [r[1] for r in rows],
+        "line": names, "species": [species] * len(names), "spin_isomer": table["spin_isomer"],
         "E_up": energy * u.K, "g_up": g_up, "N_u": n_u * factor, "N_u_error": n_u_error * factor,
         _LN: y, f"{_LN}_error": np.where(limits, np.nan, sigma), "upper_limit": limits,
         f"{_LN}_model": model, "violates_limit": violates,

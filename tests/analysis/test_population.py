@@ -30,13 +30,13 @@ def rigid_rotor_q(temperature):
 
 
 def brightness_from_column(n_u, row):
-    # Goldsmith & Langer 1999, ApJ 517, 209, eq. 9 inverted: W = h c^3 A N_u / (8 pi k nu^2).
+    # Goldsmith & Langer 1999, ApJ 517, 209 inverted: W = h c^3 A N_u / (8 pi k nu^2).
     nu, a_ul = row["rest_frequency"], row["einstein_A"]
     return (h * c**3 * a_ul * n_u / (8 * np.pi * k_B * nu**2)).to(K_KMS)
 
 
 def ltepop(row, total, temperature, q, energy_zero=0 * u.K):
-    # LTE: N_u = N g_u exp(-(E_up - E_0)/kT) / Q (Goldsmith & Langer 1999, eq. 15).
+    # LTE: N_u = N g_u exp(-(E_up - E_0)/kT) / Q (Goldsmith & Langer 1999).
     return total * row["g_up"] * np.exp(-float((row["E_up"] - energy_zero) / temperature)) / q
 
 
@@ -105,7 +105,7 @@ def test_points_table_for_the_diagram():
     for name in ("line", "E_up", "ln(N_u/g_u)", "ln(N_u/g_u)_error", "upper_limit", "ln(N_u/g_u)_model"):
         assert name in points.colnames
     assert points["E_up"].unit == u.K
-    # ln(N_u/g_u) is the log of the column density per statistical weight (Goldsmith & Langer 1999, eq. 9).
+    # ln(N_u/g_u) is the log of the column density per statistical weight (Goldsmith & Langer 1999).
     row = find_line("CO J=2-1")
     n_u = (8 * np.pi * k_B * row["rest_frequency"] ** 2 * 3.9 * K_KMS / (h * c**3 * row["einstein_A"])).to(u.cm**-2)
     assert points["ln(N_u/g_u)"][1] == pytest.approx(np.log(n_u.value / 5), rel=1e-10)
@@ -291,7 +291,7 @@ def test_upper_limits_do_not_enter_the_fit_but_are_checked():
 # ---------------------------------------------------------------------------
 
 def test_optical_depth_correction_multiplies_n_u_by_c_tau():
-    # C_tau = tau / (1 - exp(-tau)) (Goldsmith & Langer 1999, eq. 16).
+    # C_tau = tau / (1 - exp(-tau)) (Goldsmith & Langer 1999).
     table = table_of(CO_LINES[:3], [1.2, 3.9, 6.1] * K_KMS)
     thin = population_diagram(table)
     thick = population_diagram(table, optical_depth={"CO J=1-0": 1.0})
@@ -303,7 +303,7 @@ def test_optical_depth_correction_multiplies_n_u_by_c_tau():
 @pytest.mark.parametrize("radiation", ["rayleigh-jeans", "planck"])
 def test_background_correction_recovers_the_temperature(radiation):
     # Against a background T_bg: W = (h c^3 A N_u / (8 pi k nu^2)) (1 - J(T_bg)/J(T)) (optically thin radiative
-    # transfer, Mangum & Shirley 2015, PASP 127, 266, eqs. 27 and 29).
+    # transfer, Mangum & Shirley 2015, PASP 127, 266).
     temperature, column, background = 12 * u.K, 1e16 / u.cm**2, 2.725 * u.K
     q = float(partition_function("CO", temperature))
 
