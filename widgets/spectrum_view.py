@@ -39,6 +39,18 @@ def _pairs(value):
     return [[float(min(a, b)), float(max(a, b))] for a, b in value]
 
 
+def drawable(x, y):
+    """``x``, ``y`` without their trailing non-finite points (blanked end channels).
+
+    bqplot places each line's (hidden) label at its last point; a NaN there is written as
+    "translate(975,undefined)" and the browser logs an SVG error (issue #17, the varying-beams demo).
+    """
+    y = np.asarray(y, dtype=float)
+    finite = np.flatnonzero(np.isfinite(y) & np.isfinite(np.asarray(x, dtype=float)))
+    end = int(finite[-1]) + 1 if finite.size else 0
+    return np.asarray(x)[:end], y[:end]
+
+
 class SpectrumView(w.VBox):
     """Spectra of the regions on one spectral axis, with line-free ranges, line window and baseline.
 
@@ -386,7 +398,7 @@ class SpectrumView(w.VBox):
                         mark = Lines(scales=scales, colors=[entry["color"]], stroke_width=1.6,
                                      labels=[name])
                         self.curve_marks[key] = mark
-                    mark.x, mark.y, mark.colors = x, np.asarray(y, dtype=float), [entry["color"]]
+                    (mark.x, mark.y), mark.colors = drawable(x, y), [entry["color"]]
                     if fit is not None and not self.show_subtracted:
                         model = self.model_marks.get(key)
                         if model is None:

@@ -256,3 +256,22 @@ def test_windows_of_different_shapes_switch_both_ways(cube_path, rng):
         assert width / height == pytest.approx(nx / ny, rel=0.02)
         figure = loupe.sky_view.figure
         assert figure.min_aspect_ratio == figure.max_aspect_ratio
+
+
+def test_spectra_with_blanked_end_channels_end_on_a_drawn_point():
+    """Issue #17: one browser console error, an SVG transform with "undefined": bqplot places a line's label at
+    its last point, and the varying-beams demo's spectra end in blanked (NaN) channels."""
+    import warnings
+
+    from cubeloupe.analysis import CubeloupeWarning, demo_path
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", CubeloupeWarning)  # the blanked channels are warned about in the status
+        loupe = Loupe(demo_path("varying_beams"))
+    spectrum = loupe.spectra["peak (auto)"][0]
+    assert not np.isfinite(spectrum.value[-1]), "the demo's last channel is blanked (the case pinned here)"
+    mark = loupe.spectrum_view.curve_marks[("peak (auto)", 0)]
+    assert np.isfinite(mark.y[-1]) and np.isfinite(mark.x[-1])
+    # Nothing else is dropped: the drawn curve is the spectrum up to its last finite channel.
+    last = np.flatnonzero(np.isfinite(spectrum.value))[-1]
+    assert_allclose(mark.y, spectrum.value[:last + 1], equal_nan=True)
