@@ -13,6 +13,7 @@ import numpy as np
 from astropy.wcs.utils import proj_plane_pixel_scales
 
 from ..beams import beam_area_pixels, cube_beam
+from ..cubes import cube_stokes
 from ..errors import BeamError, SpectralAxisError
 from ..spectral import SPEED_OF_LIGHT, frequency_axis, velocity
 from .results import AxisSummary, HeaderSummary
@@ -65,6 +66,11 @@ def header_summary(cube):
     True
     """
     notes = []
+    stokes = cube_stokes(cube)
+    if stokes != "I":
+        # Stokes codes: Greisen & Calabretta 2002, A&A 395, 1061, Table 7
+        notes.append(f"the cube holds only Stokes {stokes}, not total intensity (I): its detections, maps "
+                     "and rms are those of that polarisation plane, not fluxes of the source")
     wcs = cube.wcs
     nchan, ny, nx = cube.shape
     lengths = (nx, ny, nchan)

@@ -71,7 +71,7 @@ def strongest_feature(cube, feature, frequency, free, *, client=None, progress=N
     try:
         maps = moment_maps(cube, window, line_free=line_free if order is not None else None, order=order or 1,
                            rest_frequency=feature.frequency, z=0.0, client=client, progress=progress,
-                           cancel=cancel)
+                           cancel=cancel, allow_polarisation=True)  # a lone Stokes plane is named in the header notes
     except CubeloupeError as exc:
         notes.append(f"moment-0 map of the strongest feature not made: {exc}")
         return None

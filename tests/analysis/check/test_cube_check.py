@@ -10,7 +10,7 @@ from astropy.io import fits
 from astropy.tests.helper import assert_quantity_allclose
 
 from cubefactory import C_KMS, correlated_noise, frequency_axis_hz, line_cube_data, write_cube, write_scaled_int_cube
-from cubeloupe.analysis import open_cube
+from cubeloupe.analysis import PolarisationWarning, open_cube
 from cubeloupe.analysis.check import cube_entry, summary_dict
 from cubeloupe.analysis.check import FALSE_ALARMS, check_cube
 from cubeloupe.analysis.errors import MissingUnitWarning
@@ -440,3 +440,18 @@ def test_integer_cube_is_checked_as_its_float_copy(tmp_path):
     assert [f.candidates[0].name for f in integer.lines.features] == ["CO J=7-6", "[CI] 3P2-3P1"]
     assert integer.strongest.position == plain.strongest.position
     assert_quantity_allclose(integer.header.blanked_fraction, plain.header.blanked_fraction)
+
+
+def test_lone_stokes_q_plane_is_checked_and_named(tmp_path):
+    """Issue 13: the check of a Stokes Q delivery says so and still pictures its strongest feature."""
+    rng = np.random.default_rng(17)
+    data = line_cube_data((NCHAN, 32, 32), rng=rng, noise_rms=1e-3, lines=_two_lines(), crval3=CRVAL3,
+                          cdelt3=CDELT3)
+    # CRVAL4 = 2 on a STOKES axis is Q (Greisen & Calabretta 2002, A&A 395, 1061, Table 7)
+    path = write_cube(tmp_path / "q.fits", data, crval3=CRVAL3, cdelt3=CDELT3, restfrq=CO76 / (1 + Z), stokes=True,
+                      extra={"CRVAL4": 2.0})
+    with pytest.warns(PolarisationWarning):
+        result = check_cube(open_cube(path), z=Z)
+    assert any("Stokes Q" in note for note in result.warnings)
+    assert result.strongest is not None  # the plane's own map, named as Q by the note above
+    assert len(result.lines.features) == 2

@@ -7,7 +7,7 @@ import pytest
 from astropy.tests.helper import assert_quantity_allclose
 
 from cubefactory import C_KMS, frequency_axis_hz, write_cube
-from cubeloupe.analysis import open_cube
+from cubeloupe.analysis import PolarisationWarning, open_cube
 from cubeloupe.analysis.check import header_summary
 
 
@@ -54,3 +54,13 @@ def test_header_summary_without_beam_says_so(tmp_path, rng):
     summary = header_summary(open_cube(path))
     assert summary.beam_major is None and summary.pixels_per_beam is None
     assert any("no beam" in note for note in summary.warnings)
+
+
+def test_lone_polarisation_plane_is_named_in_the_notes(tmp_path):
+    # CRVAL4 = 2 on a STOKES axis is Q (Greisen & Calabretta 2002, A&A 395, 1061, Table 7); CRVAL4 = 1 is I.
+    data = np.random.default_rng(3).normal(0.0, 1e-3, (20, 8, 8))
+    with pytest.warns(PolarisationWarning):
+        q_cube = open_cube(write_cube(tmp_path / "q.fits", data, stokes=True, extra={"CRVAL4": 2.0}))
+    assert any("Stokes Q" in note and "not total intensity" in note for note in header_summary(q_cube).warnings)
+    i_cube = open_cube(write_cube(tmp_path / "i.fits", data, stokes=True))
+    assert not any("Stokes" in note for note in header_summary(i_cube).warnings)
