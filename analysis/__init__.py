@@ -78,9 +78,9 @@ from .correlated_lines import correlated_line_errors, correlated_measurement_tab
 from .hyperfine import HyperfineSolution, hyperfine_lines
 from .level_populations import STATISTICAL_ORTHO_PARA, line_intensity, molecular_mass, spin_partition_function, \
     upper_level_population
-from .line_intensities import LINE_INTENSITY_COLUMNS, read_line_intensities
 from .population import PopulationComponent, PopulationDiagram, population_diagram
 from .lte_model import lte_lines, lte_spectrum
+from .population_figure import SPIN_STYLES, population_figure, spin_group, write_population_figure
 from .pv_slice import PVSlice, pv_slice
 from .channel_maps import ChannelPanels, channel_maps, channel_panels
 
@@ -120,5 +120,6 @@ __all__ = [
     "PVSlice", "pv_slice", "ChannelPanels", "channel_maps", "channel_panels",
     "STATISTICAL_ORTHO_PARA", "line_intensity", "molecular_mass", "spin_partition_function",
     "upper_level_population", "PopulationComponent", "PopulationDiagram", "population_diagram",
-    "lte_lines", "lte_spectrum", "LINE_INTENSITY_COLUMNS", "read_line_intensities",
+    "lte_lines", "lte_spectrum",
+    "SPIN_STYLES", "population_figure", "spin_group", "write_population_figure",
 ]

@@ -35,6 +35,8 @@ DEMO_CUBES = {
     "lensed_spw4": "Quillwort-L1: window 4: para-H2O 2_02-1_11",
     "lensed_spw5": "Quillwort-L1: window 5: CO(9-8)",
     "lensed_spw6": "Quillwort-L1: window 6: para-H2O 2_11-2_02",
+    "lensed_spw7": "Quillwort-L1: window 7 (small): ortho-H2O 3_21-3_12",
+    "lensed_spw8": "Quillwort-L1: window 8 (small, low frequency): CO(4-3)",
     "single_dish": "Quillwort-C4: molecular cloud in CO(1-0); K, velocity axis, degenerate Stokes axis (4-D)",
     "varying_beams": "Quillwort-N2: galaxy nucleus in CO(3-2); one beam per channel, blanked edge channels",
 }
@@ -53,7 +55,7 @@ def demo_names():
     --------
     >>> demo_names()  # doctest: +NORMALIZE_WHITESPACE
     ['disk', 'lensed_spw1', 'lensed_spw2', 'lensed_spw3', 'lensed_spw4', 'lensed_spw5', 'lensed_spw6',
-     'single_dish', 'varying_beams']
+     'lensed_spw7', 'lensed_spw8', 'single_dish', 'varying_beams']
     """
     return list(DEMO_CUBES)
 

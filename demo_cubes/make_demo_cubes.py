@@ -12,13 +12,17 @@ Cubes
     Quillwort-D7, a nearby rotating, inclined disk galaxy in CO(2-1):
     arctan rotation curve, exponential surface brightness, constant velocity
     dispersion, a weak continuum nucleus; Jy/beam, FREQ axis, one beam.
-``lensed_spw1`` ... ``lensed_spw6``
+``lensed_spw1`` ... ``lensed_spw8``
     Quillwort-L1, a dusty galaxy at z = 2.67 strongly lensed into a ring by
-    a foreground galaxy (singular isothermal sphere), seen in six spectral
+    a foreground galaxy (singular isothermal sphere), seen in eight spectral
     windows of one delivery with different channel widths and pixel grids:
     CO(7-6) and [CI] 3P2-3P1; ortho-H2O 3_12-3_03 and para-H2O 1_11-0_00;
     ortho-H2O 1_10-1_01 and CO(5-4); para-H2O 2_02-1_11; CO(9-8); para-H2O
-    2_11-2_02. The CO and H2O fluxes come from an LTE model (optically thin,
+    2_11-2_02; ortho-H2O 3_21-3_12; CO(4-3). Four CO lines (E_up 55 to 249 K),
+    three ortho- and three para-H2O lines (E_up 53 to 305 K): enough for a
+    population diagram of each species, and of each water spin species alone
+    (two small windows, 7 and 8, were added for that, #16).
+    The CO and H2O fluxes come from an LTE model (optically thin,
     one excitation temperature and number of molecules per species, an
     ortho-to-para ratio for water; Goldsmith & Langer 1999, ApJ 517, 209),
     recorded in the sidecar, so a population diagram can be checked against
@@ -417,7 +421,7 @@ def make_disk(out):
 
 
 # --------------------------------------------------------------------------------------------
-# (b) the lensed galaxy in six spectral windows
+# (b) the lensed galaxy in eight spectral windows
 
 LENS = {
     "z_source": 2.67,
@@ -480,6 +484,18 @@ LENSED_WINDOWS = {
         "centre": 205.00, "cdelt": 20.0e6, "n_channels": 80, "pixel": 0.1, "grid": 48,
         "crpix": (24.5, 24.5), "beam": (0.50, 0.41, 28.0), "rms": 0.06e-3,
         "lines": [("H2O", "2_11-2_02")],
+    },
+    # Two small windows (32 x 32 pixels, 56 and 48 channels) for the population diagrams (#16): a
+    # third ortho-H2O line, high in energy, and a fourth CO line, low in energy.
+    "lensed_spw7": {
+        "centre": 316.90, "cdelt": 37.5e6, "n_channels": 56, "pixel": 0.11, "grid": 32,
+        "crpix": (16.5, 16.5), "beam": (0.33, 0.28, 36.0), "rms": 0.09e-3,
+        "lines": [("H2O", "3_21-3_12")],
+    },
+    "lensed_spw8": {
+        "centre": 125.60, "cdelt": -31.25e6, "n_channels": 48, "pixel": 0.15, "grid": 32,
+        "crpix": (16.5, 16.5), "beam": (0.80, 0.67, -15.0), "rms": 0.05e-3,
+        "lines": [("CO", "J=4-3")],
     },
 }
 
