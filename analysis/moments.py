@@ -290,11 +290,24 @@ def _check_clip(clip, line_free):
     return float(clip)
 
 
-def _projection(values, unit, cube, beam, what):
+def _projection(values, unit, sky, beam, what):
     from spectral_cube import Projection
 
+    wcs, mask = sky
     meta = {"cubeloupe_map": what}
-    return Projection(values, unit=unit, wcs=cube.wcs.celestial, beam=beam, meta=meta, copy=False)
+    return Projection(values, unit=unit, wcs=wcs, beam=beam, meta=meta, copy=False, mask=mask)
+
+
+def _sky(cube):
+    """The celestial WCS and an all-true mask, shared by the maps of one call.
+
+    spectral-cube checks a map's WCS against its mask's by comparing FITS headers (about 3 ms a
+    map); a mask remembers a WCS it has accepted, so maps sharing both pay that once (issue #20).
+    """
+    from spectral_cube.masks import BooleanArrayMask
+
+    wcs = cube.wcs.celestial
+    return wcs, BooleanArrayMask(np.ones(cube.shape[1:], dtype=bool), wcs, shape=cube.shape[1:])
 
 
 def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z=0.0, convention="radio",
@@ -429,12 +442,13 @@ def moment_maps(cube, window, *, line_free=None, order=1, rest_frequency=None, z
     beam = map_beam(cube, in_window)
     unit = u.Unit(cube.unit)
     noise = n_free > 0
+    sky = _sky(cube)
     return MomentMaps(
-        m0=_projection(maps[_M0], unit * _KMS, cube, beam, "moment 0"),
-        m1=_projection(maps[_M1], _KMS, cube, beam, "moment 1"),
-        m2=_projection(maps[_M2], _KMS, cube, beam, "moment 2 (velocity dispersion)"),
-        m0_error=_projection(maps[_M0_ERROR], unit * _KMS, cube, beam, "moment 0 uncertainty") if noise else None,
-        rms=_projection(maps[_RMS], unit, cube, beam, "line-free rms") if noise else None,
+        m0=_projection(maps[_M0], unit * _KMS, sky, beam, "moment 0"),
+        m1=_projection(maps[_M1], _KMS, sky, beam, "moment 1"),
+        m2=_projection(maps[_M2], _KMS, sky, beam, "moment 2 (velocity dispersion)"),
+        m0_error=_projection(maps[_M0_ERROR], unit * _KMS, sky, beam, "moment 0 uncertainty") if noise else None,
+        rms=_projection(maps[_RMS], unit, sky, beam, "line-free rms") if noise else None,
         n_channels=int(in_window.sum()),
         window=u.Quantity([window_velocity.min(), window_velocity.max()], _KMS),
         n_line_free=n_free,
