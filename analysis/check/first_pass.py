@@ -235,7 +235,8 @@ class _ContinuumFreePeaks:
             spread = row_medians(np.abs(sample - level[:, None]), upper=True)
             step_spread = row_medians(steps, upper=True)
         filled_level = np.nan_to_num(level)
-        lags = _lag_sums((sample.T - filled_level).reshape((sample.shape[1], *data.shape[1:])))
+        # the subsampled channels as rows (not the transposed sample): the same numbers, read in order
+        lags = _lag_sums((flat[::self.step] - filled_level).reshape((sample.shape[1], *data.shape[1:])))
         # Spectra blank in every channel (outside a primary-beam cutoff, say) are set aside, so
         # that the sums and extremes below run on data without NaN, on their fast paths.
         kept = _pixels_with_data(flat, level)
