@@ -13,6 +13,8 @@ from .spectrum_view import SpectrumView
 from .line_overlay import LineOverlay
 from .moment_panel import MomentPanel, within_window
 from .measurement_table import MeasurementTable
+from .smoothing_choice import SmoothingChoice
+from .fit_panel import FitPanel
 from .channel_map_panel import ChannelMapPanel
 from .pv_panel import PVPanel
 from .path_tool import PathTool
@@ -29,6 +31,8 @@ __all__ = [
     "MomentPanel",
     "within_window",
     "MeasurementTable",
+    "SmoothingChoice",
+    "FitPanel",
     "ChannelMapPanel",
     "PVPanel",
     "PathTool",

@@ -26,7 +26,7 @@ from cubeloupe.analysis import (
     AXIS_KINDS, CONVENTIONS, CubeloupeError, RegionError, SpectralAxisError, catalog_line_at,
     NOMINAL_REST_FREQUENCY, channel_at, choose_velocity_reference, on_nominal_frequencies, velocity_convention_of,
     velocity_only, cube_rest_frequency, display_axis, load_catalog,
-    measurement_table, open_cube, region_spectrum, write_maps, write_spectra,
+    correlated_measurement_table, open_cube, region_spectrum, write_maps, write_spectra,
 )
 from cubeloupe.analysis import first_view as find_first_view
 
@@ -36,6 +36,7 @@ from .cube_summary import cube_summary, title_html, window_name
 from .channel_map_panel import ChannelMapPanel  # channel maps (#18)
 from .code_view import CodeView  # sessions and replay (#19)
 from .export_panel import ExportPanel
+from .fit_panel import FitPanel  # Gaussian and hyperfine fits (#18)
 from .line_overlay import LineOverlay
 from .measurement_table import MeasurementTable
 from .moment_panel import MomentPanel
@@ -44,6 +45,7 @@ from .region_list import RegionList, check_regions
 from .replay import to_code  # sessions and replay (#19)
 from .session import made_with, read_session, session_state, write_session  # sessions and replay (#19)
 from .sky_view import SkyView
+from .smoothing_choice import SmoothingChoice  # smoothing the spectra (#18)
 from .snapshot import render_sky, render_spectrum
 from .spectrum_view import SpectrumView
 from .status import StatusLine
@@ -223,6 +225,7 @@ class Loupe(w.VBox):
         self.spectrum_view = SpectrumView(status=StatusLine())
         restfrq = cube_rest_frequency(self.cubes[0])
         self.spectrum_view.file_rest_frequency = None if restfrq is None else float(restfrq.to_value(u.GHz))
+        self.smoothing = SmoothingChoice(self.spectrum_view, status=StatusLine())  # under the spectrum (#18)
         self._frequencies = [display_axis(c, "observed frequency").to_value(u.GHz) for c in self.cubes]
         band = (min(f.min() for f in self._frequencies), max(f.max() for f in self._frequencies))
         self._all_band = band
@@ -313,6 +316,8 @@ class Loupe(w.VBox):
         cb.on_brightest(self.go_to_brightest)
         sp.on_pick(self.go_to_frequency)
         mp.observe(self._on_moments, names=["maps"])
+        self.smoothing.observe(self._on_smoothing, names=["settings"])
+        self.fit_panel = FitPanel(self)  # in the measurements tab, refits when the measurements change (#18)
 
     def _choose_rest_frequency(self, rest_frequency):
         """Velocity zero by `choose_velocity_reference`: the given line, the cube's RESTFRQ, or a catalog line."""
@@ -461,7 +466,7 @@ class Loupe(w.VBox):
                 continue
             self._region_keys[name] = key
             self.spectra[name] = spectra
-            self.spectrum_view.set_spectra(name, item["color"], spectra)
+            self.spectrum_view.set_spectra(name, item["color"], self.smoothing.smooth_all(spectra, name), raw=spectra)
             if notes and len(self.cubes) > 1:
                 self.status.warn(f"Region {name} has no spectrum in " + "; ".join(notes))
         self.sky_view.outlines = self.region_list.outlines_for(self.cube) if not failed else []
@@ -573,14 +578,22 @@ class Loupe(w.VBox):
             if self.z != 0 and self._rest() is None:
                 raise SpectralAxisError("velocities need a line: pick it under 'Velocity zero' (or set "
                                         "rest_frequency) before measuring")
-            table = measurement_table(
-                self.spectra, u.Quantity(self.line_window, u.GHz),
+            table = correlated_measurement_table(  # errors count the smoothing's channel correlation (#18)
+                self.spectrum_view.shown_spectra(), u.Quantity(self.line_window, u.GHz),
                 line_free=u.Quantity(self.line_free, u.GHz) if self.line_free else None,
                 order=self.baseline_order, rest_frequency=self._rest(), z=self.z, convention=self.convention,
                 line=self._line_label(), cosmology=self.cosmology, magnification=self.magnification)
             self.measurement_table.set_table(table)
             rows = self.measurement_table.rows
         self.measurements = rows
+
+    def _on_smoothing(self, change):
+        """Show the spectra smoothed as chosen (the unsmoothed ones faint behind) and measure them (#18)."""
+        with self.status.guard("smoothing the spectra"):
+            for name, spectra in self.spectra.items():
+                self.spectrum_view.set_spectra(name, self.spectrum_view.spectra[name]["color"],
+                                               self.smoothing.smooth_all(spectra, name), raw=spectra)
+            self._measure()
 
     def _moment_inputs(self):
         if not self.line_window:

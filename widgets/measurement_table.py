@@ -2,7 +2,8 @@
 
 Rows are filled from `cubeloupe.analysis.measure_line` and
 `cubeloupe.analysis.measurement_table` (see `rows_from_table`);
-the widget only formats them.
+the widget only formats them. Line fits (`FitPanel`, #18) are shown under
+the table and exported as extra columns (see `fit_columns`).
 """
 
 import html
@@ -15,7 +16,7 @@ from traitlets import Bool, Float, List, TraitError, Unicode, validate
 
 from cubeloupe.analysis import get_cosmology, unit_text, write_table
 
-__all__ = ["MeasurementTable", "COLUMNS"]
+__all__ = ["MeasurementTable", "COLUMNS", "fit_columns"]
 
 _KMS = u.km / u.s
 
@@ -54,6 +55,54 @@ def rows_from_table(table):
     return rows
 
 
+_FIT_QUANTITIES = ("amplitude", "center", "fwhm", "flux")
+
+
+def _column(values, unit):
+    """A Quantity column in ``unit`` (NaN where a value is missing or in another unit)."""
+    out = []
+    for v in values:
+        try:
+            out.append(np.nan if v is None else u.Quantity(v).to_value(unit))
+        except u.UnitsError:
+            out.append(np.nan)
+    return u.Quantity(out, unit)
+
+
+def fit_columns(table, label, fits):
+    """Add line-fit columns to a measurement table (in place), one row per region and window.
+
+    Columns ``fit_model`` (the fit in words, 'none' on rows without one), ``fit_reduced_chi2``,
+    ``fit<k>_<quantity>`` and ``fit<k>_<quantity>_error`` for component k = 1.. and quantity
+    amplitude, center, fwhm, flux (Quantity columns, NaN where absent), and for hyperfine fits
+    ``fit_optical_depth``, ``fit_excitation_temperature`` and their errors. ``fits`` maps
+    (region, window) to `cubeloupe.analysis.GaussianFit`.
+    """
+    keys = [(str(r["region"]), int(r["window"])) for r in table]
+    found = [fits.get(key) for key in keys]
+    if not any(f is not None for f in found):
+        return table
+    table["fit_model"] = [label if f is not None else "none" for f in found]
+    table["fit_reduced_chi2"] = [f.reduced_chi2 if f is not None else np.nan for f in found]
+    n = max(len(f.components) for f in found if f is not None)
+    reference = next(f for f in found if f is not None).components[0]
+    for k in range(n):
+        comps = [f.components[k] if f is not None and k < len(f.components) else None for f in found]
+        for q in _FIT_QUANTITIES:
+            unit = getattr(reference, q).unit
+            table[f"fit{k + 1}_{q}"] = _column([getattr(c, q, None) for c in comps], unit)
+            table[f"fit{k + 1}_{q}_error"] = _column([getattr(c, q + "_error", None) for c in comps], unit)
+    solutions = [None if f is None else f.hyperfine for f in found]
+    if any(s is not None for s in solutions):
+        table["fit_optical_depth"] = [s.optical_depth if s is not None else np.nan for s in solutions]
+        table["fit_optical_depth_error"] = [s.optical_depth_error if s is not None else np.nan for s in solutions]
+        table["fit_excitation_temperature"] = _column([getattr(s, "excitation_temperature", None)
+                                                       for s in solutions], u.K)
+        table["fit_excitation_temperature_error"] = _column([getattr(s, "excitation_temperature_error", None)
+                                                             for s in solutions], u.K)
+    return table
+
+
 class MeasurementTable(w.VBox):
     """A table of line measurements, with the cosmology and magnification used for L'_line.
 
@@ -74,6 +123,7 @@ class MeasurementTable(w.VBox):
 
     def __init__(self, **kwargs):
         self._source = None
+        self._fit_label, self._fits = "", {}
         self._table = w.HTML()
         self._table.add_class("cubeloupe-measurement-table")
         self.cosmology_choice = w.Dropdown(options=["Planck18", "Planck15", "WMAP9", "WMAP7"], value="Planck18",
@@ -110,6 +160,14 @@ class MeasurementTable(w.VBox):
             raise TraitError(str(exc)) from None
         return proposal["value"]
 
+    def add_part(self, widget):
+        """Show ``widget`` (e.g. the line-fit panel) under the table."""
+        self.children = (*self.children[:2], widget, *self.children[2:])
+
+    def set_fits(self, label, fits):
+        """Line fits to export with the rows: ``fits`` maps (region, window) to a GaussianFit (see `fit_columns`)."""
+        self._fit_label, self._fits = label, dict(fits)
+
     def set_table(self, table):
         """Show a `cubeloupe.analysis.measurement_table` result (rows are derived from it)."""
         self._source = table
@@ -121,6 +179,8 @@ class MeasurementTable(w.VBox):
         ``meta`` (a dict) is added to the table's metadata, e.g. how the measurements were made.
         """
         table = QTable() if self._source is None else self._source.copy()
+        if self._source is not None and self._fits:
+            fit_columns(table, self._fit_label, self._fits)
         table.meta["cosmology"] = self.cosmology
         table.meta["magnification"] = self.magnification
         if meta:

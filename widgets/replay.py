@@ -158,10 +158,41 @@ def _measure_section(loupe, state):
         return ["# No measurement: the suite has no line window or no region yet."]
     if s["z"] != 0 and s["rest_frequency"] <= 0:
         return ["# No measurement: velocities at z > 0 need a rest frequency, and the suite has none."]
+    smoothed = _smoothed_expression(loupe)
+    if smoothed:  # smoothing (#18): the spectra as the suite measures them, errors counting the correlation
+        return ["# The spectra as the suite measures them: " + loupe.smoothing.description() + ".",
+                f"measured = {{name: [None if s is None else {smoothed} for s in items] "
+                "for name, items in spectra.items()}",
+                "# The measurement table, errors counting the channel correlation the smoothing makes.",
+                "table = correlated_measurement_table(",
+                "    measured, line_window, line_free=line_free, order=baseline_order, "
+                "rest_frequency=rest_frequency,"] + _measure_tail(s)
     return ["# The measurement table: one line measured in every region and window.",
             "table = measurement_table(",
             "    spectra, line_window, line_free=line_free, order=baseline_order, rest_frequency=rest_frequency,",
             f"    z=z, convention=convention, line={_line_label(s)!r}, cosmology={s['cosmology']!r},",
+            f"    magnification={s['magnification']!r},",
+            ")",
+            "print(table)"]
+
+
+def _smoothed_expression(loupe):
+    """The code that smooths one spectrum ``s`` as the suite does ('' when it does not; #18)."""
+    smoothing = getattr(loupe, "smoothing", None)
+    if smoothing is None:
+        return ""
+    settings, expression = smoothing.settings, "s"
+    if settings["delivered_hanning"]:
+        expression = f"with_channel_correlation({expression}, 'hanning', 3)"
+    if settings["kernel"] != "none":
+        width = settings["width"]
+        width = int(width) if settings["kernel"] != "gaussian" and float(width).is_integer() else width
+        expression = f"smooth_spectrum({expression}, {settings['kernel']!r}, {width!r})"
+    return "" if expression == "s" else expression
+
+
+def _measure_tail(s):
+    return [f"    z=z, convention=convention, line={_line_label(s)!r}, cosmology={s['cosmology']!r},",
             f"    magnification={s['magnification']!r},",
             ")",
             "print(table)"]
@@ -242,6 +273,9 @@ def _loupe_section(loupe, state):
 
 def _analysis_names(loupe, state):
     names = ["measurement_table", "moment_maps", "open_cube", "region_spectrum"]
+    smoothed = _smoothed_expression(loupe)
+    names += [name for name in ("correlated_measurement_table", "smooth_spectrum", "with_channel_correlation")
+              if smoothed and (name.startswith("correlated") or name + "(" in smoothed)]
     if state.moments is not None and state.moments["line_free"]:
         names.append("significant_moments")
     return sorted(names)

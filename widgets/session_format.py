@@ -137,6 +137,17 @@ VIEW_SETTINGS = {
     "region_list": (
         ("selected", _text, "'' or a region name"),
     ),
+    # Smoothing and line fits (#18); the kernel before its width (a new kernel starts from its usual width).
+    "smoothing": (
+        ("kernel", _one_of(("none", "hanning", "boxcar", "gaussian", "rebin")),
+         "one of 'none', 'hanning', 'boxcar', 'gaussian', 'rebin'"),
+        ("width", lambda v: _is_number(v) and v > 0, "a positive number of channels"),
+        ("delivered_hanning", _flag, "true or false"),
+        ("show_raw", _flag, "true or false"),
+    ),
+    "fit_panel": (
+        ("model", _text, "'none', '1', '2', '3' or 'hyperfine: <group>'"),
+    ),
 }
 
 #: The settings moment maps are made with (recorded with the maps, which may predate later changes).

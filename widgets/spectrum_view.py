@@ -24,6 +24,9 @@ from .status import StatusLine
 
 __all__ = ["SpectrumView", "CLICK_MODES", "RANGE_MODES"]
 
+# A fitted line model (raspberry, over every region colour) and its residuals (slate); our own picks.
+FIT_COLOR, RESIDUAL_COLOR = "#b0174f", "#62768c"
+
 # What a click or drag on the spectrum does: value -> (label, tooltip)
 CLICK_MODES = {
     "go": ("Go to channel", "Click the spectrum to show that channel on the sky"),
@@ -79,6 +82,8 @@ class SpectrumView(w.VBox):
     peaks = List(Float(), help="Marked peak positions, observed frequency in GHz")
     baseline_order = Int(1, help=f"Order of the polynomial baseline (0 to {MAX_ORDER})")
     show_subtracted = Bool(False, help="Show spectra with the baseline subtracted")
+    show_raw = Bool(True, help="Draw the unsmoothed spectra (given to set_spectra as raw) faintly behind the "
+                               "smoothed ones")
     velocity_only = Bool(False, help="The cube has a velocity axis and no rest frequency: only the velocity axis, "
                                      "in the file's convention, can be shown")
     mode = Enum(list(CLICK_MODES), "go", help="What clicking or dragging on the spectrum does")
@@ -100,6 +105,8 @@ class SpectrumView(w.VBox):
         self.fits = {}
         self.curve_marks = {}
         self.model_marks = {}
+        # Smoothing and Gaussian fits (#18): unsmoothed curves drawn faintly, fitted models and residuals.
+        self.raw_spectra, self.raw_marks, self.line_fits, self.fit_marks = {}, {}, {}, {}
         self._pick_callbacks = []
         self._pointer_callbacks = []
         self._overlay_marks = []
@@ -209,7 +216,10 @@ class SpectrumView(w.VBox):
         for key in self.curve_marks:
             if key in self.model_marks:
                 curves.append(self.model_marks[key])
+            if key in self.raw_marks and self.show_raw:
+                curves.insert(0, self.raw_marks[key])
             curves.append(self.curve_marks[key])
+        curves += [mark for key in self.curve_marks for mark in self.fit_marks.get(key, ())]
         self.figure.marks = [self.free_mark, self.window_mark, self.zero_mark, *curves, *self._overlay_marks,
                              self.peak_mark, self.cursor_mark]
 
@@ -312,9 +322,13 @@ class SpectrumView(w.VBox):
         return (x >= self.x_range[0]) & (x <= self.x_range[1])
 
     # ---------------------------------------------------------------- data
-    def set_spectra(self, name, color, spectra):
-        """Show region ``name``'s spectra (one per window, None where a window has none)."""
+    def set_spectra(self, name, color, spectra, raw=None):
+        """Show region ``name``'s spectra (one per window, None where a window has none).
+
+        ``raw``: the same spectra unsmoothed, drawn faintly behind (while `show_raw`) when they differ.
+        """
         self.spectra[name] = {"color": color, "spectra": list(spectra)}
+        self.raw_spectra[name] = list(raw) if raw is not None else [None] * len(spectra)
         self._refit(names=[name])
         self._redraw(names=[name])
 
@@ -325,14 +339,42 @@ class SpectrumView(w.VBox):
             self.curve_marks.pop(key)
             self.model_marks.pop(key, None)
             self.fits.pop(key, None)
+            for extra in (self.raw_marks, self.line_fits, self.fit_marks):
+                extra.pop(key, None)
+        self.raw_spectra.pop(name, None)
         self._set_marks()
 
     def recolor(self, name, color):
         if name in self.spectra:
             self.spectra[name]["color"] = color
-            for key, mark in self.curve_marks.items():
+            for key, mark in [*self.curve_marks.items(), *self.raw_marks.items()]:
                 if key[0] == name:
                     mark.colors = [color]
+
+    def shown_spectra(self):
+        """Region name -> the spectra drawn (smoothed, if a smoothing is chosen), one per window."""
+        return {name: list(entry["spectra"]) for name, entry in self.spectra.items()}
+
+    def add_controls(self, widget):
+        """Put ``widget`` (e.g. a smoothing choice) under the view's toolbar."""
+        self._toolbar.children = (*self._toolbar.children, widget)
+
+    def show_fit(self, name, window, model, residuals, baseline=None):
+        """Draw a fitted line model and its residuals on region ``name``'s spectrum in ``window``.
+
+        ``model`` (baseline not included; ``baseline`` is added while the spectra are shown
+        unsubtracted) and ``residuals`` (NaN where not fitted) are Quantities on that spectrum's channels.
+        """
+        self.line_fits[(name, window)] = tuple(None if q is None else np.asarray(u.Quantity(q).value, float)
+                                               for q in (model, residuals, baseline))
+        with self.status.guard("drawing the fitted line"):
+            self._redraw(names=[name])
+
+    def clear_fits(self):
+        """Remove every fitted model and its residuals."""
+        self.line_fits.clear()
+        self.fit_marks.clear()
+        self._set_marks()
 
     def _window_ranges(self, spectrum, ranges):
         """Those of ``ranges`` (GHz) that overlap the band of ``spectrum``."""
@@ -364,6 +406,10 @@ class SpectrumView(w.VBox):
         self._refit()
         self._redraw_all()
         self._draw_ranges()
+
+    @observe("show_raw")
+    def _on_show_raw(self, change):
+        self._set_marks()
 
     @observe("show_subtracted")
     def _on_subtracted(self, change):
@@ -408,10 +454,38 @@ class SpectrumView(w.VBox):
                         model.x, model.y = x, np.asarray(fit.model.value, dtype=float)
                     else:
                         self.model_marks.pop(key, None)
+                    self._draw_extras(key, x, fit, entry["color"], scales)
                     self.y_axis.label = unit_text(spectrum.unit)
             self._set_marks()
             self._draw_zero()
             self._draw_cursor()
+
+    def _draw_extras(self, key, x, fit, color, scales):
+        """The faint unsmoothed curve and the fitted model with its residuals, for one spectrum (#18)."""
+        raw = self.raw_spectra.get(key[0], [])
+        raw = raw[key[1]] if key[1] < len(raw) else None
+        if raw is not None and raw is not self.spectra[key[0]]["spectra"][key[1]]:
+            raw_x, raw_y = self.x_of(raw).value, np.asarray(raw.value, dtype=float)
+            if self.show_subtracted and fit is not None:
+                order = np.argsort(x)
+                raw_y = raw_y - np.interp(raw_x, x[order], np.asarray(fit.model.value, float)[order])
+            mark = self.raw_marks.get(key) or Lines(scales=scales, stroke_width=1.0, opacities=[0.35])
+            mark.x, mark.y, mark.colors = raw_x, raw_y, [color]
+            self.raw_marks[key] = mark
+        else:
+            self.raw_marks.pop(key, None)
+        if key not in self.line_fits:
+            self.fit_marks.pop(key, None)
+            return
+        model, residuals, baseline = self.line_fits[key]
+        if baseline is not None and not self.show_subtracted:
+            model = model + baseline
+        marks = self.fit_marks.get(key) or (
+            Lines(scales=scales, colors=[FIT_COLOR], stroke_width=2.0, labels=["fit"]),
+            Lines(scales=scales, colors=[RESIDUAL_COLOR], stroke_width=1.0, labels=["residuals"]))
+        marks[0].x, marks[0].y = x, model
+        marks[1].x, marks[1].y = x, residuals
+        self.fit_marks[key] = marks
 
     def _draw_zero(self):
         xs = [m.x for m in self.curve_marks.values() if len(m.x)]
