@@ -23,7 +23,7 @@ from .status import StatusLine
 __all__ = ["ChannelMapPanel", "TAB_TITLE"]
 
 TAB_TITLE = "Channel maps"
-SHOWN_DPI = 72  # 16 panels make a ~730 px wide picture: the tab's width in a notebook
+SHOWN_DPI = 90  # 16 panels make a ~920 px wide picture, about the tab's width in a notebook (narrower: scaled down)
 MAX_PANELS = 64
 
 _NO_WINDOW = ("No line window yet: choose 'Line window' above the spectrum and drag across the line, then press "
@@ -59,6 +59,7 @@ class ChannelMapPanel(w.VBox):
         self.loupe = loupe
         self.status = StatusLine()
         self._thread = None
+        self._made_for = None
         self.n_input = w.IntText(value=16, description="Panels",
                                  tooltip=f"How many images the line window is cut into (1 to {MAX_PANELS})",
                                  style={"description_width": "initial"}, layout=w.Layout(width="120px"))
@@ -93,7 +94,9 @@ class ChannelMapPanel(w.VBox):
             button.on_click(lambda _, kind=kind: self._save_clicked(kind))
             self.save_buttons.append(button)
         self.hint = w.HTML()
-        self.image = w.Image(format="png", layout=w.Layout(max_width="100%", width="auto", height="auto"))
+        # Shown at its own size (not stretched by the column), scaled down only where the tab is narrower.
+        self.image = w.Image(format="png", layout=w.Layout(max_width="100%", width="auto", height="auto",
+                                                           align_self="flex-start", display="none"))
         self.image.add_class("cubeloupe-channel-map-image")
         super().__init__(children=[
             row([self.make_button, self.n_input, self.label_choice], flex_flow="row wrap", grid_gap="8px"),
@@ -142,9 +145,13 @@ class ChannelMapPanel(w.VBox):
                     f"{loupe.convention} velocities" + (f" from {loupe.velocity_reference}" if
                                                         loupe.velocity_reference else "") +
                     (f" at z = {loupe.z:g}" if loupe.z else "") + ".")
-            if self.figure is not None:
-                text += " Press Make channel maps again after changing them."
+            if self.figure is not None and self._made_for != self._frame():
+                text += " The maps shown were made for another window or velocity frame: press Make channel maps."
         self.hint.value = f"<span style='color:#486581;font-size:90%'>{text}</span>"
+
+    def _frame(self):
+        loupe = self.loupe
+        return (list(loupe.line_window), loupe.window, loupe.z, loupe.rest_frequency, loupe.convention)
 
     # ----------------------------------------------------------- making
     def inputs(self):
@@ -170,7 +177,8 @@ class ChannelMapPanel(w.VBox):
             self.status.warn("Channel maps are being made; wait for them.")
             return None
         if not self.loupe.line_window:
-            self.status.warn(_NO_WINDOW)
+            self.status.warn("Channel maps need a line window: choose 'Line window' above the spectrum and drag "
+                             "across the line first.")
             return None
         kwargs = None
         with self.status.guard("preparing the channel maps"):
@@ -182,6 +190,7 @@ class ChannelMapPanel(w.VBox):
             self.state = "running"
         self.make_button.disabled = True
         self.status.info("Making the channel maps…")
+        self._made_for = self._frame()
         self._thread = threading.Thread(target=self._work, args=(kwargs,), name="cubeloupe-channel-maps",
                                         daemon=True)
         self._thread.start()
@@ -199,6 +208,7 @@ class ChannelMapPanel(w.VBox):
             with self.hold_trait_notifications():
                 self.figure, self.panels, self.png = figure, panels, picture.getvalue()
             self.image.value = self.png
+            self.image.layout.display = ""
             outcome = "done"
             kind = "mean of" if panels.average else "one channel of"
             self.status.info(f"{len(panels.channels)} panels, each the {kind} its run of channels "

@@ -67,11 +67,7 @@ class PVPanel(w.VBox):
         self.tabs = tabs
         self.status = StatusLine()
         self._build()
-        super().__init__(children=[
-            row([self.range_choice], flex_flow="row wrap"),
-            self.hint, self.status, self.figure,
-            row([self.name, self.save_button, self.overwrite], flex_flow="row wrap", grid_gap="6px"),
-        ], **kwargs)
+        super().__init__(children=self._parts(with_figure=tabs is None), **kwargs)
         self.add_class("cubeloupe-pv-panel")
         loupe.sky_view.on_shape(self._on_shape)
         loupe.observe(self._on_frame, names=["axis_kind", "z", "rest_frequency", "convention", "velocity_offset"])
@@ -83,6 +79,18 @@ class PVPanel(w.VBox):
             tabs.children = (*tabs.children, self)
             self._tab_index = len(tabs.children) - 1
             tabs.set_title(self._tab_index, TAB_TITLE)
+            tabs.observe(self._on_tab, names=["selected_index"])
+
+    def _parts(self, with_figure):
+        return [row([self.range_choice], flex_flow="row wrap"), self.hint, self.status,
+                *([self.figure, self.caption] if with_figure else []),
+                row([self.name, self.save_button, self.overwrite], flex_flow="row wrap", grid_gap="6px")]
+
+    def _on_tab(self, change):
+        # The figure joins the page when its tab is first shown: drawn in a hidden tab, bqplot would lay
+        # it out at zero width (negative sizes, console errors).
+        if change.new == self._tab_index and self.figure not in self.children:
+            self.children = self._parts(with_figure=True)
 
     def _build(self):
         self.x_scale = LinearScale(allow_padding=False)
@@ -111,6 +119,8 @@ class PVPanel(w.VBox):
         self.range_choice.add_class("cubeloupe-pv-range")
         w.link((self.range_choice, "value"), (self, "only_line_window"))
         self.hint = w.HTML()
+        self.caption = w.HTML()
+        self.caption.add_class("cubeloupe-pv-caption")
         self.name = w.Text(value="cubeloupe_pv", description="File name",
                            tooltip="Name of the FITS file written, without extension (a folder may be included)",
                            style={"description_width": "initial"}, layout=w.Layout(width="300px"))
@@ -247,8 +257,12 @@ class PVPanel(w.VBox):
         if np.isfinite(data).any():
             low, high = display_limits(data, 0.5, 99.5)
             colour = stretched(data, low, high, "linear") if low < high else np.zeros_like(data)
+            unit = pv.data.unit.to_string()
+            self.caption.value = self._hint(f"Colours: linear from {low:.3g} to {high:.3g} {unit} (0.5 and 99.5 "
+                                            f"percentiles); dashed: catalog lines at the spectrum's z and shift.")
         else:
             colour = data
+            self.caption.value = self._hint("The path crosses only blank pixels.")
         names, values = self._markers(*y_edges)
         with self.hold_trait_notifications():
             self.y_values = y
