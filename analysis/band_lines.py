@@ -18,7 +18,8 @@ Examples
 import astropy.units as u
 import numpy as np
 
-from .catalog import find_line, lines_in_band, load_catalog, select_lines
+from .catalog import LINE_FAMILIES, find_line, lines_in_band, load_catalog, select_lines
+from .errors import CatalogError
 from .spectral import check_convention, check_redshift, observed_frequency, velocity
 
 __all__ = ["BandLines"]
@@ -31,8 +32,13 @@ class BandLines:
     ----------
     catalog : Table, optional
         From `load_catalog`; the bundled catalog by default.
-    species, spin_isomer, max_E_up
-        Filters, as in `select_lines`, applied once.
+    species, spin_isomer, max_E_up, family
+        Filters, as in `select_lines`, applied once; the family filter also
+        keeps a user's lines of a species the bundled catalog lacks (family
+        ""), which no family names.
+    group_hyperfine : bool
+        Give each hyperfine group in the band as one row (`collapse_hyperfine`),
+        as ``lines_in_band(..., group_hyperfine=True)`` does.
 
     Attributes
     ----------
@@ -40,10 +46,20 @@ class BandLines:
         The filtered catalog rows, sorted by rest frequency.
     """
 
-    def __init__(self, catalog=None, *, species=None, spin_isomer=None, max_E_up=None):
+    def __init__(self, catalog=None, *, species=None, spin_isomer=None, max_E_up=None, family=None,
+                 group_hyperfine=False):
         catalog = load_catalog() if catalog is None else catalog
         self._catalog = catalog
-        self.selected = select_lines(catalog, species=species, spin_isomer=spin_isomer, max_E_up=max_E_up)
+        self.group_hyperfine = bool(group_hyperfine)
+        selected = select_lines(catalog, species=species, spin_isomer=spin_isomer, max_E_up=max_E_up)
+        if family is not None:
+            wanted = [family] if isinstance(family, str) else list(family)
+            unknown = [f for f in wanted if f not in LINE_FAMILIES]
+            if unknown:
+                raise CatalogError(f"unknown line family {unknown[0]!r}; choose from {list(LINE_FAMILIES)}")
+            families = np.asarray(selected["family"], dtype=str)
+            selected = selected[np.isin(families, wanted) | (families == "")]
+        self.selected = selected
         self._rest = np.asarray(u.Quantity(self.selected["rest_frequency"], u.GHz).value)
         self._order = np.argsort(self._rest, kind="stable")
         self._sorted_rest = self._rest[self._order]
@@ -87,7 +103,9 @@ class BandLines:
         -------
         QTable
             A table owned by this object: it is updated in place by the next
-            call that keeps the same lines, so copy it to keep it.
+            call that keeps the same lines, so copy it to keep it. With
+            ``group_hyperfine`` a group's velocity is that of its mean
+            frequency (equal to the mean velocity in the radio convention).
         """
         z = check_redshift(z)
         convention = check_convention(convention)
@@ -97,7 +115,8 @@ class BandLines:
         key = (self.indices_in_band(fmin, fmax, z),
                None if reference is None else float(u.Quantity(reference).to_value(u.GHz)), convention)
         if key != self._key or self._table is None:
-            self._table = lines_in_band(fmin, fmax, z, self.selected, reference=reference, convention=convention)
+            self._table = lines_in_band(fmin, fmax, z, self.selected, reference=reference, convention=convention,
+                                        group_hyperfine=self.group_hyperfine)
             self._key = key
             return self._table
         table = self._table

@@ -16,12 +16,12 @@ import time
 import astropy.units as u
 import ipywidgets as w
 import numpy as np
-from bqplot import Lines, Scatter
+from bqplot import Label, Lines, Scatter
 from traitlets import Bool, Enum, Float, Instance, List, TraitError, Unicode, observe, validate
 
 from cubeloupe.analysis import (
-    HUBBLE_FLOW_MIN_VELOCITY, SPEED_OF_LIGHT, BandLines, CubeloupeError, check_redshift, in_hubble_flow,
-    load_catalog, marker_positions, redshift_candidates, redshift_summary,
+    HUBBLE_FLOW_MIN_VELOCITY, LINE_FAMILIES, SPEED_OF_LIGHT, BandLines, CubeloupeError, check_redshift, find_line,
+    in_hubble_flow, label_rows, load_catalog, marker_positions, redshift_candidates, redshift_summary,
 )
 
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
@@ -35,7 +35,23 @@ log = logging.getLogger("cubeloupe.widgets")
 ISOMER_CHOICES = ("any", "ortho", "para", "none")
 
 # Height of the marker heads as a fraction of the spectrum plot (the stems rise from the bottom to it).
+# Their labels stack above them, the top row reaching into the figure's top margin (labels are not clipped).
 HEAD_HEIGHT = 0.88
+
+#: Families drawn by default: the bright lines of most spectra. Shock tracers, complex organics and
+#: recombination lines number in the hundreds per band and are switched on when wanted.
+DEFAULT_FAMILIES = ("CO and isotopologues", "dense gas", "water and hydrides", "atoms and ions")
+
+# Label text: 11 px sans-serif, about 6.2 px a character on average (measured in Chromium, browser test),
+# stacked in rows 13 px apart above the heads.
+LABEL_FONT_SIZE = 11
+LABEL_CHAR_WIDTH = 6.2
+LABEL_ROW_STEP = 13
+LABEL_GAP = 6  # px between two labels of a row
+# Which labels survive where markers crowd: the velocity reference, then the brighter families, then low E_up.
+_FAMILY_RANK = {name: len(LINE_FAMILIES) - i for i, name in enumerate(
+    ("CO and isotopologues", "atoms and ions", "dense gas", "water and hydrides", "shock tracers",
+     "complex organics", "recombination lines"))}
 
 
 def _format_z(z):
@@ -68,17 +84,32 @@ class LineOverlay(w.VBox):
 
     Attributes
     ----------
-    z, velocity_offset, species, spin_isomer, max_E_up, reference_line, candidates, lines
+    z, velocity_offset, species, families, spin_isomer, max_E_up, hyperfine_components, reference_line,
+    candidates, lines
         See each trait's help.
     marker_x : ndarray
         x positions of the markers of all rows of `lines` on the spectrum view's current axis (read-only).
     shown_markers : ndarray of int
         Rows of `lines` whose markers are drawn: those inside the spectrum view's x range (read-only).
+    labelled_markers : ndarray of int
+        Rows of `lines` whose marker carries a label (read-only): where markers crowd, labels are
+        stacked in up to `label_row_count` rows and the lower-priority ones left out (`label_rows`).
+    plot_width : float
+        Width in pixels assumed for the spectrum plot when fitting labels (the browser does not report
+        it); a narrower guess only spaces labels more.
     """
+
+    plot_width = 560.0
+    label_row_count = 3
 
     z = Float(0.0, help="Source redshift; line markers sit at rest frequency / (1 + z)")
     velocity_offset = Float(0.0, help="Extra systemic velocity (km/s, rest frame) that shifts all markers")
-    species = List(Unicode(), help="Show only these species (empty: all)")
+    species = List(Unicode(), help="Show only these species (empty: all); picked species are shown whatever "
+                                   "their family")
+    families = List(Enum(list(LINE_FAMILIES)), list(DEFAULT_FAMILIES),
+                    help="Show lines of these families (a user's line of unknown family is always shown)")
+    hyperfine_components = Bool(False, help="Draw each hyperfine component with its own marker instead of one "
+                                            "labelled marker per group")
     spin_isomer = Enum(list(ISOMER_CHOICES), "any", help="Show only this spin isomer ('any': all)")
     max_E_up = Float(None, allow_none=True, help="Hide lines whose upper level lies above this energy E_up/k (K)")
     reference_line = Unicode("", help="Catalog name of the line velocities refer to ('' for none)")
@@ -99,13 +130,14 @@ class LineOverlay(w.VBox):
         self.catalog = load_catalog() if catalog is None else catalog
         self.marker_x = np.array([])
         self.shown_markers = np.array([], dtype=int)
+        self.labelled_markers = np.array([], dtype=int)
         self._band_lines = None
         self._quiet_reference = False
         self._summary_worker = _SummaryWorker(self._show_summary)
         self._build()
         super().__init__(children=self._children, **kwargs)
         self.add_class("cubeloupe-line-overlay")
-        self.view.add_overlay_marks([self.stems, self.heads])
+        self.view.add_overlay_marks([self.stems, self.heads, *self.labels])
         self.view.observe(self._on_view_frame, names=["axis_kind", "convention", "rest_frequency", "x_range"])
         self.view.observe(self._on_peaks, names=["peaks"])
         self.view.on_pointer(self._on_pointer)
@@ -117,11 +149,16 @@ class LineOverlay(w.VBox):
         self.stems = Lines(x=[], y=[], scales=scales, colors=[MARKER_COLOR], stroke_width=1, opacities=[0.8])
         self._tooltip = w.HTML()
         self.heads = Scatter(x=[], y=[], scales=scales, colors=[MARKER_COLOR], marker="diamond", default_size=40,
-                             names=[], display_names=True, tooltip=self._tooltip,
+                             names=[], display_names=False, tooltip=self._tooltip,
                              interactions={"hover": "tooltip", "click": "select"},
                              selected_style={"stroke": "#000000", "stroke-width": 2})
         self.heads.on_hover(self._on_hover)
         self.heads.observe(self._on_head_selected, names=["selected"])
+        # One label mark per row, each row a fixed number of pixels above the heads.
+        self.labels = [Label(x=[], y=[], text=[], scales=scales, colors=[MARKER_COLOR], default_size=LABEL_FONT_SIZE,
+                             font_weight="normal", align="middle", y_offset=-(6 + LABEL_ROW_STEP * r),
+                             apply_clip=False)
+                       for r in range(self.label_row_count)]
 
         self.z_input = w.Text(value=_format_z(0.0), description="Redshift z", continuous_update=False,
                               tooltip="Redshift of the source: catalog lines are drawn where they would be seen "
@@ -150,6 +187,21 @@ class LineOverlay(w.VBox):
                                            tooltip="Forget the species picked: show lines of every species")
         self.all_species_button.on_click(lambda _: setattr(self, "species", []))
         self._species_note = w.HTML()
+        self.family_choice = w.SelectMultiple(options=list(LINE_FAMILIES), value=tuple(self.families), rows=4,
+                                              description="Families",
+                                              tooltip="Show lines of the families picked here (Ctrl/Cmd-click to "
+                                                      "pick several); species picked on the left are shown "
+                                                      "whatever their family",
+                                              style={"description_width": "initial"},
+                                              layout=w.Layout(width="176px"))
+        self.family_choice.add_class("cubeloupe-families")
+        self.family_choice.observe(lambda ch: setattr(self, "families", list(ch.new)), names="value")
+        self.hyperfine_toggle = w.Checkbox(value=False, description="Hyperfine components", indent=False,
+                                           tooltip="Draw every hyperfine component (e.g. the seven of N2H+ "
+                                                   "J=1-0) instead of one marker at each group's centre",
+                                           layout=w.Layout(width="176px"))
+        self.hyperfine_toggle.add_class("cubeloupe-hyperfine-components")
+        w.link((self.hyperfine_toggle, "value"), (self, "hyperfine_components"))
         self.isomer_choice = w.Dropdown(options=list(ISOMER_CHOICES), description="Spin isomer",
                                         tooltip="Show only ortho or para lines of molecules that come in both "
                                                 "forms (e.g. water); 'any' shows all",
@@ -193,8 +245,9 @@ class LineOverlay(w.VBox):
                 self.summary,
             ], width="500px", css_class="cubeloupe-redshift-group"),
             section("Catalog lines shown", [
-                row([self.species_choice, w.VBox([self.isomer_choice, self.eup_input, self.all_species_button])],
-                    align_items="flex-start"),
+                row([self.species_choice, self.family_choice], align_items="flex-start"),
+                row([self.isomer_choice, self.eup_input]),
+                row([self.all_species_button, self.hyperfine_toggle]),
                 self._species_note,
             ], width="384px", css_class="cubeloupe-filter-group"),
             section("Redshift from peaks", [peaks_hint, w.HTML("Candidate redshifts, best first:"),
@@ -222,9 +275,12 @@ class LineOverlay(w.VBox):
 
     def _render_species_note(self):
         if self.species:
-            text = f"Showing {len(self.species)} species: " + ", ".join(html.escape(s) for s in self.species)
+            text = (f"Showing {len(self.species)} species, whatever their family: "
+                    + ", ".join(html.escape(s) for s in self.species))
+        elif len(self.families) == len(LINE_FAMILIES):
+            text = "No species picked: every species is shown."
         else:
-            text = "Nothing picked: every species is shown."
+            text = f"No species picked: every species of the {len(self.families)} families picked is shown."
         self._species_note.value = f"<span style='color:#829ab1;font-size:90%'>{text}</span>"
 
     def _on_eup_input(self, change):
@@ -279,12 +335,14 @@ class LineOverlay(w.VBox):
             self.lines = self.lines[:0] if self.lines is not None else None
             self._place_markers()
 
-    @observe("species", "spin_isomer", "max_E_up")
+    @observe("species", "families", "spin_isomer", "max_E_up", "hyperfine_components")
     def _on_filters(self, change):
         if change.name == "species":
             if tuple(self.species_choice.value) != tuple(self.species):
                 self.species_choice.value = tuple(s for s in self.species if s in self.species_choice.options)
-            self._render_species_note()
+        if change.name == "families" and tuple(self.family_choice.value) != tuple(self.families):
+            self.family_choice.value = tuple(self.families)
+        self._render_species_note()
         if change.name == "max_E_up" and self.eup_input.value != format_optional_number(self.max_E_up):
             self.eup_input.value = format_optional_number(self.max_E_up)
         self._band_lines = None
@@ -317,9 +375,11 @@ class LineOverlay(w.VBox):
             if change.old and not self._quiet_reference:
                 self.view.rest_frequency = float(self.view.file_rest_frequency or 0.0)
             return
-        rows = self.catalog[np.asarray(self.catalog["name"]) == self.reference_line]
-        if len(rows):
-            self.view.rest_frequency = float(u.Quantity(rows["rest_frequency"], u.GHz)[0].to_value(u.GHz))
+        try:  # a line, or a hyperfine group's name (its intensity-weighted centre)
+            row = find_line(self.reference_line, self.catalog)
+        except CubeloupeError:
+            return
+        self.view.rest_frequency = float(u.Quantity(row["rest_frequency"], u.GHz).to_value(u.GHz))
 
     @contextlib.contextmanager
     def keeping_rest_frequency(self):
@@ -347,8 +407,10 @@ class LineOverlay(w.VBox):
             if self._band_lines is None:
                 self._band_lines = BandLines(
                     self.catalog, species=self.species or None,
+                    family=None if self.species or len(self.families) == len(LINE_FAMILIES) else self.families,
                     spin_isomer=None if self.spin_isomer == "any" else self.spin_isomer,
-                    max_E_up=None if self.max_E_up is None else self.max_E_up * u.K)
+                    max_E_up=None if self.max_E_up is None else self.max_E_up * u.K,
+                    group_hyperfine=not self.hyperfine_components)
             lo, hi = self.band
             # Widen by the slider's range so lines shifted into the band by the offset are kept.
             pad = 1 + self.velocity_range / SPEED_OF_LIGHT.value
@@ -356,7 +418,17 @@ class LineOverlay(w.VBox):
             self.lines = self._band_lines.in_band(lo / pad * u.GHz, hi * pad * u.GHz, self.z)
             if self.lines is not previous:
                 self.refresh_reference_options()
+                self._label_priority = self._priorities(self.lines)
             self._place_markers()
+
+    def _priorities(self, lines):
+        """Which labels are kept where markers crowd: the velocity reference, brighter families, lower E_up."""
+        if lines is None or not len(lines):
+            return np.array([])
+        family = np.array([_FAMILY_RANK.get(str(f), 0) for f in lines["family"]], dtype=float)
+        e_up = np.nan_to_num(u.Quantity(lines["E_up"], u.K).to_value(u.K), nan=1e4)
+        reference = np.asarray(lines["name"]) == self.reference_line
+        return 100.0 * reference + family - np.clip(e_up, 0, 1e4) / 1e4
 
     def _place_markers(self):
         with self.status.guard("placing the line markers"):
@@ -374,12 +446,34 @@ class LineOverlay(w.VBox):
             names = [str(self.lines["name"][i]) for i in shown]
             xs = x[shown]
             n = len(xs)
+            placement = self._layout_labels(xs, names, shown)
             with self.view.figure.hold_sync():
                 self.stems.x = np.repeat(xs[:, None], 2, axis=1) if n else []
                 self.stems.y = np.tile([0.0, HEAD_HEIGHT], (n, 1)) if n else []
                 self.heads.x, self.heads.y = xs, np.full(n, HEAD_HEIGHT)
                 if list(self.heads.names) != names:
                     self.heads.names = names
+                for r, mark in enumerate(self.labels):
+                    pick = np.flatnonzero(placement.row == r) if n else np.array([], dtype=int)
+                    text = [names[i] for i in pick]
+                    mark.x, mark.y = np.asarray(placement.x)[pick] if n else [], np.full(len(pick), HEAD_HEIGHT)
+                    if list(mark.text if mark.text is not None else []) != text:
+                        mark.text = text
+
+    def _layout_labels(self, xs, names, shown):
+        """Label rows (`label_rows`) of the drawn markers, widths converted from pixels to axis units."""
+        if not len(xs) or not self.view.x_range:
+            self.labelled_markers = np.array([], dtype=int)
+            return label_rows(np.zeros(0), 0.0, (0.0, 1.0))
+        low, high = self.view.x_range
+        per_pixel = (high - low) / self.plot_width
+        widths = (np.array([len(name) for name in names]) * LABEL_CHAR_WIDTH) * per_pixel
+        priority = getattr(self, "_label_priority", None)
+        priority = priority[shown] if priority is not None and len(priority) == len(self.lines) else None
+        placement = label_rows(xs, widths, (low, high), priority=priority, max_rows=self.label_row_count,
+                               gap=LABEL_GAP * per_pixel)
+        self.labelled_markers = shown[placement.row >= 0]
+        return placement
 
     def _describe(self, index):
         row = self.lines[int(index)]
@@ -391,6 +485,11 @@ class LineOverlay(w.VBox):
                 f"<br>drawn at {drawn:.6f} GHz (z = {_format_z(self.z)}{shift})"
                 f"<br>E_up/k {e_up:.1f} K<br>spin isomer {html.escape(str(row['spin_isomer']))}"
                 f"<br>source: {html.escape(_short_source(str(row['provenance'])))}")
+        group = str(row["hyperfine_group"]) if "hyperfine_group" in row.colnames else ""
+        if group and group == str(row["name"]):
+            count = int(np.sum(np.asarray(self.catalog["hyperfine_group"]) == group))
+            text += (f"<br>hyperfine group of {count} components, drawn at their intensity-weighted centre "
+                     "(tick 'Hyperfine components' to see each)")
         return text
 
     def drawn_frequencies(self):

@@ -111,6 +111,8 @@ VIEW_SETTINGS = {
         ("species", _texts, "a list of species names"),
         ("spin_isomer", _text, "a spin isomer choice"),
         ("max_E_up", _optional_number, "a number (K) or null"),
+        ("families", _texts, "a list of line family names"),
+        ("hyperfine_components", _flag, "true or false"),
     ),
     "sky_view": (
         ("stretch", _text, "a stretch name"),

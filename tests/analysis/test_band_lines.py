@@ -45,3 +45,37 @@ def test_indices_in_band_match_the_rest_frame_test():
     # observed = rest / (1 + z) (common practice)
     inside = np.flatnonzero((rest / (1 + z) >= 100 - 1e-9) & (rest / (1 + z) <= 110 + 1e-9))
     assert list(picked) == list(inside)
+
+
+@pytest.mark.parametrize("family", [None, ["dense gas"], "CO and isotopologues"])
+def test_grouped_and_family_filtered_tables_equal_lines_in_band(family):
+    band_lines = BandLines(family=family, group_hyperfine=True)
+    for z in np.linspace(0.0, 0.02, 21):
+        got = band_lines.in_band(85 * GHZ, 116 * GHZ, z, reference="CO J=1-0")
+        want = lines_in_band(85 * GHZ, 116 * GHZ, z, family=family, reference="CO J=1-0", group_hyperfine=True)
+        assert got["name"].tolist() == want["name"].tolist()
+        assert_allclose(u.Quantity(got["observed_frequency"], GHZ).value,
+                        u.Quantity(want["observed_frequency"], GHZ).value, rtol=1e-12)
+        # radio velocities are linear in frequency, so the group's mean velocity is the velocity of its mean
+        assert_allclose(got["velocity"].to_value(u.km / u.s), want["velocity"].to_value(u.km / u.s),
+                        rtol=1e-9, atol=1e-6)
+    if family is None or "dense gas" in family:
+        # N2H+ J=1-0's seven components (Pagani et al. 2009 via pyspeckit) come as one row
+        assert "N2H+ J=1-0" in got["name"].tolist()
+        assert not any(name.startswith("N2H+ J=1-0 F1") for name in got["name"])
+    assert set(got["family"]) <= set([family] if isinstance(family, str) else family or got["family"])
+
+
+def test_family_filter_keeps_a_users_lines_of_unknown_family_and_refuses_unknown_families():
+    from astropy.table import Table
+
+    from cubeloupe.analysis import CatalogError, load_catalog
+
+    mine = Table({"species": ["XYZ"], "transition": ["1-0"], "rest_frequency": [100.5]})
+    catalog = load_catalog(extra=mine)
+    table = BandLines(catalog, family="CO and isotopologues").in_band(99 * GHZ, 116 * GHZ, 0.0)
+    # the J=1-0 lines of CO and its isotopologues (109.8-115.3 GHz, CDMS) and the user's own line
+    assert set(table["species"]) == {"XYZ", "CO", "13CO", "C18O", "C17O"}
+    assert table["name"][0] == "XYZ 1-0" and "CO J=1-0" in table["name"]
+    with pytest.raises(CatalogError, match="unknown line family 'bright'"):
+        BandLines(family=["bright"])
