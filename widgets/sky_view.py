@@ -453,8 +453,9 @@ class SkyView(w.VBox):
                 scale.reverse = bool(ends[0] > ends[1])
                 scale.min, scale.max = low, high
                 ticks = nice_ticks(low, high, max(int(room), 2))
-                axis.tick_values = ticks
+                # The format first: the browser writes the labels when the values arrive (else one step behind).
                 axis.tick_format = f".{tick_decimals(ticks)}f"
+                axis.tick_values = ticks
             self.x_axis.label, self.y_axis.label = self.axes.labels
 
     def current_plane(self):

@@ -310,8 +310,9 @@ class SpectrumView(w.VBox):
             self.x_scale.min, self.x_scale.max = low, high
             # Round ticks written with just enough decimals: narrow bands get distinct labels (no 1.101992e+2).
             ticks = nice_ticks(low, high, 6)
-            self.x_axis.tick_values = ticks
+            # The format first: the browser writes the labels when the values arrive (else one step behind).
             self.x_axis.tick_format = f".{tick_decimals(ticks)}f"
+            self.x_axis.tick_values = ticks
         self.x_range = [low, high]
 
     def in_view(self, x):

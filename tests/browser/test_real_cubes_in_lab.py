@@ -164,6 +164,13 @@ def real_page(lab_page, lab_root):
     return lab, {name: suites.nth(k) for k, name in enumerate(names)}
 
 
+def _bottom_tick_labels(figure):
+    """Texts of a bqplot figure's horizontal axis tick labels, left to right as d3 writes them."""
+    return figure.evaluate("""(figure) => { const axis = Array.from(figure.querySelectorAll('g.axis'))
+        .find(a => a.getAttribute('text-anchor') === 'middle');
+      return axis ? Array.from(axis.querySelectorAll('g.tick text')).map(t => t.textContent) : []; }""")
+
+
 def shot(lab, suite, name):
     """A page-sized PNG with the suite's views at the top of the notebook."""
     suite.locator(".cubeloupe-sky-view").evaluate("(view) => view.scrollIntoView({block: 'start'})")
@@ -282,6 +289,13 @@ def test_moment_maps_come_back_after_switching_windows_and_back(real_page):
         wait_until(lambda: ask(lab, "suites['pair'].window") == index, f"window {index} on the sky")
         wait_until(lambda: ("moment 1" in offered()) == maps, f"Show to {'offer' if maps else 'drop'} the maps")
         wait_until(lambda: distinct_colours(canvas) > 5, "the sky image to be drawn")
+    # The spectrum's tick labels are written in this window's format, not the last window's (they read
+    # "230.5 230.5 230.5 230.5 230.6" when the format arrived after the values).
+    axis = ask(lab, "(lambda a: [a.tick_format, [float(v) for v in a.tick_values]])(suites['pair'].spectrum_view.x_axis)")
+    expected = [format(value, axis[0]) for value in axis[1]]
+    spectrum = suite.locator(".cubeloupe-spectrum-figure")
+    wait_until(lambda: _bottom_tick_labels(spectrum) == expected, f"the spectrum's tick labels {expected}")
+    assert len(set(expected)) == len(expected)
     shown.select_option(index=offered().index("moment 1"))
     wait_until(lambda: ask(lab, "suites['pair'].sky_source") == "moment 1", "moment 1 on the sky again")
     shot(lab, suite, "real-pair-window-back")
