@@ -91,6 +91,10 @@ class FitPanel(w.VBox):
         super().__init__(children=[row([self.model_choice], flex_flow="row wrap"), self._table, self.status],
                          **kwargs)
         self.add_class("cubeloupe-fit-panel")
+        w.dlink((self.status, "message"), (self.status.layout, "display"), transform=lambda m: "" if m else "none")
+        for part in self.status.children:  # the close button keeps its width beside a long message
+            if isinstance(part, w.Button):
+                part.layout.flex = "0 0 auto"
         self._update_choices()
         w.link((self.model_choice, "value"), (self, "model"))
         loupe.measurement_table.add_part(self)

@@ -162,7 +162,7 @@ class MeasurementTable(w.VBox):
 
     def add_part(self, widget):
         """Show ``widget`` (e.g. the line-fit panel) under the table."""
-        self.children = (*self.children[:2], widget, *self.children[2:])
+        self.children = (*self.children, widget)
 
     def set_fits(self, label, fits):
         """Line fits to export with the rows: ``fits`` maps (region, window) to a GaussianFit (see `fit_columns`)."""

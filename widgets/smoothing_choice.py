@@ -84,7 +84,7 @@ class SmoothingChoice(w.VBox):
                                            tooltip="Tick if the correlator already Hanning-smoothed the "
                                                    "spectra: nothing is smoothed for it, but the errors "
                                                    "count the correlation between channels",
-                                           layout=w.Layout(width="206px"))
+                                           layout=w.Layout(width="auto"))
         self.delivered_toggle.add_class("cubeloupe-smoothing-delivered")
         self.raw_toggle = w.Checkbox(value=True, description="Show unsmoothed", indent=False,
                                      tooltip="Draw the unsmoothed spectra faintly behind the smoothed ones",
@@ -101,6 +101,11 @@ class SmoothingChoice(w.VBox):
         self.add_class("cubeloupe-smoothing")
         if spectrum_view is not None:
             spectrum_view.add_controls(self)
+        for part in self.status.children:  # the close button keeps its width beside a long message
+            if isinstance(part, w.Button):
+                part.layout.flex = "0 0 auto"
+        # The status line takes room only while it has something to say.
+        w.dlink((self.status, "message"), (self.status.layout, "display"), transform=lambda m: "" if m else "none")
         self.settings = {"kernel": "none", "width": 3.0, "delivered_hanning": False}
         self._show_width()
 

@@ -482,10 +482,13 @@ class SpectrumView(w.VBox):
         if baseline is not None and not self.show_subtracted:
             model = model + baseline
         marks = self.fit_marks.get(key) or (
-            Lines(scales=scales, colors=[FIT_COLOR], stroke_width=2.0, labels=["fit"]),
-            Lines(scales=scales, colors=[RESIDUAL_COLOR], stroke_width=1.0, labels=["residuals"]))
+            Lines(scales=scales, colors=[FIT_COLOR], stroke_width=2.0),
+            Lines(scales=scales, colors=[RESIDUAL_COLOR], stroke_width=1.0))  # no labels: residuals end in NaN
         marks[0].x, marks[0].y = x, model
-        marks[1].x, marks[1].y = x, residuals
+        # Only the fitted span: bqplot places a line's (hidden) label at its last point, which must be a number.
+        fitted = np.flatnonzero(np.isfinite(residuals))
+        span = slice(fitted[0], fitted[-1] + 1) if fitted.size else slice(0, 0)
+        marks[1].x, marks[1].y = x[span], residuals[span]
         self.fit_marks[key] = marks
 
     def _draw_zero(self):
