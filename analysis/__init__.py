@@ -31,7 +31,7 @@ from .partition import (partition_energy_zero, partition_function, partition_fun
                         partition_function_species)
 from .recombination import recombination_frequency, recombination_lines
 from .band_lines import BandLines
-from .label_layout import LabelPlacement, label_rows
+from .label_layout import LabelPlacement, label_priority, label_rows
 from .redshift_solver import RedshiftCandidate, redshift_candidates
 from .luminosity import (
     DEFAULT_COSMOLOGY, HUBBLE_FLOW_MIN_VELOCITY, CosmologySummary, LineLuminosity, get_cosmology,
@@ -76,7 +76,7 @@ from .smoothing import (
 )
 from .gaussian_fits import GaussianComponent, GaussianFit, fit_gaussians
 from .correlated_lines import correlated_line_errors, correlated_measurement_table
-from .hyperfine import HyperfineSolution, hyperfine_lines
+from .hyperfine import HyperfineSolution, hyperfine_lines, strongest_components
 from .level_populations import STATISTICAL_ORTHO_PARA, line_intensity, molecular_mass, spin_partition_function, \
     upper_level_population
 from .line_intensities import LINE_INTENSITY_COLUMNS, read_line_intensities
@@ -97,7 +97,7 @@ __all__ = [
     "find_line", "lines_in_band", "load_catalog", "read_line_list", "select_lines",
     "LINE_FAMILIES", "collapse_hyperfine", "partition_energy_zero", "partition_function",
     "partition_function_source", "partition_function_species", "recombination_frequency", "recombination_lines",
-    "LabelPlacement", "label_rows",
+    "LabelPlacement", "label_priority", "label_rows", "strongest_components",
     "BandLines", "RedshiftCandidate", "redshift_candidates",
     "DEFAULT_COSMOLOGY", "HUBBLE_FLOW_MIN_VELOCITY", "in_hubble_flow", "CosmologySummary", "LineLuminosity", "get_cosmology", "line_luminosity", "redshift_summary",
     "beam_area_pixels", "map_beam", "convert_brightness", "cube_beam", "jy_per_beam_to_kelvin",

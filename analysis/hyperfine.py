@@ -39,6 +39,7 @@ from .catalog import load_catalog
 from .errors import CatalogError
 
 __all__ = ["CMB_TEMPERATURE", "OPTICAL_DEPTH_LIMITS", "HyperfineSolution", "hyperfine_lines", "hyperfine_profile",
+           "strongest_components",
            "hyperfine_jacobian", "planck_temperature", "excitation_temperature"]
 
 _FOUR_LN2 = 4.0 * np.log(2.0)
@@ -219,3 +220,26 @@ def excitation_temperature(amplitude, frequency, z=0.0):
     # d/dx [t0 / ln(1 + t0/x)] = t0^2 / (x^2 (1 + t0/x) ln^2(1 + t0/x)) = tex^2 / (x^2 + x t0)
     derivative = tex**2 / (x**2 + x * t0) * (1 + z)
     return float(tex), float(derivative)
+
+
+def strongest_components(catalog=None):
+    """{hyperfine group: name of its strongest component} over a catalog.
+
+    The strongest component (largest LTE share, ``relative_intensity``) is the
+    usual velocity reference for a group, e.g. N2H+ J=1-0's F1,F = 2,3-1,2.
+
+    Examples
+    --------
+    >>> strongest_components()["N2H+ J=1-0"]
+    'N2H+ J=1-0 F1,F=2,3-1,2'
+    """
+    catalog = load_catalog() if catalog is None else catalog
+    if "hyperfine_group" not in catalog.colnames:
+        return {}
+    groups = np.asarray(catalog["hyperfine_group"], dtype=str)
+    rows = np.flatnonzero(groups != "")
+    order = rows[np.argsort(-np.asarray(catalog["relative_intensity"], dtype=float)[rows], kind="stable")]
+    strongest = {}
+    for i in order:
+        strongest.setdefault(str(groups[i]), str(catalog["name"][i]))
+    return strongest

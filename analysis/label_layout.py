@@ -30,7 +30,12 @@ import numpy as np
 
 from .errors import ParameterError
 
-__all__ = ["LabelPlacement", "label_rows"]
+__all__ = ["LabelPlacement", "label_priority", "label_rows"]
+
+# Which labels survive where markers crowd: the brighter families first (common practice: CO and the
+# fine-structure lines dominate most spectra, recombination lines and complex organics are many and faint).
+_FAMILY_ORDER = ("CO and isotopologues", "atoms and ions", "dense gas", "water and hydrides", "shock tracers",
+                 "complex organics", "recombination lines")
 
 @dataclass(frozen=True)
 class LabelPlacement:
@@ -67,6 +72,42 @@ def _values(name, value, unit):
     if unit is not None and unit != u.dimensionless_unscaled and np.any(np.asarray(value) != 0):
         raise ParameterError(f"{name} has no unit but the positions are in {unit}; give it in {unit}")
     return np.asarray(value, dtype=float)
+
+
+def label_priority(lines, reference=None):
+    """Label priorities of catalog rows for `label_rows`: the reference line, then family, then low E_up.
+
+    Parameters
+    ----------
+    lines : Table
+        Catalog rows (``name``, ``family``, ``E_up`` columns), e.g. from `lines_in_band`.
+    reference : str, optional
+        Name of the line velocities refer to; its label is kept first.
+
+    Returns
+    -------
+    ndarray
+        One value per row, higher first. Within a family a lower E_up/k wins
+        (unknown E_up, e.g. recombination lines, counts as 10 000 K).
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import lines_in_band
+    >>> import astropy.units as u
+    >>> band = lines_in_band(110 * u.GHz, 116 * u.GHz, z=0.0, species=["CO", "13CO"])
+    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band))]
+    ['CO J=1-0', '13CO J=1-0']
+    """
+    n = len(lines)
+    if n == 0:
+        return np.zeros(0)
+    rank = {name: len(_FAMILY_ORDER) - i for i, name in enumerate(_FAMILY_ORDER)}
+    family = np.array([rank.get(str(f), 0) for f in lines["family"]], dtype=float) if "family" in lines.colnames \
+        else np.zeros(n)
+    e_up = np.nan_to_num(u.Quantity(lines["E_up"], u.K).to_value(u.K), nan=1e4) if "E_up" in lines.colnames \
+        else np.full(n, 1e4)
+    chosen = np.asarray(lines["name"]) == reference if reference else np.zeros(n, dtype=bool)
+    return 100.0 * chosen + family - np.clip(e_up, 0, 1e4) / 1e4
 
 
 def label_rows(positions, widths, span, *, priority=None, max_rows=3, gap=0.0):
@@ -121,20 +162,23 @@ def label_rows(positions, widths, span, *, priority=None, max_rows=3, gap=0.0):
     half = width / 2
     centre = np.clip(x, low + half, high - half)
     placeable = np.isfinite(x) & (x >= low) & (x <= high) & (width <= high - low)
-    row = np.full(n, -1, dtype=int)
+    row = [-1] * n
     # Each row holds disjoint intervals, kept sorted by their left end (so also by their right end).
     starts = [[] for _ in range(int(max_rows))]
     ends = [[] for _ in range(int(max_rows))]
-    for i in np.lexsort((x, -np.nan_to_num(rank, nan=-np.inf))):
-        if not placeable[i]:
-            continue
-        left, right = centre[i] - half[i] - pad / 2, centre[i] + half[i] + pad / 2
+    order = np.lexsort((x, -np.nan_to_num(rank, nan=-np.inf)))
+    order = order[placeable[order]].tolist()
+    lefts, rights = (centre - half - pad / 2).tolist(), (centre + half + pad / 2).tolist()  # plain floats: fast
+    for i in order:
+        left, right = lefts[i], rights[i]
         for r in range(int(max_rows)):
-            k = bisect.bisect_left(starts[r], left)
-            if (k > 0 and ends[r][k - 1] > left) or (k < len(starts[r]) and starts[r][k] < right):
+            row_starts = starts[r]
+            k = bisect.bisect_left(row_starts, left)
+            if (k > 0 and ends[r][k - 1] > left) or (k < len(row_starts) and row_starts[k] < right):
                 continue
-            starts[r].insert(k, left)
+            row_starts.insert(k, left)
             ends[r].insert(k, right)
             row[i] = r
             break
+    row = np.array(row, dtype=int)
     return LabelPlacement(x=centre * unit if unit is not None else centre, row=row)

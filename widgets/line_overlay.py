@@ -21,7 +21,8 @@ from traitlets import Bool, Enum, Float, Instance, List, TraitError, Unicode, ob
 
 from cubeloupe.analysis import (
     HUBBLE_FLOW_MIN_VELOCITY, LINE_FAMILIES, SPEED_OF_LIGHT, BandLines, CubeloupeError, check_redshift, find_line,
-    in_hubble_flow, label_rows, load_catalog, marker_positions, redshift_candidates, redshift_summary,
+    in_hubble_flow, label_priority, label_rows, load_catalog, marker_positions, redshift_candidates,
+    redshift_summary, strongest_components,
 )
 
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
@@ -48,10 +49,6 @@ LABEL_FONT_SIZE = 11
 LABEL_CHAR_WIDTH = 6.2
 LABEL_ROW_STEP = 13
 LABEL_GAP = 6  # px between two labels of a row
-# Which labels survive where markers crowd: the velocity reference, then the brighter families, then low E_up.
-_FAMILY_RANK = {name: len(LINE_FAMILIES) - i for i, name in enumerate(
-    ("CO and isotopologues", "atoms and ions", "dense gas", "water and hydrides", "shock tracers",
-     "complex organics", "recombination lines"))}
 
 
 def _format_z(z):
@@ -131,6 +128,7 @@ class LineOverlay(w.VBox):
         self.marker_x = np.array([])
         self.shown_markers = np.array([], dtype=int)
         self.labelled_markers = np.array([], dtype=int)
+        self._strongest = strongest_components(self.catalog)
         self._band_lines = None
         self._quiet_reference = False
         self._summary_worker = _SummaryWorker(self._show_summary)
@@ -370,6 +368,8 @@ class LineOverlay(w.VBox):
 
     @observe("reference_line")
     def _on_reference(self, change):
+        if self.lines is not None:
+            self._label_priority = label_priority(self.lines, self.reference_line)
         if not self.reference_line:
             # Back to the cube's own rest frequency (or, without one, the band centre).
             if change.old and not self._quiet_reference:
@@ -392,12 +392,19 @@ class LineOverlay(w.VBox):
 
     def refresh_reference_options(self):
         """Rebuild the 'Velocity zero' choices (e.g. after the cube's rest frequency became known)."""
-        names = list(self.lines["name"]) if self.lines is not None else []
-        options = [(self._default_reference_label(), "")] + [(n, n) for n in names]
+        groups = list(self.lines["name"]) if self.lines is not None else []
+        names = [self.line_name(n) for n in groups]
+        labels = [f"{g} (strongest component)" if g in self._strongest else n for g, n in zip(groups, names)]
+        options = [(self._default_reference_label(), "")] + list(zip(labels, names))
         if self.reference_line and self.reference_line not in names:
             options.append((self.reference_line, self.reference_line))
         if tuple(options) != tuple(self.reference_choice.options):
             self.reference_choice.options = options
+
+    def line_name(self, name):
+        """The catalog line that stands for marker ``name`` as velocity zero: a hyperfine group is
+        represented by its strongest component (the trade's usual velocity reference for a group)."""
+        return self._strongest.get(str(name), str(name))
 
     # --------------------------------------------------------------- markers
     def _refresh_lines(self):
@@ -415,20 +422,13 @@ class LineOverlay(w.VBox):
             # Widen by the slider's range so lines shifted into the band by the offset are kept.
             pad = 1 + self.velocity_range / SPEED_OF_LIGHT.value
             previous = self.lines
-            self.lines = self._band_lines.in_band(lo / pad * u.GHz, hi * pad * u.GHz, self.z)
+            lines = self._band_lines.in_band(lo / pad * u.GHz, hi * pad * u.GHz, self.z)
+            if lines is not previous:  # the same table updated in place: traitlets would compare it row by row
+                self.lines = lines
             if self.lines is not previous:
                 self.refresh_reference_options()
-                self._label_priority = self._priorities(self.lines)
+                self._label_priority = label_priority(self.lines, self.reference_line)
             self._place_markers()
-
-    def _priorities(self, lines):
-        """Which labels are kept where markers crowd: the velocity reference, brighter families, lower E_up."""
-        if lines is None or not len(lines):
-            return np.array([])
-        family = np.array([_FAMILY_RANK.get(str(f), 0) for f in lines["family"]], dtype=float)
-        e_up = np.nan_to_num(u.Quantity(lines["E_up"], u.K).to_value(u.K), nan=1e4)
-        reference = np.asarray(lines["name"]) == self.reference_line
-        return 100.0 * reference + family - np.clip(e_up, 0, 1e4) / 1e4
 
     def _place_markers(self):
         with self.status.guard("placing the line markers"):
@@ -443,7 +443,7 @@ class LineOverlay(w.VBox):
             # Only markers inside the drawn band: one outside is not drawn (and cannot stretch the axis).
             shown = np.flatnonzero(self.view.in_view(x)) if len(x) else np.array([], dtype=int)
             self.shown_markers = shown
-            names = [str(self.lines["name"][i]) for i in shown]
+            names = np.asarray(self.lines["name"], dtype=str)[shown].tolist() if len(shown) else []
             xs = x[shown]
             n = len(xs)
             placement = self._layout_labels(xs, names, shown)
@@ -547,7 +547,7 @@ class LineOverlay(w.VBox):
         # Only in 'go' mode: in 'peaks' a click near a head still marks a peak.
         if event == "click" and self.view.mode == "go" and index is not None and height is not None \
                 and abs(height - HEAD_HEIGHT) <= self.head_reach:
-            self.reference_line = str(self.lines["name"][index])
+            self.reference_line = self.line_name(self.lines["name"][index])
             return True
         return False
 
@@ -559,7 +559,7 @@ class LineOverlay(w.VBox):
     def _on_head_selected(self, change):
         # Clicking a marker makes its line the velocity reference.
         if change.new is not None and len(change.new) and int(change.new[0]) < len(self.shown_markers):
-            self.reference_line = str(self.lines["name"][int(self.shown_markers[int(change.new[0])])])
+            self.reference_line = self.line_name(self.lines["name"][int(self.shown_markers[int(change.new[0])])])
 
     # ---------------------------------------------------------- redshift
     def _on_peaks(self, change):

@@ -76,3 +76,16 @@ def test_planck_temperature_and_its_inverse():
         assert derivative == pytest.approx(
             (excitation_temperature(amplitude + step, nu, z)[0] - tex) / step, rel=1e-4)
     assert np.isnan(excitation_temperature(-10.0, nu)[0])
+
+
+def test_strongest_component_of_each_group():
+    from cubeloupe.analysis import load_catalog, strongest_components
+
+    strongest = strongest_components()
+    catalog = load_catalog()
+    # HCN J=1-0: F=2-1 carries 5/9 of the intensity (LTE, 2F+1 weights; common practice)
+    assert strongest["HCN J=1-0"] == "HCN J=1-0 F=2-1"
+    # N2H+ J=1-0: F1,F = 2,3-1,2 (7/27 of the intensity, Pagani et al. 2009 via pyspeckit)
+    assert strongest["N2H+ J=1-0"] == "N2H+ J=1-0 F1,F=2,3-1,2"
+    groups = set(np.asarray(catalog["hyperfine_group"], dtype=str)) - {""}
+    assert set(strongest) == groups

@@ -86,3 +86,18 @@ def test_units_must_agree():
         label_rows([1.0] * u.GHz, widths=1 * u.km / u.s, span=[0, 2] * u.GHz)
     with pytest.raises(ParameterError, match="no unit"):
         label_rows([1.0] * u.GHz, widths=0.1, span=[0, 2] * u.GHz)
+
+
+def test_priority_keeps_the_reference_then_bright_families_then_low_energies():
+    from astropy.table import QTable
+
+    from cubeloupe.analysis import label_priority
+
+    lines = QTable({"name": ["H 40alpha", "CH3OH x", "CO J=7-6", "CO J=1-0", "HCN J=1-0"],
+                    "family": ["recombination lines", "complex organics", "CO and isotopologues",
+                               "CO and isotopologues", "dense gas"],
+                    "E_up": [np.nan, 20.0, 154.9, 5.5, 4.3] * u.K})
+    order = np.argsort(-label_priority(lines)).tolist()
+    # CO (lowest E_up first), dense gas, organics, recombination lines last
+    assert order == [3, 2, 4, 1, 0]
+    assert np.argmax(label_priority(lines, reference="H 40alpha")) == 0

@@ -141,3 +141,98 @@ def test_marked_peaks_offer_redshift_candidates(cube_path, rng):
     assert [c.z for c in loupe.line_overlay.candidates] == pytest.approx([c.z for c in expected])
     loupe.line_overlay.use_candidate_index(0)
     assert loupe.z == pytest.approx(expected[0].z)
+
+
+def _label_boxes(overlay):
+    """(left, right, row, text) of every drawn label, widths as the overlay estimates them in pixels."""
+    from cubeloupe.widgets.line_overlay import LABEL_CHAR_WIDTH
+
+    low, high = overlay.view.x_range
+    per_pixel = (high - low) / overlay.plot_width
+    boxes = []
+    for row, mark in enumerate(overlay.labels):
+        for x, text in zip(np.asarray(mark.x, dtype=float), list(mark.text if mark.text is not None else [])):
+            half = len(text) * LABEL_CHAR_WIDTH * per_pixel / 2
+            boxes.append((x - half, x + half, row, str(text)))
+    return boxes
+
+
+def test_family_filter_hides_the_crowded_families_until_asked(cube_path, rng):
+    from cubeloupe.analysis import LINE_FAMILIES
+
+    # 1 MHz channels over 99.0-99.4 GHz: H/He/C recombination lines sit here (Rydberg formula), as do
+    # complex organics; the default families are the bright ones
+    loupe = Loupe(cube_path(rng.normal(size=(400, 4, 4)), crval3=99.0e9, cdelt3=1e6), first_view=False)
+    overlay = loupe.line_overlay
+    assert "recombination lines" not in overlay.families and "complex organics" not in overlay.families
+    assert not set(overlay.lines["family"]) & {"recombination lines", "complex organics"}
+    overlay.family_choice.value = tuple(LINE_FAMILIES)
+    assert overlay.families == list(LINE_FAMILIES)
+    shown = set(overlay.lines["family"])
+    assert "recombination lines" in shown
+    # picking a species shows it whatever the families (a user who asks for it wants to see it)
+    overlay.families = ["CO and isotopologues"]
+    species = sorted(set(loupe.catalog["species"][loupe.catalog["family"] == "recombination lines"]))[0]
+    overlay.species = [species]
+    assert len(overlay.lines) and set(overlay.lines["species"]) == {species}
+
+
+def test_crowded_labels_never_overlap_and_stay_inside_the_axis(cube_path, rng):
+    from cubeloupe.analysis import LINE_FAMILIES
+
+    # 20-1010 GHz at z = 0: some two thousand catalog lines in view
+    loupe = Loupe(cube_path(rng.normal(size=(100, 4, 4)), crval3=20e9, cdelt3=10e9), first_view=False)
+    overlay = loupe.line_overlay
+    overlay.families = list(LINE_FAMILIES)
+    overlay.hyperfine_components = True
+    assert len(overlay.shown_markers) > 1500
+    boxes = _label_boxes(overlay)
+    assert 0 < len(boxes) == len(overlay.labelled_markers) < len(overlay.shown_markers)
+    low, high = loupe.spectrum_view.x_range
+    for left, right, row, text in boxes:
+        assert low - 1e-9 <= left and right <= high + 1e-9, text
+    for i, (l1, r1, row1, t1) in enumerate(boxes):
+        for l2, r2, row2, t2 in boxes[i + 1:]:
+            assert row1 != row2 or r1 <= l2 or r2 <= l1, (t1, t2)
+    # a label left out keeps its marker and its details
+    unlabelled = sorted(set(overlay.shown_markers) - set(overlay.labelled_markers))[0]
+    assert str(overlay.lines["name"][unlabelled]) in overlay.hover(unlabelled)
+    assert str(overlay.lines["name"][unlabelled]) in list(overlay.heads.names)
+
+
+def test_label_at_the_right_end_of_the_band_is_moved_inside(cube_path, rng):
+    """Regression (closing note of #14-#20): the label of a marker near the right end was cut off."""
+    # 0.5 MHz channels over 93.000-93.1745 GHz: N2H+ J=1-0 (centre 93.1737637 GHz, Pagani et al. 2009
+    # via pyspeckit) lies 0.7 MHz inside the upper end
+    loupe = Loupe(cube_path(rng.normal(size=(350, 4, 4)), crval3=93.0e9, cdelt3=0.5e6), first_view=False)
+    overlay = loupe.line_overlay
+    boxes = {text: (left, right) for left, right, _, text in _label_boxes(overlay)}
+    left, right = boxes["N2H+ J=1-0"]
+    assert right <= loupe.spectrum_view.x_range[1] + 1e-12
+    marker = overlay.marker_x[list(overlay.lines["name"]).index("N2H+ J=1-0")]
+    assert left < marker < right and (left + right) / 2 < marker  # moved inwards, still over its marker
+
+
+def test_one_marker_per_hyperfine_group_expands_to_its_components(cube_path, rng):
+    loupe = Loupe(cube_path(rng.normal(size=(400, 4, 4)), crval3=93.0e9, cdelt3=0.5e6), first_view=False)
+    overlay = loupe.line_overlay
+    names = list(overlay.lines["name"])
+    assert "N2H+ J=1-0" in names and not any(n.startswith("N2H+ J=1-0 F1") for n in names)
+    # the group's marker: the components' frequencies weighted by their LTE shares (naive reference)
+    components = loupe.catalog[loupe.catalog["hyperfine_group"] == "N2H+ J=1-0"]
+    share = np.asarray(components["relative_intensity"], dtype=float)
+    centre = np.sum(share * u.Quantity(components["rest_frequency"], u.GHz).value) / share.sum()
+    assert overlay.marker_x[names.index("N2H+ J=1-0")] == pytest.approx(centre, rel=1e-12)
+    assert "hyperfine group of 7 components" in overlay.hover(names.index("N2H+ J=1-0"))
+    # clicking the group's head makes its strongest component velocity zero (common practice)
+    strongest = components[np.argmax(share)]
+    loupe.spectrum_view.mode = "go"
+    overlay._on_pointer("click", overlay.marker_x[names.index("N2H+ J=1-0")], 0.88)
+    assert loupe.reference_line == str(strongest["name"]) == "N2H+ J=1-0 F1,F=2,3-1,2"
+    assert loupe.spectrum_view.rest_frequency == pytest.approx(
+        u.Quantity(strongest["rest_frequency"], u.GHz).value, rel=1e-12)
+    assert ("N2H+ J=1-0 (strongest component)", str(strongest["name"])) in overlay.reference_choice.options
+    overlay.hyperfine_toggle.value = True
+    assert overlay.hyperfine_components
+    # N2H+ J=1-0: seven resolved components (Pagani et al. 2009, A&A 494, 719)
+    assert sum(n.startswith("N2H+ J=1-0 F1") for n in overlay.lines["name"]) == 7
