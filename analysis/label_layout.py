@@ -95,7 +95,9 @@ def label_priority(lines, reference=None):
     >>> from cubeloupe.analysis import lines_in_band
     >>> import astropy.units as u
     >>> band = lines_in_band(110 * u.GHz, 116 * u.GHz, z=0.0, species=["CO", "13CO"])
-    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band))]
+    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band))]  # 13CO's E_up/k is lower
+    ['13CO J=1-0', 'CO J=1-0']
+    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band, reference="CO J=1-0"))]
     ['CO J=1-0', '13CO J=1-0']
     """
     n = len(lines)
