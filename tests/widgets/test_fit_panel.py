@@ -147,7 +147,7 @@ def n2h_cube(cube_path, rng):
                      beam=(30.0, 30.0, 0.0))
 
 
-def test_hyperfine_group_in_the_band_is_offered_and_its_fit_recovers_the_optical_depth(n2h_cube):
+def test_hyperfine_group_in_the_band_is_offered_and_its_fit_recovers_the_optical_depth(n2h_cube, tmp_path):
     loupe = Loupe(n2h_cube, first_view=False)
     labels = dict((v, k) for k, v in loupe.fit_panel.model_choice.options)
     assert "hyperfine: " + N2H in labels
@@ -168,3 +168,12 @@ def test_hyperfine_group_in_the_band_is_offered_and_its_fit_recovers_the_optical
     assert abs(row["excitation_temperature"] - TEX) < 4 * row["excitation_temperature_error"]
     assert abs(row["center"] - V_GROUP) < 4 * row["center_error"]
     assert "τ total" in loupe.fit_panel._table.value
+    # The optical depth and T_ex go into the ECSV export and read back with astropy.
+    from astropy.table import Table
+
+    table = Table.read(loupe.export_measurements(str(tmp_path / "n2h.ecsv")))
+    assert table["fit_model"][0] == "hyperfine group " + N2H
+    assert table["fit_optical_depth"][0] == pytest.approx(row["optical_depth"])
+    assert table["fit_excitation_temperature"].unit == u.K
+    assert table["fit_excitation_temperature_error"][0] == pytest.approx(row["excitation_temperature_error"])
+
