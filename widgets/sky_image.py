@@ -10,6 +10,10 @@ lost), blanks in the alpha channel, and zlib runs at level 1 (13 ms at 342 x 342
 than float32). The browser side is bqplot-image-gl's own: it decodes ``{"type": "image"}``
 messages as PNG and maps them through the colour scale between ``min`` and ``max``.
 
+Small images still travel as float32 (``encoding='auto'``): below about 256 x 256 pixels the
+bytes saved are a few tens of kB, while decoding a PNG in the browser is asynchronous and was
+seen to land the texture 20-110 ms after the other changes of a channel step on a loaded machine.
+
 The trait keeps the float array, so the kernel side (tests, pictures, the pointer) reads
 the same values as before; only what goes over the wire changes.
 """
@@ -20,7 +24,7 @@ import numpy as np
 from bqplot.traits import array_serialization
 from bqplot_image_gl import ImageGL
 from PIL import Image
-from traitlets import Unicode
+from traitlets import Enum
 from traittypes import Array
 
 __all__ = ["SkyImage", "png_message"]
@@ -28,6 +32,8 @@ __all__ = ["SkyImage", "png_message"]
 # zlib level 1: most of the size gain of higher levels at a fraction of their time (measured on noisy
 # images: level 6 was 7x slower for 7 % fewer bytes).
 PNG_LEVEL = 1
+# With encoding 'auto', images of more pixels than this travel as PNG (256 kB as float32).
+PNG_MIN_PIXELS = 65536
 
 
 def png_message(values):
@@ -52,7 +58,8 @@ def png_message(values):
 
 
 def _to_json(values, widget):
-    if widget.encoding == "png" and values is not None and np.ndim(values) == 2:
+    if values is not None and np.ndim(values) == 2 and (
+            widget.encoding == "png" or (widget.encoding == "auto" and np.size(values) > PNG_MIN_PIXELS)):
         return png_message(values)
     return array_serialization["to_json"](values, widget)
 
@@ -66,11 +73,13 @@ class SkyImage(ImageGL):
 
     Attributes
     ----------
-    encoding : {'png', 'float32'}
-        How the image is sent; 'float32' is bqplot-image-gl's plain array.
+    encoding : {'auto', 'png', 'float32'}
+        How the image is sent; 'float32' is bqplot-image-gl's plain array, 'auto' sends PNG
+        above `PNG_MIN_PIXELS` pixels.
     """
 
     image = Array().tag(sync=True, scaled=True, rtype="Color", atype="bqplot.ColorAxis",
                         to_json=_to_json, from_json=_from_json)
-    encoding = Unicode("png", help="How the image is sent to the browser: 'png' (8 bits a pixel and a blank "
-                                   "mask) or 'float32'")
+    encoding = Enum(["auto", "png", "float32"], "auto",
+                    help="How the image is sent to the browser: 'png' (8 bits a pixel and a blank mask), "
+                         "'float32', or 'auto' (PNG for images of more than PNG_MIN_PIXELS pixels)")

@@ -3,7 +3,7 @@
 The image shown is a display copy: the plane is read from the memory map
 (nothing else is read) and block-averaged to the plot's size on screen (at most
 ``max_display_size``) by `cubeloupe.analysis.display.display_image`; limits and
-stretch come from the same module; the image travels as an 8-bit PNG (`SkyImage`).
+stretch come from the same module; large images travel as 8-bit PNG (`SkyImage`).
 Drawing tools turn mouse gestures into region shapes, which are handed to whoever
 listens (`on_shape`), usually a `RegionList`.
 """

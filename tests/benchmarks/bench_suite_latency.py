@@ -298,6 +298,7 @@ def run_interactions(lab, repeat):
     def step_3():
         sky_area = suite.locator(".cubeloupe-sky-figure .plotarea_events")
         d.click(suite.locator(".cubeloupe-region-tools button", has_text="Box"))
+        lab.wait_for_kernel_idle()  # the tool is switched in the kernel before the gesture
         boxes = [((0.3, 0.35), (0.6, 0.65)), ((0.45, 0.4), (0.6, 0.55)), ((0.3, 0.6), (0.45, 0.75))]
         for start, end in boxes[:max(1, min(3, repeat))]:
             d.measure("region drawn -> spectrum", "mouseup", lambda: d.drag_fraction(sky_area, start, end, steps=8))
@@ -305,12 +306,14 @@ def run_interactions(lab, repeat):
     def step_4():
         spectrum_area = suite.locator(".cubeloupe-spectrum-figure .plotarea_events")
         d.click(suite.locator(".cubeloupe-spectrum-mode button", has_text="Line-free"))
+        lab.wait_for_kernel_idle()  # the tool is switched in the kernel before the gesture
         ranges = [(0.03, 0.12), (0.85, 0.95), (0.13, 0.2), (0.78, 0.84), (0.05, 0.1)]
         for i in range(repeat):
             a, b = ranges[i % len(ranges)]
             d.measure("range drag -> baseline", "mouseup",
                       lambda: d.drag_fraction(spectrum_area, (a, 0.5), (b, 0.5)))
         d.click(suite.locator(".cubeloupe-spectrum-mode button", has_text="Line window"))
+        lab.wait_for_kernel_idle()  # the tool is switched in the kernel before the gesture
         d.measure("range drag -> line window", "mouseup",
                   lambda: d.drag_fraction(spectrum_area, (0.35, 0.5), (0.65, 0.5)))
 

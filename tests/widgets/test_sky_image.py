@@ -56,6 +56,10 @@ def test_widget_sends_png_or_float32_as_asked(rng):
     values = rng.uniform(0, 1, size=(6, 7)).astype(np.float32)
     mark = SkyImage(image=values)
     serialise = type(mark).image.metadata["to_json"]
+    assert serialise(mark.image, mark)["dtype"] == "float32"  # 'auto': a small image goes as it is
+    large = rng.uniform(0, 1, size=(300, 300)).astype(np.float32)
+    assert serialise(large, mark)["format"] == "png"
+    mark.encoding = "png"
     assert serialise(mark.image, mark)["format"] == "png"
     mark.encoding = "float32"
     plain = serialise(mark.image, mark)
