@@ -27,6 +27,7 @@ Examples
 '3.585e+14'
 """
 
+import functools
 import re
 
 import astropy.units as u
@@ -146,7 +147,7 @@ def spin_partition_function(species, spin_isomer, temperature):
     (<Quantity 22.1 K>, 'own partition function')
     """
     spin = None if spin_isomer in (None, "none", "") else str(spin_isomer)
-    have = set(partition_function_species())
+    have = _with_partition_function()
     if spin is None or (species, spin) in have:
         return (partition_function(species, temperature, spin_isomer=spin),
                 partition_energy_zero(species, spin), "own partition function")
@@ -158,6 +159,11 @@ def spin_partition_function(species, spin_isomer, temperature):
         f"no partition function for {spin} {species}; the spin species with one are "
         f"{sorted(f'{p} {s}' for s, p in have if p)}"
     )
+
+
+@functools.lru_cache(maxsize=1)
+def _with_partition_function():
+    return frozenset(partition_function_species())
 
 
 def check_magnification(magnification):
@@ -177,20 +183,33 @@ def check_magnification(magnification):
 
 def intensity_kind(unit):
     """``"brightness"`` for K km/s (or K Hz), ``"flux"`` for Jy km/s (Jy Hz, W/m2), else `UnitMismatchError`."""
-    unit = u.Unit(unit)
+    kind = _kind_of(u.Unit(unit))
+    if kind is None:
+        raise UnitMismatchError(
+            f"a line intensity must be integrated over the line: K km/s (a map in brightness temperature) or "
+            f"Jy km/s (an unresolved source); got {unit}. Convert Jy/beam to K first, or integrate over the source"
+        )
+    return kind
+
+
+@functools.lru_cache(maxsize=64)
+def _kind_of(unit):
+    # Cached: astropy's is_equivalent decomposes composite units, ~0.1 ms a call, and a live fit asks often.
     if unit.is_equivalent(_K_KMS) or unit.is_equivalent(u.K * u.Hz):
         return "brightness"
     if unit.is_equivalent(_JY_KMS) or unit.is_equivalent(u.Jy * u.Hz):
         return "flux"
-    raise UnitMismatchError(
-        f"a line intensity must be integrated over the line: K km/s (a map in brightness temperature) or "
-        f"Jy km/s (an unresolved source); got {unit}. Convert Jy/beam to K first, or integrate over the source"
-    )
+    return None
+
+
+@functools.lru_cache(maxsize=64)
+def _over_velocity(unit):
+    return unit.is_equivalent(_K_KMS) or unit.is_equivalent(_JY_KMS)
 
 
 def _per_velocity(intensity, observed):
     """``intensity`` integrated over velocity: one over frequency times c / nu_obs (dv = c dnu / nu)."""
-    if intensity.unit.is_equivalent(_K_KMS) or intensity.unit.is_equivalent(_JY_KMS):
+    if _over_velocity(intensity.unit):
         return intensity
     return intensity * c / observed
 

@@ -20,11 +20,13 @@ Examples
 ([16.6, 33.19], 'brightness')
 """
 
+import functools
+
 import astropy.units as u
 import numpy as np
 from astropy.table import QTable, Table
 
-from .catalog import find_line
+from .catalog import find_line, select_lines
 from .errors import CatalogError, FitError, ParameterError, UnitMismatchError
 from .level_populations import intensity_kind
 
@@ -108,21 +110,36 @@ def _read_table(lines, region):
             raise ParameterError(f"line {name!r} has a negative flux_error {error[i]}; errors are >= 0")
     return names, flux, error, limits, kind
 
+@functools.lru_cache(maxsize=1)
+def _bundled_rows():
+    """{lower-case name: constants} of the bundled catalog, built once (find_line scans every name per call)."""
+    table = select_lines()
+    return {name.lower(): _constants(row) for name, row in zip(np.asarray(table["name"], dtype=str).tolist(), table)}
+
+
+def _constants(row):
+    return (str(row["species"]), str(row["spin_isomer"]), float(u.Quantity(row["rest_frequency"], u.GHz).value),
+            float(u.Quantity(row["E_up"], u.K).value), float(u.Quantity(row["einstein_A"], 1 / u.s).value),
+            float(row["g_up"]))
+
+
 def _catalog_rows(names, catalog):
     rows = []
+    known = _bundled_rows() if catalog is None else {}
     for name in names:
-        row = find_line(name, catalog)  # CatalogError with close matches for an unknown name
-        a_ul = float(u.Quantity(row["einstein_A"], 1 / u.s).value)
-        g_up = float(row["g_up"])
+        constants = known.get(name.strip().lower())
+        if constants is None:  # a user catalog, a hyperfine group's name, or an unknown name (close matches)
+            constants = _constants(find_line(name, catalog))
+        _, _, _, _, a_ul, g_up = constants
         if not (np.isfinite(a_ul) and a_ul > 0 and np.isfinite(g_up) and g_up > 0):
             raise CatalogError(
                 f"line {name!r} has no {'Einstein A' if not np.isfinite(a_ul) or a_ul <= 0 else 'g_up'} in the "
                 "catalog; give it in a line list (species, transition, rest_frequency, E_up, einstein_A, g_up) "
                 "and pass catalog=load_catalog(extra=...), or drop the line"
             )
-        rows.append((str(row["species"]), str(row["spin_isomer"]), float(u.Quantity(row["rest_frequency"], u.GHz).value),
-                     float(u.Quantity(row["E_up"], u.K).value), a_ul, g_up))
+        rows.append(constants)
     return rows
+
 
 def read_line_intensities(lines, *, region=None, species=None, catalog=None):
     """Check a table of line intensities and add each line's catalog constants.

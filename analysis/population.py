@@ -324,9 +324,8 @@ def _log_amount(species, spin, slope, intercept):
     spin_arg = None if spin == "all" else spin
     q, zero, how = spin_partition_function(species, spin_arg, temperature * u.K)
     step = 1e-4 * temperature
-    try:
-        up = spin_partition_function(species, spin_arg, (temperature + step) * u.K)[0]
-        down = spin_partition_function(species, spin_arg, (temperature - step) * u.K)[0]
+    try:  # d ln Q / dT by a central difference, one call for both sides
+        down, up = spin_partition_function(species, spin_arg, [temperature - step, temperature + step] * u.K)[0].value
         dlnq_dt = float(np.log(up / down)) / (2 * step)
     except CatalogError:  # at an edge of the table: one-sided
         other = spin_partition_function(species, spin_arg, (temperature - step) * u.K)[0]
@@ -440,7 +439,7 @@ def population_diagram(lines, *, species=None, spin="joint", z=0.0, magnificatio
     sigma = (error / flux).to_value(u.dimensionless_unscaled)
 
     detected = ~limits
-    groups = sorted(set(spins[detected]))
+    groups = sorted(set(spins[detected].tolist()))
     undetermined, notes = [], []
     joint = spin == "joint" or len(groups) <= 1
     if joint:
