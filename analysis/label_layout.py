@@ -23,6 +23,7 @@ Examples
 """
 
 import bisect
+import re
 from dataclasses import dataclass
 
 import astropy.units as u
@@ -36,6 +37,8 @@ __all__ = ["LabelPlacement", "label_priority", "label_rows"]
 # fine-structure lines dominate most spectra, recombination lines and complex organics are many and faint).
 _FAMILY_ORDER = ("CO and isotopologues", "atoms and ions", "dense gas", "water and hydrides", "shock tracers",
                  "complex organics", "recombination lines")
+# A rare isotopologue: a mass number written in the formula (13CO, C18O, H13CN, C34S) or deuterium (DCN).
+_RARE_ISOTOPOLOGUE = re.compile(r"^\d|\d{2}|D(?![a-z])")
 
 @dataclass(frozen=True)
 class LabelPlacement:
@@ -75,7 +78,7 @@ def _values(name, value, unit):
 
 
 def label_priority(lines, reference=None):
-    """Label priorities of catalog rows for `label_rows`: the reference line, then family, then low E_up.
+    """Label priorities of catalog rows for `label_rows`: the reference, family, main isotopologue, low E_up.
 
     Parameters
     ----------
@@ -87,18 +90,19 @@ def label_priority(lines, reference=None):
     Returns
     -------
     ndarray
-        One value per row, higher first. Within a family a lower E_up/k wins
-        (unknown E_up, e.g. recombination lines, counts as 10 000 K).
+        One value per row, higher first. Within a family the main isotopologue
+        wins over rare ones (13CO, C18O, DCN), then a lower E_up/k (unknown
+        E_up, e.g. recombination lines, counts as 10 000 K).
 
     Examples
     --------
     >>> from cubeloupe.analysis import lines_in_band
     >>> import astropy.units as u
     >>> band = lines_in_band(110 * u.GHz, 116 * u.GHz, z=0.0, species=["CO", "13CO"])
-    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band))]  # 13CO's E_up/k is lower
-    ['13CO J=1-0', 'CO J=1-0']
-    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band, reference="CO J=1-0"))]
+    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band))]
     ['CO J=1-0', '13CO J=1-0']
+    >>> [str(band["name"][i]) for i in np.argsort(-label_priority(band, reference="13CO J=1-0"))]
+    ['13CO J=1-0', 'CO J=1-0']
     """
     n = len(lines)
     if n == 0:
@@ -109,7 +113,9 @@ def label_priority(lines, reference=None):
     e_up = np.nan_to_num(u.Quantity(lines["E_up"], u.K).to_value(u.K), nan=1e4) if "E_up" in lines.colnames \
         else np.full(n, 1e4)
     chosen = np.asarray(lines["name"]) == reference if reference else np.zeros(n, dtype=bool)
-    return 100.0 * chosen + family - np.clip(e_up, 0, 1e4) / 1e4
+    species = lines["species"] if "species" in lines.colnames else [""] * n
+    rare = np.array([bool(_RARE_ISOTOPOLOGUE.search(str(s))) for s in species], dtype=float)
+    return 100.0 * chosen + family - 0.5 * rare - np.clip(e_up, 0, 1e4) / 1e4 * 0.49
 
 
 def label_rows(positions, widths, span, *, priority=None, max_rows=3, gap=0.0):

@@ -96,7 +96,7 @@ class LineOverlay(w.VBox):
         it); a narrower guess only spaces labels more.
     """
 
-    plot_width = 560.0
+    plot_width = 360.0  # the spectrum plot is 372 px wide at 1 440 px with the file browser open (browser test)
     label_row_count = 3
 
     z = Float(0.0, help="Source redshift; line markers sit at rest frequency / (1 + z)")
@@ -154,7 +154,7 @@ class LineOverlay(w.VBox):
         self.heads.observe(self._on_head_selected, names=["selected"])
         # One label mark per row, each row a fixed number of pixels above the heads.
         self.labels = [Label(x=[], y=[], text=[], scales=scales, colors=[MARKER_COLOR], default_size=LABEL_FONT_SIZE,
-                             font_weight="normal", align="middle", y_offset=-(6 + LABEL_ROW_STEP * r),
+                             font_weight="normal", align="middle", y_offset=-(10 + LABEL_ROW_STEP * r),
                              apply_clip=False)
                        for r in range(self.label_row_count)]
 

@@ -101,3 +101,18 @@ def test_priority_keeps_the_reference_then_bright_families_then_low_energies():
     # CO (lowest E_up first), dense gas, organics, recombination lines last
     assert order == [3, 2, 4, 1, 0]
     assert np.argmax(label_priority(lines, reference="H 40alpha")) == 0
+
+
+@pytest.mark.parametrize("species, rare", [("13CO", True), ("C18O", True), ("H13CN", True), ("C34S", True),
+                                           ("DCO+", True), ("N2D+", True), ("CO", False), ("N2H+", False),
+                                           ("HC3N", False), ("CH3OH", False), ("[CII]", False), ("SO2", False)])
+def test_main_isotopologue_labels_win_over_rare_ones(species, rare):
+    from astropy.table import QTable
+
+    from cubeloupe.analysis import label_priority
+
+    # within a family the main species is kept first whatever E_up (common practice: it is the brighter)
+    lines = QTable({"name": ["main", "other"], "species": ["CO", species],
+                    "family": ["CO and isotopologues"] * 2, "E_up": [500.0, 1.0] * u.K})
+    first = int(np.argmax(label_priority(lines)))
+    assert first == (0 if rare else 1)

@@ -367,7 +367,10 @@ def drawn_lines(figure, colour, dashed=None, filled=False):
 
 
 def scatter_label_points(figure):
-    """Page (x, y) of the centre of every labelled scatter point in a bqplot figure: {label: (x, y)}."""
+    """Page (x, y) of the centre of every named scatter point in a bqplot figure: {name: (x, y)}.
+
+    Names count whether bqplot draws them or not: the line overlay draws its marker labels as a
+    separate label mark (laid out so they do not pile up) and keeps the names on the heads."""
     return figure.evaluate(
         """(figure) => {
           const out = {};
@@ -375,7 +378,6 @@ def scatter_label_points(figure):
             const label = group.querySelector('text.dot_text');
             const dot = group.querySelector('path.dot');
             if (!label || !dot || !label.textContent.trim()) continue;
-            if (label.getAttribute('display') === 'none') continue;
             const box = dot.getBoundingClientRect();
             out[label.textContent.trim()] = [box.left + box.width / 2, box.top + box.height / 2];
           }
