@@ -26,9 +26,12 @@ that level's energy on the catalog's E_up scale (e.g. para-NH3 counts from
 
     N_u / N = g_up exp(-(E_up - E_0)/kT) / Q(T).
 
-For H2O, H2CO and CH3OH only the published total over both spin species is
-bundled (``spin_isomer=None``); it counts the spin weights (ortho 3, para 1),
-so multiply an ortho line's g_up by 3 when using it.
+For H2O, H2CO, CH3OH and H2O+ the published total over both spin species is
+bundled as ``spin_isomer=None``; it counts the spin weights (ortho 3, para 1),
+so multiply an ortho line's g_up by 3 when using it. Water also has each spin
+species' own Q (``spin_isomer="ortho"`` counted from 1_01, 34.23 K above 0_00;
+``"para"`` from 0_00): ortho summed over the LAMDA o-H2O levels, para the JPL
+total less the ortho part, at the JPL temperatures (9.375-300 K).
 
 Examples
 --------
@@ -101,8 +104,9 @@ def partition_function(species, temperature, spin_isomer=None):
     temperature : Quantity [temperature]
         Scalar or array, within the tabulated range of that species.
     spin_isomer : {'ortho', 'para'} or None
-        For species with spin isomers (NH3, H2S, c-C3H2, H3O+), the spin
-        species whose own Q is wanted; None for the others.
+        For species with spin isomers (H2O, NH3, H2S, c-C3H2, H3O+), the
+        spin species whose own Q is wanted; None for the others (and, for
+        H2O, H2CO, CH3OH and H2O+, the total over both with spin weights).
 
     Returns
     -------

@@ -10,9 +10,13 @@ commit both files. Three kinds of source, named per row in ``provenance``:
   out (make_transitions.DEGENERACY), so Q is divided by it here (HCN and
   isotopologues: 3 for 14N; N2H+: 9; C17O: 6 for 17O; 13CO and 13CS: 2 for 13C; CN: 3; CCH and OH+:
   2 for H; found by comparing each table with kT/hB + 1/3 in tests/analysis/test_partition.py).
-  JPL's H2O, H2CO and CH3OH tables sum over both spin isomers with their spin
-  weights (ortho 3, para 1; A and E alike), so they are listed for
-  spin_isomer "none" only;
+  JPL's H2O, H2CO and CH3OH tables and CDMS's H2O+ table sum over both spin
+  isomers with their spin weights (ortho 3, para 1; A and E alike), so they
+  are listed for spin_isomer "none";
+* water's own ortho and para Q: ortho summed over the levels of the LAMDA
+  o-H2O file (sources/lamda/o-h2o-levels.dat, spin weight 3 divided out,
+  counted from 1_01, 34.23 K above 0_00), para as the JPL total less the
+  ortho part, Q_p = Q_JPL - 3 exp(-E(1_01)/kT) Q_o, at the JPL temperatures;
 * sums over a published level list (the vendored LAMDA files): each spin
   species' own Q, with energies counted from its lowest level, tabulated only
   up to a sixth of the highest listed level's energy, where the missing levels
@@ -42,6 +46,7 @@ CDMS_SPECIES = {  # catalog species: (CDMS tag, hyperfine spin multiplicity divi
     "C34S": (46501, 1), "SO": (48501, 1), "HC3N": (51501, 1), "OCS": (60503, 1), "SO2": (64502, 1),
 }
 JPL_SPECIES = {"H2O": 18003, "HDO": 19002, "H2CO": 30004, "CH3OH": 32003}
+CDMS_SPIN_TOTALS = {"H2O+": 18505}  # CDMS tables that count both spin isomers with their spin weights
 LEVEL_FILES = [("NH3", "ortho", "o-nh3.dat", 1), ("NH3", "para", "p-nh3.dat", 1),
                ("H2S", "ortho", "oh2s.dat", 1), ("H2S", "para", "ph2s.dat", 1),
                ("c-C3H2", "ortho", "o-c3h2.dat", 1), ("c-C3H2", "para", "p-c3h2.dat", 1),
@@ -77,6 +82,23 @@ def _level_sum(energies_k, weights, temperatures):
     return np.sum(np.asarray(weights)[:, None] * np.exp(-e / np.asarray(temperatures)[None, :]), axis=0)
 
 
+def _water_spin_rows(jpl_lg_q, jpl_copy):
+    """Ortho- and para-H2O's own Q (see the module docstring) at the JPL temperatures up to 300 K."""
+    file_copy, levels, _ = mt.read_lamda("o-h2o-levels.dat")
+    energy = np.array([e for e, _, _ in levels.values()]) * mt.K_PER_CM
+    g = np.array([w for _, w, _ in levels.values()]) / 3  # the file counts the ortho spin weight 3
+    zero = float(energy.min())
+    t = np.array(JPL_T, dtype=float)
+    q_ortho = _level_sum(energy - zero, g, t)
+    q_para = 10 ** np.array(jpl_lg_q) - 3 * np.exp(-zero / t) * q_ortho
+    ortho = (f"sum over the levels of the {mt.LAMDA} o-H2O file, copy in {file_copy} (levels to 2007 K; "
+             "spin weight 3 divided out; energies from 1_01)")
+    para = (f"JPL partition function table (Pickett et al. 1998), tag 18003, {jpl_copy}, less "
+            "3 exp(-E(1_01)/kT) times the ortho Q of the LAMDA o-H2O levels (energies from 0_00)")
+    return ([("H2O", "ortho", float(ti), float(qi), round(zero, 4), ortho) for ti, qi in zip(t, q_ortho)]
+            + [("H2O", "para", float(ti), float(qi), 0.0, para) for ti, qi in zip(t, q_para)])
+
+
 def rows():
     """(species, spin_isomer, temperature [K], Q, energy_zero [K], provenance) rows."""
     cdms, jpl, copy = _read_tables()
@@ -87,6 +109,11 @@ def rows():
         for t, lg in zip(CDMS_T, cdms[tag]):
             if np.isfinite(lg):
                 out.append((species, "none", t, 10**lg / spins, 0.0, prov))
+    tag = CDMS_SPIN_TOTALS["H2O+"]
+    prov = (f"CDMS partition function table (Mueller et al. 2005), tag {tag}, {copy['cdms']}; sums both spin "
+            "isomers with their spin weights (ortho 3, para 1) and the hyperfine levels")
+    out += [("H2O+", "none", t, 10**lg, 0.0, prov) for t, lg in zip(CDMS_T, cdms[tag]) if np.isfinite(lg)]
+    out += _water_spin_rows(jpl[JPL_SPECIES["H2O"]], copy["jpl"])
     for species, tag in JPL_SPECIES.items():
         prov = (f"JPL partition function table (Pickett et al. 1998), tag {tag}, {copy['jpl']}; "
                 "sums both spin isomers with their spin weights")

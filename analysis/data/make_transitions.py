@@ -72,7 +72,7 @@ SOURCES = {
     "hco+": f"{LAMDA} hco+@xpol.dat, copy in GitHub fjdu/myRadex hco+@xpol.dat",
     "hnc": f"{LAMDA} hnc.dat {_REDIST}hnc.dat",
     "sio": f"{LAMDA} SiO file (SiO-H2 rates Balanca et al. 2018) {_REDIST}sio-h2.dat",
-    "cn": f"{LAMDA} CN hyperfine file {_REDIST}cn-hfs.dat",
+    "cn": f"{LAMDA} CN hyperfine file {_REDIST}cn-hfs.dat (vendored in sources/lamda/cn-hfs.dat)",
     "ch+": f"{LAMDA} CH+ file {_REDIST}ch+.dat",
     "catom": f"{LAMDA} catom.dat {_REDIST}12c.dat",
     "c+": f"{LAMDA} c+.dat {_REDIST}12c+.dat",
@@ -206,14 +206,7 @@ OTHERS = [
     ("[OIII]", "3P1-3P0", 3393.00624, 162.84, 2.596e-05, "none",
      ("nu: Moreno et al. 1986 (via NIST), from memory, within 10 MHz of the NIST level energy; "
       f"E_up: {SOURCES['o++ levels']}; A: {SOURCES['o++ A']}")),
-    ("CN", "N=1-0 J=1/2-1/2 F=1/2-3/2", 113.14416, 5.430, 1.05e-05, "none",
-     f"nu, E_up, A: {SOURCES['cn']}"),
-    ("CN", "N=1-0 J=3/2-1/2 F=5/2-3/2", 113.49097, 5.447, 1.19e-05, "none",
-     f"nu (strongest hyperfine component), E_up, A: {SOURCES['cn']}"),
-    ("CN", "N=2-1 J=3/2-1/2 F=5/2-3/2", 226.65956, 16.310, 9.47e-05, "none",
-     f"nu (strongest hyperfine component), E_up, A: {SOURCES['cn']}"),
-    ("CN", "N=2-1 J=5/2-3/2 F=7/2-5/2", 226.87478, 16.335, 1.14e-04, "none",
-     f"nu (strongest hyperfine component), E_up, A: {SOURCES['cn']}"),
+    # CN: the hyperfine groups of N=1-0 and 2-1 come from the vendored LAMDA file (LAMDA_HYPERFINE).
     ("OH+", "N=1-0 J=0-1", 909.1588, 43.63, NAN, "none",
      f"nu: {CDMS}, strongest hyperfine component, from memory; {_FROM_GROUND}"),
     ("OH+", "N=1-0 J=2-1", 971.8053, 46.64, NAN, "none",
@@ -385,6 +378,15 @@ def _ohp_component(up, low):
     return f"N={nu_}-{nl} J={ju}-{jl} F={_frac(fu)}-{_frac(fl)}"
 
 
+def _cn_group(up, low):
+    (nu_, ju, _), (nl, jl, _) = (s.split() for s in (up, low))
+    return f"N={int(float(nu_))}-{int(float(nl))} J={_frac(ju)}-{_frac(jl)}"
+
+
+def _cn_component(up, low):
+    return f"{_cn_group(up, low)} F={_frac(up.split()[2])}-{_frac(low.split()[2])}"
+
+
 def _hcl_group(up, low):
     return f"J={up.split()[0]}-{low.split()[0]}"
 
@@ -398,6 +400,9 @@ LAMDA_HYPERFINE = [
     ("c2h.dat", "CCH", "dense gas", 2, _cch_group, _cch_component, None),
     ("oh+.dat", "OH+", "water and hydrides", 2, _ohp_group, _ohp_component, None),
     ("hcl@hfs.dat", "HCl", "water and hydrides", 4, _hcl_group, _hcl_component, None),
+    # CN N=1-0 and 2-1 (14N, I = 1): spectroscopy of the CDMS entry (Mueller et al. 2005) as the LAMDA file
+    # gives it; the LTE shares g A agree with the relative intensities of Skatrud et al. 1983 (tests).
+    ("cn-hfs.dat", "CN", "dense gas", 3, _cn_group, _cn_component, None),
 ]
 
 # ---------------------------------------------------------------------------
@@ -633,9 +638,6 @@ def _curated_rows():
             continue  # (1,1) and (2,2) are hyperfine groups (NH3_OFFSETS)
         if species.startswith("["):
             g = _atom_g(transition)
-        elif species == "CN":
-            f_up = transition.split("F=")[1].split("-")[0]
-            g = (float(f_up.split("/")[0]) / 2 * 2 + 1) / 3  # (2F+1)/(2I+1), I(14N)=1
         elif species == "OH+":
             continue  # replaced by the hyperfine-resolved LAMDA file
         elif species == "H2O+":

@@ -20,6 +20,7 @@ from cubeloupe.analysis import (
     lines_in_band,
     load_catalog,
     select_lines,
+    strongest_components,
 )
 
 
@@ -118,6 +119,8 @@ def test_relative_intensities_sum_to_one_per_group(catalog):
 @pytest.mark.parametrize("group, count", [
     ("N2H+ J=1-0", 7), ("HCN J=1-0", 3), ("CCH N=1-0", 6), ("C17O J=1-0", 3),
     ("NH3 (J,K)=(1,1)", 5), ("NH3 (J,K)=(2,2)", 5),
+    # CN N=1-0: nine components, four in J=1/2-1/2 and five in J=3/2-1/2 (Skatrud et al. 1983)
+    ("CN N=1-0 J=1/2-1/2", 4), ("CN N=1-0 J=3/2-1/2", 5),
 ])
 def test_hyperfine_groups_the_issue_names(catalog, group, count):
     assert len(group_rows(catalog, group)) == count
@@ -135,6 +138,11 @@ def test_hyperfine_groups_the_issue_names(catalog, group, count):
     ("NH3 (J,K)=(2,2)", [0.050, 0.052, 0.796, 0.052, 0.050]),
     # CCH N=1-0 in frequency order (Tucker, Kutner & Thaddeus 1974, ApJ 193, L115; from memory).
     ("CCH N=1-0", [0.043, 0.417, 0.208, 0.208, 0.083, 0.042]),
+    # CN N=1-0 relative intensities of Skatrud, De Lucia, Blake & Sastry 1983 (J. Mol. Spectrosc. 99, 35),
+    # 0.012, 0.099, 0.096, 0.125 (J=1/2-1/2) and 0.125, 0.333, 0.099, 0.096, 0.012 (J=3/2-1/2) of the nine
+    # together, in frequency order (from memory), shared out within each J group.
+    ("CN N=1-0 J=1/2-1/2", np.array([0.012, 0.099, 0.096, 0.125]) / 0.332),
+    ("CN N=1-0 J=3/2-1/2", np.array([0.125, 0.333, 0.099, 0.096, 0.012]) / 0.665),
 ])
 def test_hyperfine_intensity_ratios(catalog, group, expected):
     rows = group_rows(catalog, group)
@@ -225,3 +233,16 @@ def test_symmetric_top_ladder(catalog):
 ])
 def test_symmetric_tops_against_recalled_lines(mhz, name):
     assert abs(find_line(name)["rest_frequency"].to_value(u.MHz) - mhz) < 0.1
+
+
+def test_cn_groups_share_the_n_1_0_intensity_as_published(catalog):
+    # Skatrud et al. 1983 (from memory): the J=3/2-1/2 group carries 0.665 of N=1-0's intensity, J=1/2-1/2 0.332
+    weights = {}
+    for group in ("CN N=1-0 J=1/2-1/2", "CN N=1-0 J=3/2-1/2"):
+        rows = group_rows(catalog, group)
+        # LTE optically thin, T >> h nu / k: a group's share is its sum of g_up A (common practice)
+        weights[group] = float(np.sum(np.asarray(rows["g_up"]) * u.Quantity(rows["einstein_A"]).to_value(1 / u.s)))
+    share = weights["CN N=1-0 J=3/2-1/2"] / sum(weights.values())
+    assert share == pytest.approx(0.665 / 0.997, abs=0.004)
+    # the strongest component, N=1-0 J=3/2-1/2 F=5/2-3/2 at 113.49097 GHz (CDMS via LAMDA, vendored copy)
+    assert strongest_components(catalog)["CN N=1-0 J=3/2-1/2"] == "CN N=1-0 J=3/2-1/2 F=5/2-3/2"

@@ -133,8 +133,8 @@ def test_interpolation_is_log_log_and_monotonic():
 def test_every_catalog_species_has_a_partition_function():
     have = {s for s, _ in partition_function_species()}
     missing = set(load_catalog()["species"]) - have
-    # Recombination-line atoms need none; H2O+ has no published table in hand yet.
-    assert missing == {"H", "He", "C", "H2O+"}
+    # Recombination-line atoms need none.
+    assert missing == {"H", "He", "C"}
     for species in ("NH3", "H2S", "c-C3H2", "H3O+"):
         assert {(species, "ortho"), (species, "para")} <= set(partition_function_species())
 
@@ -150,3 +150,47 @@ def test_every_catalog_species_has_a_partition_function():
 def test_bad_input(call, error, match):
     with pytest.raises(error, match=match):
         call()
+
+
+# JPL partition function table of H2O (tag 18003; Pickett et al. 1998, JQSRT 60, 883; the copy in the PyPI
+# wheel astroquery-0.4.11, jplspec/data/catdir.cat): lg Q at 300, 225, 150, 75, 37.5, 18.75, 9.375 K,
+# summed over ortho (spin weight 3) and para (1) levels from 0_00.
+JPL_H2O_T = [300, 225, 150, 75, 37.5, 18.75, 9.375] * u.K
+JPL_H2O_LG_Q = [2.2507, 2.0645, 1.8040, 1.3649, 0.9335, 0.4819, 0.0994]
+
+
+def test_water_ortho_and_para_add_up_to_the_published_total():
+    zero = partition_energy_zero("H2O", "ortho")
+    # 1_01 lies 23.794 cm^-1 = 34.23 K above 0_00 (LAMDA o-H2O file; JPL)
+    assert zero.to_value(u.K) == pytest.approx(23.794356 * 1.4387769, rel=1e-6)
+    assert partition_energy_zero("H2O", "para").to_value(u.K) == 0
+    total = (partition_function("H2O", JPL_H2O_T, "para")
+             + 3 * np.exp(-zero / JPL_H2O_T) * partition_function("H2O", JPL_H2O_T, "ortho"))
+    np.testing.assert_allclose(total.value, 10 ** np.array(JPL_H2O_LG_Q), rtol=1e-5)  # 6 digits bundled
+
+
+def test_water_spin_species_at_low_and_high_temperature():
+    t = 9.375 * u.K
+    # the lowest levels alone (2J+1 each): para 0_00, 1_11 (53.4 K), 2_02 (100.8 K); ortho 1_01, 1_10 (61.0 K),
+    # 2_12 (114.4 K); energies of JPL (para, from memory) and of the LAMDA o-H2O file (ortho)
+    para = 1 + 3 * np.exp(-53.4 / 9.375) + 5 * np.exp(-100.8 / 9.375)
+    ortho = 3 + 3 * np.exp(-(61.0 - 34.23) / 9.375) + 5 * np.exp(-(114.4 - 34.23) / 9.375)
+    assert partition_function("H2O", t, "para").value == pytest.approx(para, rel=2e-3)
+    assert partition_function("H2O", t, "ortho").value == pytest.approx(ortho, rel=1e-3)
+    # at high temperature ortho and para levels fill alike, so their sums from a common zero agree
+    # (the thermal ortho/para ratio tends to the spin-weight ratio 3; common practice)
+    hot = 300 * u.K
+    ratio = (partition_function("H2O", hot, "ortho") * np.exp(-partition_energy_zero("H2O", "ortho") / hot)
+             / partition_function("H2O", hot, "para"))
+    assert ratio.value == pytest.approx(1.0, abs=0.03)
+    with pytest.raises(CatalogError, match="outside"):
+        partition_function("H2O", 500 * u.K, "ortho")
+
+
+def test_h2o_plus_against_the_cdms_table():
+    # CDMS partition function table, tag 18505 (Mueller et al. 2005; copy in the PyPI wheel
+    # astroquery-0.4.11, linelists/cdms/data/partfunc.cat): lg Q(300 K) = 2.5968, lg Q(2.725 K) = 0.7779
+    assert partition_function("H2O+", 300 * u.K).value == pytest.approx(10 ** 2.5968, rel=1e-5)
+    # at 2.725 K only the ground level 0_00 J=1/2 of ortho-H2O+ counts: (2J+1)(2I+1) = 2 x 3 = 6
+    # (the CDMS table counts the spin weight; H2O+'s ortho levels have Ka + Kc even; common practice)
+    assert partition_function("H2O+", 2.725 * u.K).value == pytest.approx(6.0, rel=1e-3)
