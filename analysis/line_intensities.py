@@ -95,20 +95,24 @@ def _read_table(lines, region):
     error = error.to(flux.unit)
     limits = (np.asarray(lines["upper_limit"], dtype=bool) if "upper_limit" in lines.colnames
               else np.zeros(len(lines), dtype=bool))
-    for i, name in enumerate(names):
-        if not np.isfinite(flux[i]) or (not limits[i] and flux[i].value <= 0) or (limits[i] and flux[i].value <= 0):
+    values, errors = flux.value, error.value
+    bad_flux = ~(np.isfinite(values) & (values > 0))
+    bad_error = np.where(limits, errors < 0, ~(np.isfinite(errors) & (errors > 0)))
+    for i in np.flatnonzero(bad_flux | bad_error)[:1]:  # the first bad row, by name
+        name = names[i]
+        if bad_flux[i]:
             raise ParameterError(
                 f"line {name!r} has flux {flux[i]}; a detection (or an upper limit) needs a finite flux > 0. "
                 "Drop the row, or give a non-detection as an upper limit (upper_limit=True, flux = e.g. 3 sigma)"
             )
-        if not limits[i] and not (np.isfinite(error[i]) and error[i].value > 0):
-            raise ParameterError(
-                f"line {name!r} has flux_error {error[i]}; a detection needs a finite error > 0 (its weight in "
-                "the fit is 1 / error^2)"
-            )
-        if limits[i] and error[i].value < 0:
+        if limits[i]:
             raise ParameterError(f"line {name!r} has a negative flux_error {error[i]}; errors are >= 0")
+        raise ParameterError(
+            f"line {name!r} has flux_error {error[i]}; a detection needs a finite error > 0 (its weight in "
+            "the fit is 1 / error^2)"
+        )
     return names, flux, error, limits, kind
+
 
 @functools.lru_cache(maxsize=1)
 def _bundled_rows():

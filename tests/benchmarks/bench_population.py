@@ -47,8 +47,8 @@ def bench_fits():
     flux = u.Quantity([model["intensity"][list(model["name"]).index(n)] for n in names])
     water = QTable({"line": names, "flux": flux, "flux_error": 0.1 * flux})
     fit = population_diagram(co)
-    x, y = fit.points["E_up"].value, fit.points["ln(N_u/g_u)"]
-    w = 1 / fit.points["ln(N_u/g_u)_error"]
+    x, y = np.asarray(fit.points["E_up"].value), np.asarray(fit.points["ln(N_u/g_u)"])
+    w = 1 / np.asarray(fit.points["ln(N_u/g_u)_error"])
     baseline, _ = timed(lambda: np.polyfit(x, y, 1, w=w, cov="unscaled"), REPEATS * 10)
     seconds, _ = timed(lambda: population_diagram(co), REPEATS)
     report("population_diagram, 6 CO lines, K km/s", seconds, baseline, 10)
