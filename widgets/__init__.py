@@ -18,6 +18,7 @@ from .fit_panel import FitPanel
 from .channel_map_panel import ChannelMapPanel
 from .pv_panel import PVPanel
 from .path_tool import PathTool
+from .excitation_panel import ExcitationPanel
 from .loupe import Loupe
 
 __all__ = [
@@ -36,4 +37,5 @@ __all__ = [
     "ChannelMapPanel",
     "PVPanel",
     "PathTool",
+    "ExcitationPanel",
 ]

@@ -35,6 +35,7 @@ from .channel_bar import ChannelBar
 from .cube_summary import cube_summary, title_html, window_name
 from .channel_map_panel import ChannelMapPanel  # channel maps (#18)
 from .code_view import CodeView  # sessions and replay (#19)
+from .excitation_panel import ExcitationPanel  # population diagrams (#16)
 from .export_panel import ExportPanel
 from .fit_panel import FitPanel  # Gaussian and hyperfine fits (#18)
 from .line_overlay import LineOverlay
@@ -261,6 +262,7 @@ class Loupe(w.VBox):
             tabs.set_title(i, name)
         tabs.add_class("cubeloupe-actions")
         self.channel_map_panel, self.pv_panel = ChannelMapPanel(self, tabs), PVPanel(self, tabs)  # (#18)
+        self.excitation_panel = ExcitationPanel(self, tabs)  # population diagrams (#16)
         # Sessions and replay (#19): the script of the current state, in a "Code" tab.
         self.code_view = CodeView(self, tabs)
         self.spectrum_view.figure.layout.height = "330px"

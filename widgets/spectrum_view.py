@@ -34,6 +34,7 @@ CLICK_MODES = {
     "window": ("Line window", "Drag across the line to set the window used for measurements and moment maps"),
     "peaks": ("Peaks", "Click the tops of lines you see; with two or more the redshift is solved"),
 }
+PREDICTION_COLOR = "#7b2cbf"  # a predicted (model) spectrum over the data (#16)
 # The modes in which a drag marks a spectral range.
 RANGE_MODES = ("line-free", "window")
 
@@ -110,6 +111,7 @@ class SpectrumView(w.VBox):
         self._pick_callbacks = []
         self._pointer_callbacks = []
         self._overlay_marks = []
+        self.prediction = []  # [(observed frequency GHz, values)] of a predicted spectrum (#16)
         self._build()
         super().__init__(children=[self._toolbar, self.figure], **kwargs)
         self.add_class("cubeloupe-spectrum-view")
@@ -145,6 +147,8 @@ class SpectrumView(w.VBox):
                                  default_size=64)
         self.zero_mark = Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale},
                                colors=[BASELINE_COLOR], stroke_width=0.8)
+        self.prediction_mark = Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale},
+                                     colors=[PREDICTION_COLOR], stroke_width=1.6)  # a model curve (#16)
         self.figure = Figure(marks=[], axes=[self.x_axis, self.y_axis],
                              fig_margin={"top": 30, "bottom": 45, "left": 72, "right": 84},
                              layout=w.Layout(width="calc(100% - 4px)", height="360px"))
@@ -220,8 +224,8 @@ class SpectrumView(w.VBox):
                 curves.insert(0, self.raw_marks[key])
             curves.append(self.curve_marks[key])
         curves += [mark for key in self.curve_marks for mark in self.fit_marks.get(key, ())]
-        self.figure.marks = [self.free_mark, self.window_mark, self.zero_mark, *curves, *self._overlay_marks,
-                             self.peak_mark, self.cursor_mark]
+        self.figure.marks = [self.free_mark, self.window_mark, self.zero_mark, *curves, self.prediction_mark,
+                             *self._overlay_marks, self.peak_mark, self.cursor_mark]
 
     def add_overlay_marks(self, marks):
         """Put marks (e.g. catalog line markers) on the figure above the spectra."""
@@ -422,6 +426,34 @@ class SpectrumView(w.VBox):
         with self.status.guard("drawing the spectra"):
             self._redraw()
             self._draw_ranges()
+            self._draw_prediction()
+
+    def set_prediction(self, curves):
+        """Draw a model spectrum over the data (#16): one (observed frequency GHz, values) per window; [] hides it.
+
+        While the spectra are shown unsubtracted, the model sits on the first region's baseline of its window.
+        """
+        self.prediction = [(np.asarray(f, float), np.asarray(v, float)) for f, v in curves]
+        self._draw_prediction()
+
+    @observe("x_range")
+    def _on_x_range(self, change):
+        self._draw_prediction()  # only what lies in the drawn range is drawn
+
+    def _on_baseline(self, window, values):
+        fit = next((self.fits[k] for k in self.fits if k[1] == window), None)
+        if self.show_subtracted or fit is None or len(fit.model) != len(values):
+            return values
+        return values + np.asarray(fit.model.value, dtype=float)
+
+    def _draw_prediction(self):
+        # Windows joined by a NaN (a gap); only what lies in the drawn x range, no NaN at the end (see drawable).
+        x = np.concatenate([np.append(self.x_of_frequency(f), np.nan) for f, _ in self.prediction] or [[]])
+        y = np.concatenate([np.append(self._on_baseline(i, v), np.nan) for i, (_, v) in enumerate(self.prediction)]
+                           or [[]])
+        y = np.where(self.in_view(x), y, np.nan)
+        with self.prediction_mark.hold_sync():
+            self.prediction_mark.x, self.prediction_mark.y = drawable(x, y)
 
     def _redraw(self, names=None):
         names = list(self.spectra) if names is None else names
