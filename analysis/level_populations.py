@@ -111,14 +111,14 @@ def spin_partition_function(species, spin_isomer, temperature):
     """Partition function and energy zero of a species, or of one of its spin species.
 
     Where `cubeloupe.analysis.partition_function` holds the spin species' own
-    Q (NH3, H2S, H3O+, c-C3H2), that Q and its energy zero are returned. Where
-    only the total over both spin species is bundled (H2O, H2CO), the spin
+    Q (H2O, NH3, H2S, H3O+, c-C3H2), that Q and its energy zero are returned. Where
+    only the total over both spin species is bundled (H2CO), the spin
     species' level sum on the molecule's energy scale (zero at its ground
     level) is taken as its high-temperature share,
     ``Q_s = Q_total / (g_ortho + g_para)`` with the spin weights of
     `STATISTICAL_ORTHO_PARA` (3 and 1): exact when the ortho-to-para ratio in
-    LTE is its statistical value (for H2O above about 50 K), off at lower
-    temperatures, where the ratio derived with it is too low.
+    LTE is its statistical value (kT well above the lowest ortho level), off at
+    lower temperatures, where the ratio derived with it is too low.
 
     Parameters
     ----------

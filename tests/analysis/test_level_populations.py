@@ -55,10 +55,11 @@ def test_own_partition_function_is_partition_py():
 
 
 def test_high_temperature_share_sums_back_to_the_total():
-    # JPL's water Q counts ortho levels with spin weight 3 (Pickett et al. 1998): Q = 3 Q_o + Q_p.
-    q_o = spin_partition_function("H2O", "ortho", 100 * u.K)[0]
-    q_p = spin_partition_function("H2O", "para", 100 * u.K)[0]
-    assert float(3 * q_o + q_p) == pytest.approx(float(partition_function("H2O", 100 * u.K)), rel=1e-12)
+    # JPL's H2CO Q counts ortho levels with spin weight 3 (Pickett et al. 1998): Q = 3 Q_o + Q_p.
+    q_o, zero, how = spin_partition_function("H2CO", "ortho", 100 * u.K)
+    q_p = spin_partition_function("H2CO", "para", 100 * u.K)[0]
+    assert float(3 * q_o + q_p) == pytest.approx(float(partition_function("H2CO", 100 * u.K)), rel=1e-12)
+    assert zero == 0 * u.K and how.startswith("high-temperature share")
     with pytest.raises(CatalogError, match="no partition function for ortho CO"):
         spin_partition_function("CO", "ortho", 100 * u.K)
 

@@ -218,25 +218,51 @@ def test_ratio_error_is_the_quadrature_sum_in_a_separate_fit():
     assert fit.ortho_para_ratio_error == pytest.approx(expected, rel=1e-9)
 
 
-def test_water_in_lte_agrees_with_the_total_partition_function():
-    # partition.py: H2O's bundled Q sums both spin species with weights 3 (ortho) and 1 (para), so in LTE at the
-    # statistical ratio N_u = N g_s g_u exp(-E_up/kT) / Q_total (JPL convention, Pickett et al. 1998).
-    z, mu, number, temperature = 3.1, 12.0, 2e61, 80 * u.K
-    names = ["H2O 2_02-1_11", "H2O 2_11-2_02", "H2O 1_11-0_00", "H2O 3_12-3_03", "H2O 3_21-3_12", "H2O 1_10-1_01",
-             "H2O 2_21-2_12"]
-    q_total = float(partition_function("H2O", temperature))
+WATER = ["H2O 2_02-1_11", "H2O 2_11-2_02", "H2O 1_11-0_00", "H2O 3_12-3_03", "H2O 3_21-3_12", "H2O 1_10-1_01",
+         "H2O 2_21-2_12"]
+
+
+def water_fluxes(populations, z, mu):
     d_l = Planck18.luminosity_distance(z)
-    fluxes = []
-    for name in names:
-        row = find_line(name)
-        weight = 3 if row["spin_isomer"] == "ortho" else 1
-        n_u = ltepop(row, number * weight, temperature, q_total)
-        fluxes.append(((1 + z) * c * h * row["einstein_A"] * n_u * mu / (4 * np.pi * d_l**2)).to(JY_KMS))
-    fit = population_diagram(table_of(names, u.Quantity(fluxes)), z=z, magnification=mu, spin="joint")
+    # S dv = (1 + z) c h A N_u mu / (4 pi D_L^2) (issue #16, from Solomon & Vanden Bout 2005, ARA&A 43, 677).
+    return u.Quantity([((1 + z) * c * h * find_line(n)["einstein_A"] * populations(find_line(n)) * mu
+                        / (4 * np.pi * d_l**2)).to(JY_KMS) for n in WATER])
+
+
+def test_water_ortho_and_para_recovered_at_z():
+    z, mu, temperature, n_o, n_p = 3.1, 12.0, 80 * u.K, 1.5e61, 0.6e61
+
+    def populations(row):
+        spin = str(row["spin_isomer"])
+        q = partition_function("H2O", temperature, spin_isomer=spin)
+        return ltepop(row, n_o if spin == "ortho" else n_p, temperature, q, partition_energy_zero("H2O", spin))
+
+    fit = population_diagram(table_of(WATER, water_fluxes(populations, z, mu)), z=z, magnification=mu)
     assert fit.temperature.value == pytest.approx(80, rel=1e-9)
-    assert fit.ortho_para_ratio == pytest.approx(3.0, rel=1e-9)
-    assert fit.total_number.value == pytest.approx(number, rel=1e-9)
-    assert any("high-temperature share" in note for note in fit.notes)
+    assert fit.ortho_para_ratio == pytest.approx(2.5, rel=1e-9)
+    assert fit.total_number.value == pytest.approx(2.1e61, rel=1e-9)
+    # H2O ortho counts from 1_01, 34.2 K above 0_00 (JPL/CDMS energy levels, from memory).
+    assert fit.energy_zero["ortho"].value == pytest.approx(34.23, abs=0.01)
+
+
+def test_water_in_lte_agrees_with_the_total_partition_function():
+    # JPL's water Q sums both spin species with weights 3 (ortho) and 1 (para) (Pickett et al. 1998), so in LTE
+    # N_u = N g_s g_u exp(-E_up/kT) / Q_total. The fit, with each spin species' own Q, gets the same total back
+    # (to the 1 % to which the bundled tables add up) and the LTE ratio 3 Q_o exp(-E_0/kT) / Q_p.
+    z, mu, number, temperature = 3.1, 12.0, 2e61, 80 * u.K
+    q_total = float(partition_function("H2O", temperature))
+
+    def populations(row):
+        return ltepop(row, number * (3 if row["spin_isomer"] == "ortho" else 1), temperature, q_total)
+
+    fit = population_diagram(table_of(WATER, water_fluxes(populations, z, mu)), z=z, magnification=mu, spin="joint")
+    assert fit.temperature.value == pytest.approx(80, rel=1e-9)
+    assert fit.total_number.value == pytest.approx(number, rel=0.01)
+    q_o = partition_function("H2O", temperature, spin_isomer="ortho")
+    q_p = partition_function("H2O", temperature, spin_isomer="para")
+    lte_ratio = 3 * q_o * np.exp(-partition_energy_zero("H2O", "ortho") / temperature) / q_p
+    assert fit.ortho_para_ratio == pytest.approx(float(lte_ratio), rel=1e-9)
+    assert 2.9 < fit.ortho_para_ratio < 3.1  # statistical 3 at high temperature (common practice)
 
 
 # ---------------------------------------------------------------------------
