@@ -423,3 +423,28 @@ def test_flux_without_unit_and_bad_options():
 def test_rising_points_say_no_temperature_fits():
     with pytest.raises(FitError, match="rises with E_up"):
         population_diagram(table_of(CO_LINES[:3], [0.01, 3.9, 600.0] * K_KMS))
+
+
+# ---------------------------------------------------------------------------
+# A published worked example
+# ---------------------------------------------------------------------------
+
+def mangum_shirley_c18o(w_k_kms, t_ex):
+    # Mangum & Shirley 2015, PASP 127, 266, Sect. 12.1 (the C18O J=1-0 worked example), optically thin, no
+    # background: N_tot = 2.48e14 (T_ex + 0.88) exp(5.27/T_ex) / (exp(5.27/T_ex) - 1) W / J(T_ex) cm^-2, with
+    # J(T) = 5.27 / (exp(5.27/T) - 1) K (the constants 2.48e14, 0.88 K and 5.27 K from memory).
+    x = 5.27 / t_ex
+    return 2.48e14 * (t_ex + 0.88) * np.exp(x) / np.expm1(x) * w_k_kms / (5.27 / np.expm1(x))
+
+
+@pytest.mark.parametrize("temperature", [8.0, 15.0, 30.0])
+def test_c18o_column_agrees_with_the_mangum_shirley_worked_example(temperature):
+    names = ["C18O J=1-0", "C18O J=2-1", "C18O J=3-2"]
+    column = 2e15 / u.cm**2
+    q = float(partition_function("C18O", temperature * u.K))
+    fluxes = u.Quantity([brightness_from_column(ltepop(find_line(n), column, temperature * u.K, q), find_line(n))
+                         for n in names])
+    fit = population_diagram(table_of(names, fluxes))
+    expected = mangum_shirley_c18o(fluxes[0].to_value(K_KMS), fit.temperature.to_value(u.K))
+    # Their closed form uses the rigid-rotor Q expansion and rounded constants: agreement to 3 %.
+    assert fit.column_density.to_value(u.cm**-2) == pytest.approx(expected, rel=0.03)
