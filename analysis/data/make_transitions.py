@@ -220,10 +220,7 @@ OTHERS = [
     ("CH+", "J=1-0", 835.1375040, 40.080, 6.363e-03, "none", f"nu, E_up, A: {SOURCES['ch+']}"),
     ("HF", "J=1-0", 1232.476200, 59.15, 2.42e-2, "none",
      f"nu: Nolt et al. 1987, from memory; {_FROM_GROUND}; A: from memory"),
-    ("NH3", "(J,K)=(1,1)", 23.6944955, 23.26, 1.67e-7, "para",
-     f"nu: {CDMS} (hyperfine-free centre), from memory; E_up, A: {CDMS}, from memory"),
-    ("NH3", "(J,K)=(2,2)", 23.7226333, 64.45, 2.23e-7, "para",
-     f"nu: {CDMS} (hyperfine-free centre), from memory; E_up, A: {CDMS}, from memory"),
+    # NH3 (1,1) and (2,2) are hyperfine groups (NH3_OFFSETS), their lines from the LAMDA p-NH3 file.
 ]
 
 
@@ -516,8 +513,20 @@ NH3_STRENGTHS = {
              0.0106310, 0.267442, 0.499668, 0.146512, 0.0116280, 0.0106310, 0.0209300, 0.00186000,
              0.0260470, 0.0372090, 0.0209300, 0.0376740, 0.00418600],
 }
-# Centre frequency [GHz], E_up [K], A [s^-1] of the (1,1) and (2,2) inversion lines.
-NH3_LINES = {(1, 1): (23.6944955, 23.26, 1.67e-7), (2, 2): (23.7226333, 64.45, 2.23e-7)}
+def nh3_inversion_lines():
+    """{(J, K): (centre [GHz], E_up [K], A [s^-1], copy)} of the (1,1) and (2,2) inversion lines.
+
+    From the LAMDA p-NH3 file: frequency and A of the line, E_up the upper level's energy (the file's
+    levels count from the molecule's ground, like the catalog; its E_up column from para's lowest).
+    """
+    copy, levels, lines = read_lamda("p-nh3.dat")
+    out = {}
+    for up, low, a, nu, _ in lines:
+        name = _nh3_name(levels[up][2], levels[low][2])
+        for jk in ((1, 1), (2, 2)):
+            if name == f"(J,K)=({jk[0]},{jk[1]})":
+                out[jk] = (nu, round(levels[up][0] * K_PER_CM, 2), a, copy)
+    return out
 C_KMS = 299792.458
 
 # C17O J=1-0 (17O, I = 5/2): F'=3/2, 7/2, 5/2 -> F=5/2; LTE-thin intensities 2F'+1 over 18.
@@ -634,8 +643,6 @@ def _curated_rows():
         out.append(_row("H2O", f"{upper}-{lower}", nu, e_up, a, spin,
                         _water_provenance(nu_from, e_a_from, spin, a), 2 * j + 1))
     for species, transition, nu, e_up, a, spin, prov in OTHERS:
-        if species == "NH3":
-            continue  # (1,1) and (2,2) are hyperfine groups (NH3_OFFSETS)
         if species.startswith("["):
             g = _atom_g(transition)
         elif species == "OH+":
@@ -770,7 +777,7 @@ def _published_group_rows():
     labels = {0: "main", 1: "inner satellite (low nu)", 2: "outer satellite (low nu)",
               -1: "inner satellite (high nu)", -2: "outer satellite (high nu)"}
     for (j, k), offsets in NH3_OFFSETS.items():
-        centre, e_up, a = NH3_LINES[(j, k)]
+        centre, e_up, a, copy = nh3_inversion_lines()[(j, k)]
         strengths = NH3_STRENGTHS[(j, k)]
         total = sum(strengths)
         inner = max(abs(v) for v in offsets if abs(v) < 12) if (j, k) == (1, 1) else 20.0
@@ -779,10 +786,11 @@ def _published_group_rows():
         for v, s in zip(offsets, strengths):
             side = 0 if abs(v) < 2 else (1 if abs(v) <= inner else 2) * (1 if v > 0 else -1)
             buckets.setdefault(side, []).append((v, s))
-        prov = (f"nu: centre {centre} GHz ({CDMS}, from memory) and component offsets, relative_intensity: "
-                f"line strengths, both from {PYSPECKIT} pyspeckit/spectrum/models/ammonia_constants.py "
-                "(Kukolich 1967, Phys. Rev. 156, 83), merged per satellite group; E_up, A: "
-                f"{CDMS}, from memory; g_up: (2J+1) x relative_intensity")
+        prov = (f"nu: centre {centre} GHz of the LAMDA p-NH3 line plus component offsets, relative_intensity: "
+                f"line strengths, both from {PYSPECKIT} pyspeckit/spectrum/models/ammonia_constants.py (Kukolich "
+                "1967, Phys. Rev. 156, 83), merged per satellite group; E_up: the upper level's energy in the "
+                f"level list of the same LAMDA file; A: {LAMDA} file p-nh3.dat, copy in {copy}; "
+                "g_up: (2J+1) x relative_intensity")
         for side in (2, 1, 0, -1, -2):
             parts = buckets[side]
             strength = sum(s for _, s in parts)

@@ -34,7 +34,8 @@ A_RTOL = 0.01
 
 # Provenance clauses that describe a computation rather than a copied number.
 DERIVED = ("h nu/k", "rigid rotor", "fitted", "level energies from the same constants", "symmetric-top formula",
-           "Rydberg formula", "component offsets")
+           "Rydberg formula", "component offsets", "upper level's energy in the level list")
+# (an E_up read from a LAMDA file's level list is checked in test_nh3_e_up_is_the_upper_level_energy)
 QUANTITIES = {"nu": "rest_frequency", "E_up": "E_up", "A": "einstein_A"}
 
 
@@ -220,3 +221,12 @@ def test_each_value_is_backed_or_marked(catalog, name):
             continue
         backing = [r for r in refs if _finite(r[column]) and any(copy in text for copy in _copies(r))]
         assert backing, f"{name}: {key} is credited to {text!r} but no reference row from that copy holds it"
+
+
+def test_nh3_e_up_is_the_upper_level_energy():
+    catalog = load_catalog()
+    # LAMDA p-nh3.dat (vendored copy): the (1,1) and (2,2) upper inversion levels at 16.169963295 and
+    # 44.793901871 cm^-1 above the molecule's ground; hc/k = 1.4387769 K cm (CODATA 2018)
+    for group, level in (("NH3 (J,K)=(1,1)", 16.169963295), ("NH3 (J,K)=(2,2)", 44.793901871)):
+        rows = catalog[np.asarray(catalog["hyperfine_group"]) == group]
+        assert np.allclose(rows["E_up"].to_value(u.K), level * 1.4387769, atol=0.006)
