@@ -3,7 +3,14 @@
 Run on demand (not collected by pytest; several minutes on 2 cores)::
 
     python tests/benchmarks/bench_suite_latency.py                  # every scenario
-    python tests/benchmarks/bench_suite_latency.py --scenario demo --repeat 5
+    python tests/benchmarks/bench_suite_latency.py --scenario demo --repeat 5 --verbose
+    # scenarios: demo, 'demo x5', real, big; --verbose prints what changed when (GL draws included)
+
+Before and after a change, under the same load: run it back to back with the kernel importing
+an earlier commit, laid out as a package on PYTHONPATH (the kernels inherit it)::
+
+    mkdir -p /tmp/old/cubeloupe && git archive <commit> analysis widgets demo_cubes | tar -x -C /tmp/old/cubeloupe
+    PYTHONPATH=/tmp/old python tests/benchmarks/bench_suite_latency.py --scenario big
 
 It starts JupyterLab and headless Chromium with the browser suite's machinery
 (tests/browser/conftest.py, lab.py), writes one notebook per scenario and drives the suite
