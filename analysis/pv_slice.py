@@ -45,7 +45,7 @@ from .export import write_map
 from .prefetch import prefetch_if_cold
 from .spectral import channel_mask
 
-__all__ = ["PVSlice", "pv_slice"]
+__all__ = ["PVSlice", "path_band", "pv_slice"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -194,6 +194,71 @@ def _sample_path(vertices, scale, step):
     return centre, across, offsets
 
 
+def _geometry(cube, width):
+    """The pixel-scale matrix (arcsec per pixel), the one-pixel step (arcsec) and the samples across ``width``."""
+    celestial = cube.wcs.celestial
+    scale = celestial.pixel_scale_matrix * 3600.0 * np.array(
+        [[u.Unit(unit or "deg").to(u.deg) for unit in celestial.wcs.cunit]]).T  # arcsec per pixel
+    step = float(np.min(np.hypot(*scale)))  # one pixel along its smaller side
+    if isinstance(width, u.Quantity):
+        try:
+            width_pixels = width.to_value(u.arcsec) / step
+        except u.UnitConversionError:
+            raise UnitMismatchError(f"width must be a number of pixels or an angle; got {width}") from None
+    else:
+        try:
+            width_pixels = float(width)
+        except (TypeError, ValueError):
+            raise UnitMismatchError(f"width must be a number of pixels or an angle; got {width!r}") from None
+    if not np.isfinite(width_pixels) or width_pixels <= 0:
+        raise RegionError(f"width must be positive; got {width}")
+    return scale, step, max(1, int(round(width_pixels)))
+
+
+def path_band(cube, path, width=1):
+    """The two edges of the strip a `pv_slice` of ``width`` averages, as pixel polylines (for drawing).
+
+    The slice averages ``n`` samples one pixel apart across the path (``n``:
+    ``width`` rounded to whole pixel steps), each standing for one pixel, so
+    the strip reaches ``n / 2`` pixel steps either side of the centre line,
+    perpendicular on the sky. Each segment's edges are offset on their own
+    (corners are not joined).
+
+    Parameters
+    ----------
+    cube, path, width
+        As for `pv_slice`.
+
+    Returns
+    -------
+    one_side, other_side : ndarray, shape (2 * n_segments, 2)
+        Pixel (x, y) of each segment's two ends, shifted to one side of the path
+        and to the other; empty (shape (0, 2)) when the strip is one pixel wide.
+
+    Examples
+    --------
+    >>> from cubeloupe.analysis import demo_path, open_cube
+    >>> one_side, other_side = path_band(open_cube(demo_path("disk")), [(10.0, 20.0), (60.0, 20.0)], width=5)
+    >>> one_side.round(6).tolist(), other_side.round(6).tolist()
+    ([[10.0, 17.5], [60.0, 17.5]], [[10.0, 22.5], [60.0, 22.5]])
+    """
+    vertices = _vertices_in_pixels(cube, path)
+    scale, step, n_across = _geometry(cube, width)
+    if n_across == 1:
+        return np.empty((0, 2)), np.empty((0, 2))
+    segments = np.diff(vertices, axis=0)
+    sky = scale @ segments.T
+    lengths = np.hypot(*sky)
+    keep = lengths > 0
+    if not keep.any():
+        raise RegionError("the path has zero length; give two different vertices")
+    along = sky[:, keep] / lengths[keep]
+    # The sky direction across the path (as in `_sample_path`), back in pixels, n / 2 steps long.
+    across = np.linalg.solve(scale, np.vstack([-along[1], along[0]])).T * (n_across * step / 2)
+    ends = np.stack([vertices[:-1][keep], vertices[1:][keep]], axis=1)  # (segments, 2 ends, xy)
+    return (ends + across[:, None, :]).reshape(-1, 2), (ends - across[:, None, :]).reshape(-1, 2)
+
+
 def _bilinear_weights(x, y, shape):
     """Sparse (n_samples, n_pixels) bilinear weights and the pixel indices they refer to.
 
@@ -285,23 +350,7 @@ def pv_slice(cube, path, width=1, *, window=None, rest_frequency=None, z=0.0, co
     (68, 60)
     """
     vertices = _vertices_in_pixels(cube, path)
-    celestial = cube.wcs.celestial
-    scale = celestial.pixel_scale_matrix * 3600.0 * np.array(
-        [[u.Unit(unit or "deg").to(u.deg) for unit in celestial.wcs.cunit]]).T  # arcsec per pixel
-    step = float(np.min(np.hypot(*scale)))  # one pixel along its smaller side
-    if isinstance(width, u.Quantity):
-        try:
-            width_pixels = width.to_value(u.arcsec) / step
-        except u.UnitConversionError:
-            raise UnitMismatchError(f"width must be a number of pixels or an angle; got {width}") from None
-    else:
-        try:
-            width_pixels = float(width)
-        except (TypeError, ValueError):
-            raise UnitMismatchError(f"width must be a number of pixels or an angle; got {width!r}") from None
-    if not np.isfinite(width_pixels) or width_pixels <= 0:
-        raise RegionError(f"width must be positive; got {width}")
-    n_across = max(1, int(round(width_pixels)))
+    scale, step, n_across = _geometry(cube, width)
     across_offsets = (np.arange(n_across) - (n_across - 1) / 2) * step  # arcsec, one pixel apart
 
     centre, across, offsets = _sample_path(vertices, scale, step)

@@ -5,7 +5,9 @@ as `cubeloupe.analysis.pv_slice` takes it) with a width across it in pixels
 or arcsec. While it is being clicked it is drawn dashed; a finished path
 stays drawn on the sky, solid, with its first vertex (offset zero of a
 position–velocity slice) marked, and is handed to the sky view's listeners
-as a ``"path"`` shape (see `SkyView.on_shape`).
+as a ``"path"`` shape (see `SkyView.on_shape`). When the slice averages a
+strip wider than one pixel, thin lines either side of the path show the strip
+(`show_band`, given the edges by the position–velocity tab from `path_band`).
 """
 
 import ipywidgets as w
@@ -38,7 +40,7 @@ class PathTool(w.HBox):
         Width averaged across the path, in ``width_unit``.
     width_unit : {'pixels', 'arcsec'}
     marks : list of bqplot marks
-        The draft line, its vertices, the finished path and its start.
+        The draft line, its vertices, the finished path, its start and the strip's edges.
     """
 
     vertices = List(help="Vertices [x, y] (pixels) of the path being clicked")
@@ -54,7 +56,8 @@ class PathTool(w.HBox):
         self.path_line = Lines(x=[], y=[], scales=scales, colors=[PATH_COLOR], stroke_width=2.5)
         self.path_start = Scatter(x=[], y=[], scales=scales, colors=[PATH_COLOR], default_size=48,
                                   stroke="#ffffff", names=[], display_names=False)
-        self.marks = [self.path_line, self.path_start, self.draft_line, self.draft_points]
+        self.band_lines = Lines(x=[], y=[], scales=scales, colors=[PATH_COLOR], stroke_width=1.0, opacities=[0.9])
+        self.marks = [self.band_lines, self.path_line, self.path_start, self.draft_line, self.draft_points]
         self.finish_button = w.Button(description="Finish path", icon="check", layout=w.Layout(width="112px"),
                                       tooltip="End the path you are clicking (or double-click its last point)")
         self.finish_button.add_class("cubeloupe-finish-path")
@@ -117,6 +120,15 @@ class PathTool(w.HBox):
         """Forget the finished path and the one being clicked."""
         self.vertices = []
         self.path = []
+        self.show_band([], [])
+
+    def show_band(self, one_side, other_side):
+        """Draw the strip's edges: pixel (x, y) of each path segment's two ends on each side (see `path_band`)."""
+        pairs = [np.asarray(side, dtype=float).reshape(-1, 2, 2) for side in (one_side, other_side)]
+        pieces = np.concatenate(pairs) if sum(len(p) for p in pairs) else np.empty((0, 2, 2))
+        with self.sky.figure.hold_sync():
+            self.band_lines.x = pieces[:, :, 0] if len(pieces) else []
+            self.band_lines.y = pieces[:, :, 1] if len(pieces) else []
 
     def _draw_draft(self, change=None):
         xy = np.asarray(self.vertices, dtype=float).reshape(-1, 2)

@@ -168,3 +168,22 @@ def test_masked_cube_takes_the_spectral_cube_path(random_cube):
     # Samples on pixel centres are the pixels themselves; masked pixels are blank.
     expected = np.where(data > 0, data, np.nan)[:, 4, 4:21]
     assert_allclose(pv.data.value, expected, rtol=1e-6)
+
+
+def test_band_edges_lie_half_the_averaged_width_either_side_of_the_path(random_cube):
+    """The strip drawn on the sky holds the averaged samples: n samples one pixel apart, each one pixel wide,
+    reach n/2 pixels either side of the centre line, perpendicular to it (plane geometry; square pixels)."""
+    from cubeloupe.analysis import path_band
+
+    cube, _, _ = random_cube
+    start, end, corner = np.array([5.0, 6.0]), np.array([30.0, 20.0]), np.array([30.0, 28.0])
+    one, other = path_band(cube, [tuple(start), tuple(end), tuple(corner)], width=0.75 * u.arcsec)  # 3 pixels
+    assert one.shape == other.shape == (4, 2)
+    for (a, b), (p, q) in (((start, end), (0, 1)), ((end, corner), (2, 3))):
+        direction = (b - a) / np.hypot(*(b - a))
+        normal = np.array([-direction[1], direction[0]])
+        for edge in (one, other):
+            assert_allclose(edge[[p, q]] - [a, b], np.outer([1, 1], normal) * np.sign(
+                np.dot(edge[p] - a, normal)) * 1.5, atol=1e-9)
+        assert np.dot(one[p] - a, normal) == pytest.approx(-np.dot(other[p] - a, normal))
+    assert all(e.shape == (0, 2) for e in path_band(cube, [tuple(start), tuple(end)], width=1))

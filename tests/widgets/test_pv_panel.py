@@ -111,3 +111,34 @@ def test_fits_export_is_the_slice_and_never_replaces_a_file(loupe, tmp_path):
     panel.save_button.click()
     assert panel.status.level == "error" and "exists already" in panel.status.message
     assert (tmp_path / "pv.fits").read_bytes() == before
+
+
+def test_colour_bar_reads_in_the_cube_unit_over_the_image_limits(loupe):
+    _draw_path(loupe)
+    panel = loupe.pv_panel
+    data = panel.slice.data.value
+    low, high = panel.limits
+    # The limits are the 0.5 and 99.5 percentiles of the slice (numpy's, as the caption says).
+    assert_allclose([low, high], np.nanpercentile(data, [0.5, 99.5]), rtol=1e-5)
+    assert panel.bar_axis.label == panel.slice.data.unit.to_string() == "Jy / beam"
+    assert (panel.bar_scale.min, panel.bar_scale.max) == (low, high) == (panel.color_scale.min, panel.color_scale.max)
+    assert tuple(panel.bar_image.y) == (low, high)
+    assert np.nanmin(panel.image.image) >= low and np.nanmax(panel.image.image) <= high
+    assert panel.colorbar in panel.figure_row.children
+
+
+def test_width_is_drawn_on_the_sky_and_a_new_width_slices_again(loupe, line_cube):
+    from cubeloupe.analysis import path_band
+
+    _draw_path(loupe)
+    tool, panel = loupe.sky_view.path_tool, loupe.pv_panel
+    assert len(tool.band_lines.x) == 0, "one pixel wide: the path alone"
+    tool.width_input.value = 3.0
+    assert panel.width == 3.0 and panel.slice.width == 3.0
+    assert_array_equal(panel.slice.data.value, pv_slice(open_cube(line_cube), PATH, width=3).data.value)
+    one, other = path_band(open_cube(line_cube), PATH, width=3)
+    drawn = np.asarray(tool.band_lines.x)
+    assert drawn.shape == (4, 2), "two segments, an edge either side of each"
+    assert_allclose(drawn, np.concatenate([one, other])[:, 0].reshape(4, 2))
+    assert_allclose(np.asarray(tool.band_lines.y), np.concatenate([one, other])[:, 1].reshape(4, 2))
+    assert tool.band_lines in loupe.sky_view.figure.marks
