@@ -84,7 +84,7 @@ from .population import PopulationComponent, PopulationDiagram, population_diagr
 from .lte_model import lte_lines, lte_spectrum
 from .population_figure import SPIN_STYLES, population_figure, spin_group, write_population_figure
 from .pv_slice import PVSlice, path_band, pv_slice
-from .channel_maps import ChannelPanels, channel_maps, channel_panels
+from .channel_maps import DEFAULT_CONTOURS, ChannelPanels, channel_maps, channel_panels
 
 __all__ = [
     *_errors_all,
@@ -120,7 +120,7 @@ __all__ = [
     "smoothing_kernel", "with_channel_correlation",
     "GaussianComponent", "GaussianFit", "HyperfineSolution", "fit_gaussians", "hyperfine_lines",
     "correlated_line_errors", "correlated_measurement_table",
-    "PVSlice", "path_band", "pv_slice", "ChannelPanels", "channel_maps", "channel_panels",
+    "PVSlice", "path_band", "pv_slice", "DEFAULT_CONTOURS", "ChannelPanels", "channel_maps", "channel_panels",
     "STATISTICAL_ORTHO_PARA", "line_intensity", "molecular_mass", "spin_partition_function",
     "upper_level_population", "PopulationComponent", "PopulationDiagram", "population_diagram",
     "lte_lines", "lte_spectrum", "LINE_INTENSITY_COLUMNS", "read_line_intensities",

@@ -35,7 +35,7 @@ def test_without_a_line_window_the_panel_says_what_to_do(loupe):
     assert "No line window yet" in panel.hint.value
     assert panel.make() is None
     assert panel.status.level == "warning" and "drag across the line" in panel.status.message
-    assert panel.figure is None and all(b.disabled for b in panel.save_buttons)
+    assert panel.panels is None and panel.figure_for_files is None and all(b.disabled for b in panel.save_buttons)
 
 
 @pytest.mark.parametrize("average", [True, False])
@@ -51,8 +51,9 @@ def test_figure_is_the_analysis_channel_maps_of_the_suite_window(loupe, line_cub
     assert_array_equal(panel.panels.images.value, expected.images.value)
     assert panel.panels.channels == expected.channels
     assert_allclose(panel.panels.centers.to_value(u.km / u.s), expected.centers.to_value(u.km / u.s))
-    assert len(panel.figure.axes) == 9 + 1, "nine panels and the colour bar"
-    assert panel.png.startswith(PNG_SIGNATURE) and panel.image.value == panel.png
+    # The figure for papers is channel_maps of the same inputs, made when a file is written.
+    assert len(panel.figure_for_files.axes) == 9 + 1, "nine panels and the colour bar"
+    assert_array_equal(panel.figure_for_files.channel_panels.images.value, expected.images.value)
     if not average:
         assert all(stop - start == 1 for start, stop in panel.panels.channels)
 
@@ -100,3 +101,53 @@ def test_png_and_pdf_are_written_and_never_replaced_unless_asked(loupe, tmp_path
     assert panel.status.level == "info" and "Written" in panel.status.message
     written = sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(("maps", ".cubeloupe")))
     assert written == ["maps.pdf", "maps.png"], "no temporary file is left"
+
+
+def test_panels_on_screen_are_the_binned_images_on_one_colour_scale_with_rms_contours(loupe, line_cube):
+    """The tab draws channel_panels' images side by side: one linear colour scale over the 0.5-99.9 percentiles
+    of all panels (as channel_maps), contours at the same rms multiples, a label per panel, the beam."""
+    from cubeloupe.analysis import DEFAULT_CONTOURS, contour_paths, display_limits, stretched
+
+    mark_ranges(loupe)
+    panel = loupe.channel_map_panel
+    panel.n = 4
+    panel.make(wait=True)
+    assert panel.state == "done", panel.status.message
+    images = panel.panels.images.value
+    low, high = panel.limits
+    assert (low, high) == display_limits(images, 0.5, 99.9)
+    # numpy's percentiles of every finite pixel (the test cube is small enough to use them all).
+    assert_allclose([low, high], np.nanpercentile(images, [0.5, 99.9]), rtol=1e-5)
+    ny, nx = images.shape[1:]  # 4 panels on a 2 x 2 grid; small panels are shown unbinned
+    gap = max(2, nx // 40)
+    mosaic = np.asarray(panel.image.image)
+    assert mosaic.shape == (2 * ny + gap, 2 * nx + gap)
+    lower_left, top_left = mosaic[:ny, :nx], mosaic[ny + gap:, :nx]
+    assert_allclose(top_left, stretched(images[0], low, high), equal_nan=True)
+    assert_allclose(lower_left, stretched(images[2], low, high), equal_nan=True)
+    assert np.isnan(mosaic[ny:ny + gap]).all(), "a blank gap between rows of panels"
+    assert panel.bar_axis.label == "Jy / beam" and (panel.bar_scale.min, panel.bar_scale.max) == (low, high)
+    assert list(panel.labels.text) == [f"{c:.1f} km/s" for c in panel.panels.centers.to_value(u.km / u.s)]
+    # Contours: the points of the first panel at 3 x rms are contourpy's (via contour_paths), shifted to its place.
+    rms = panel.panels.rms.value
+    (x, y), = contour_paths(images[0], [DEFAULT_CONTOURS[0] * rms])
+    assert x.size, "noise reaches 3 x rms somewhere in a panel"
+    assert_allclose(np.asarray(panel.contours.x)[:x.size], x, equal_nan=True)
+    assert_allclose(np.asarray(panel.contours.y)[:y.size], y + ny + gap, equal_nan=True)
+    assert len(panel.beam.x) > 0 and np.nanmax(panel.beam.x) < nx, "the beam in the lower-left panel"
+    assert panel.figure_row.layout.display == ""
+
+
+def test_maps_can_be_remade_from_what_they_were_made_with(loupe, line_cube):
+    """A session or script remakes the maps from `made_with`, even after the suite's window moved on."""
+    mark_ranges(loupe)
+    panel = loupe.channel_map_panel
+    panel.n, panel.average, panel.label_in = 6, False, "frequency"
+    panel.make(wait=True)
+    record, first = dict(panel.made_with), panel.panels
+    low, high = loupe.line_window
+    loupe.line_window = [low, (low + high) / 2]
+    assert "another window or velocity frame" in panel.hint.value
+    panel.make(wait=True, record=record)
+    assert_array_equal(panel.panels.images.value, first.images.value) and panel.made_with == record
+    assert record["n"] == 6 and record["average"] is False and record["label_in"] == "frequency"
