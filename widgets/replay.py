@@ -4,8 +4,11 @@
 imports, `open_cube`, the regions exactly as the suite uses them (the pixel
 shape on the grid it was drawn on, each with its sky-coordinate equivalent
 beside it for another grid of the same field), `region_spectrum`,
-`measurement_table` and `moment_maps` with the suite's own parameters, and the
-`Loupe` that shows the same state again. Run top to bottom in a fresh
+`measurement_table` and `moment_maps` with the suite's own parameters, the
+position–velocity slice (`pv_slice`), the channel maps (`channel_maps`), the
+population diagrams of the ticked lines (`population_diagram`, and `lte_spectrum`
+when the LTE prediction is drawn), and the `Loupe` that shows the same state
+again. Run top to bottom in a fresh
 interpreter, it reproduces the suite's measurement table and moment maps
 exactly: the same functions are called with the same float64 values (every
 float is written with Python's shortest round-tripping repr).
@@ -26,7 +29,7 @@ import astropy.units as u
 import numpy as np
 from regions import PixelRegion
 
-from cubeloupe.analysis import display_axis
+from cubeloupe.analysis import CubeloupeError, display_axis, find_line
 
 from .session import MOMENT_SETTINGS, SessionState, drawn_shape, restore_steps
 
@@ -229,6 +232,96 @@ def _significance_lines(loupe, made):
             "shown_m1, shown_m2 = within_window(shown.m1, shown.m2, moments.window)"]
 
 
+def _pv_section(state):
+    """The position–velocity slice of the PV tab (#18): `pv_slice` along its path, width and channels."""
+    pv = state.views.get("pv_panel", {})
+    if not pv.get("path"):
+        return ["# No position–velocity slice: no path was drawn on the sky."]
+    width = f"{pv['width']!r} * u.arcsec" if pv["width_unit"] == "arcsec" else repr(pv["width"])
+    window = "line_window" if pv["only_line_window"] and state.settings["line_window"] else "None"
+    return [f"# The position–velocity slice along the path drawn on the sky (pixels of window {pv['path_window']}),",
+            f"# averaged across {pv['width']:g} {pv['width_unit']}, over "
+            f"{'the line window' if window != 'None' else 'the whole band'}.",
+            f"pv_path = {pv['path']!r}",
+            _wrapped("pv = ", f"pv_slice(cubes[{pv['path_window']}], pv_path, width={width}, window={window}, "
+                              "rest_frequency=rest_frequency, z=z, convention=convention)")]
+
+
+def _channel_map_section(state):
+    """The channel maps shown in their tab (#18), made as they were made (`channel_maps`, the figure for papers)."""
+    made = state.channel_maps
+    if made is None:
+        return ["# No channel maps were made in the suite."]
+    unit = "None" if made["label_in"] == "velocity" else "u.GHz"
+    return [f"# The channel maps of window {made['window']} as made in the suite (a matplotlib figure for papers;",
+            "# channel_map_figure.channel_panels holds the images, e.g. channel_map_figure.savefig('maps.pdf')).",
+            "channel_map_figure = channel_maps(",
+            f"    cubes[{made['window']}], window={_ghz(made['line_window'])}, n={made['n']!r}, "
+            f"average={made['average']!r},",
+            f"    rest_frequency={_rest_code(made['rest_frequency'])}, z={made['z']!r}, "
+            f"convention={made['convention']!r}, spectral_unit={unit},",
+            ")"]
+
+
+def _species(name):
+    try:
+        return str(find_line(name)["species"])
+    except CubeloupeError:
+        return None
+
+
+def _population_section(loupe, state):
+    """The population diagrams of the ticked lines (#16) and the LTE prediction drawn over the spectra."""
+    excitation = state.views.get("excitation_panel", {})
+    picked = excitation.get("picked") or []
+    if not picked:
+        return ["# No population diagram: no measured line was ticked."]
+    s = state.settings
+    lines = ["# The lines ticked for the population diagram, with the fluxes measured in the suite (region, window;",
+             f"# an upper limit is {excitation['limit_sigma']!r} x its error).",
+             "picked = ["] + [f"    {item!r}," for item in picked] + ["]", "diagrams = {}"]
+    species = list(dict.fromkeys(_species(item["line"]) for item in picked))
+    for name in species:
+        rows = [item for item in picked if _species(item["line"]) == name]
+        if name is None or len({item["flux_unit"] for item in rows}) > 1:
+            lines.append(f"# {len(rows)} ticked line(s) could not be fitted in the suite (see its message).")
+            continue
+        unit = rows[0]["flux_unit"]
+        options = f"spin={excitation['spin']!r}"
+        if u.Unit(unit).is_equivalent(u.Jy * u.km / u.s):
+            options += f", z=z, magnification={s['magnification']!r}, cosmology={s['cosmology']!r}"
+        lines += [f"rows = [item for item in picked if item['line'] in {[item['line'] for item in rows]!r}]",
+                  f"diagrams[{name!r}] = population_diagram(QTable({{",
+                  "    'line': [item['line'] for item in rows],",
+                  f"    'flux': [item['flux'] for item in rows] * u.Unit({unit!r}),",
+                  f"    'flux_error': [item['flux_error'] for item in rows] * u.Unit({unit!r}),",
+                  "    'upper_limit': [item['upper_limit'] for item in rows],",
+                  f"}}), {options})"]
+    return lines + _prediction_lines(loupe, state, excitation)
+
+
+def _prediction_lines(loupe, state, excitation):
+    """`lte_spectrum` of the prediction drawn over the spectra, one per window (as the suite draws it)."""
+    name = excitation.get("prediction_species", "")
+    diagram = getattr(getattr(loupe, "excitation_panel", None), "diagrams", {}).get(name)
+    if not excitation.get("show_prediction") or diagram is None:
+        return ["# The LTE prediction is not drawn over the spectra."]
+    s = state.settings
+    if np.isfinite(diagram.total_number.value):
+        amount = (f"total_number=10 ** {excitation['prediction_amount']!r}, magnification={s['magnification']!r}, "
+                  f"cosmology={s['cosmology']!r}")
+    else:
+        amount = f"column_density=10 ** {excitation['prediction_amount']!r} / u.cm ** 2"
+    ratio = f", ortho_para_ratio=diagrams[{name!r}].ortho_para_ratio" if np.isfinite(diagram.ortho_para_ratio) else ""
+    return ["# The LTE prediction drawn over the spectra: its spectrum on every window's channels.",
+            "prediction = [",
+            f"    lte_spectrum(frequency_axis(cube).to(u.GHz), [{name!r}], temperature="
+            f"{excitation['prediction_temperature']!r} * u.K,",
+            f"                 fwhm={excitation['prediction_fwhm']!r} * u.km / u.s, z=z, {amount}{ratio})",
+            "    for cube in cubes",
+            "]"]
+
+
 def _loupe_section(loupe, state):
     s = state.settings
     arguments = ", catalog=catalog" if state.catalog else ""
@@ -262,6 +355,10 @@ def _loupe_section(loupe, state):
             lines += [f"loupe.{n} = {current[n]!r}" for n in differs]
         elif (target, name) == ("loupe", "window"):
             show(value)
+        elif target == "channel_maps":
+            lines.append("loupe.channel_map_panel.make(wait=True, record=" + repr(value) + ")")
+        elif (target, name) in (("pv_panel", "path"), ("excitation_panel", "picked")) and value:
+            lines.append(f"loupe.{target}.{name} = {'pv_path' if name == 'path' else 'picked'}")
         elif target == "loupe":
             lines.append(f"loupe.{name} = {name}" if name in ("z", "convention") else f"loupe.{name} = {value!r}")
         else:
@@ -276,6 +373,13 @@ def _analysis_names(loupe, state):
     smoothed = _smoothed_expression(loupe)
     names += [name for name in ("correlated_measurement_table", "smooth_spectrum", "with_channel_correlation")
               if smoothed and (name.startswith("correlated") or name + "(" in smoothed)]
+    views = state.views
+    names += ["pv_slice"] if views.get("pv_panel", {}).get("path") else []
+    names += ["channel_maps"] if state.channel_maps is not None else []
+    if views.get("excitation_panel", {}).get("picked"):
+        names.append("population_diagram")
+        if "lte_spectrum(" in "\n".join(_population_section(loupe, state)):
+            names += ["frequency_axis", "lte_spectrum"]
     if state.moments is not None and state.moments["line_free"]:
         names.append("significant_moments")
     return sorted(names)
@@ -323,6 +427,7 @@ def to_code(loupe):
               "import astropy.units as u",
               "import numpy as np",
               "from astropy.coordinates import SkyCoord",
+              *(["from astropy.table import QTable"] if state.views.get("excitation_panel", {}).get("picked") else []),
               "from regions import (",
               "    CirclePixelRegion, CircleSkyRegion, EllipsePixelRegion, EllipseSkyRegion, PixCoord, PointSkyRegion,",
               "    PolygonPixelRegion, PolygonSkyRegion, RectanglePixelRegion, RectangleSkyRegion,",
@@ -347,6 +452,7 @@ def to_code(loupe):
               f"baseline_order = {s['baseline_order']!r}",
               ""]
     sections = [_region_section(loupe, state), _measure_section(loupe, state), _moment_section(loupe, state),
+                _pv_section(state), _channel_map_section(state), _population_section(loupe, state),
                 _loupe_section(loupe, state)]
     body = []
     for section in sections:

@@ -6,21 +6,30 @@ before anything is built) and turned into a new suite with
 `SessionState.restore`. `session_state` gives the same description as a plain
 dict, for the metadata of exported files.
 
-The file format ("cubeloupe-session", version 1) is our own::
+The file format ("cubeloupe-session", version 2) is our own::
 
     {
       "format": "cubeloupe-session",
-      "version": 1,
+      "version": 2,
       "cubeloupe_version": "0.1.0",
       "cubes": [{"path": "disk.fits", "absolute": "/data/disk.fits", "shape": [64, 72, 72]}],
       "settings": {"window": 0, "channel": 31, "z": 0.0, ... every setting of the suite ...},
       "regions": [{"name": "core", "color": "#...", "kind": "box", "ra": ..., ...,
                    "drawn": {"window": 0, "shape": "rectangle", "x": ..., "y": ..., ...}}],
-      "views": {"sky_view": {"stretch": "asinh", ...}, "line_overlay": {...}, ...},
+      "views": {"sky_view": {"stretch": "asinh", ...}, "line_overlay": {...}, ...,
+                "pv_panel": {"path": [[x, y], ...], "width": 3.0, ...}, "channel_map_panel": {...},
+                "excitation_panel": {"picked": [...], "show_prediction": true, ...}},
       "moments": {"window": 0, "line_window": [...], ...} or null,
+      "channel_maps": {"window": 0, "line_window": [...], "n": 16, ...} or null,
       "catalog": [{"path": "my_lines.ecsv", "absolute": "/data/my_lines.ecsv"}],
       "client": false
     }
+
+Version 2 added the position–velocity path (``views.pv_panel``, whose width is the sky's path
+tool's), the channel-map settings and what the maps shown were made from (``channel_maps``), and
+the population diagram's ticked lines and LTE prediction (``views.excitation_panel``). Version 1
+files still open: what they lack takes its default (the line overlay's families too, for a file
+written before the catalog had families).
 
 Cube paths are stored relative to the session file (``path``) and as given
 (``absolute``); reading tries the relative one first, so a folder of cubes and
@@ -141,6 +150,8 @@ class SessionState:
         ``in_memory`` (the type of a table given in memory, which a session cannot hold).
     client : bool
         Whether the suite sent its moment maps to a dask.distributed client (the client is not saved).
+    channel_maps : dict or None
+        What the channel maps shown were made from (`ChannelMapPanel.made_with`); None without maps.
     cubeloupe_version : str
     version : int
         The session format version.
@@ -153,6 +164,7 @@ class SessionState:
     moments: object = None
     catalog: tuple = ()
     client: bool = False
+    channel_maps: object = None
     cubeloupe_version: str = dataclasses.field(default_factory=cubeloupe_version)
     version: int = SESSION_VERSION
 
@@ -178,7 +190,9 @@ class SessionState:
         return cls(cubes=cubes, settings=settings, regions=tuple(regions), views=views,
                    moments=moment_settings(loupe),
                    catalog=_catalog_records(getattr(loupe, "catalog_argument", None), relative_to),
-                   client=getattr(loupe, "client", None) is not None)
+                   client=getattr(loupe, "client", None) is not None,
+                   channel_maps=_plain(dict(loupe.channel_map_panel.made_with)) or None
+                   if hasattr(loupe, "channel_map_panel") else None)
 
     # ------------------------------------------------------------- to and from JSON
     def to_dict(self):
@@ -187,7 +201,8 @@ class SessionState:
                 "cubes": [dict(c) for c in self.cubes], "settings": dict(self.settings),
                 "regions": [dict(r) for r in self.regions], "views": {k: dict(v) for k, v in self.views.items()},
                 "moments": None if self.moments is None else dict(self.moments),
-                "catalog": [dict(c) for c in self.catalog], "client": self.client}
+                "catalog": [dict(c) for c in self.catalog], "client": self.client,
+                "channel_maps": None if self.channel_maps is None else dict(self.channel_maps)}
 
     def to_json(self):
         """The session file's text (see `session_text`)."""
@@ -199,7 +214,8 @@ class SessionState:
         parts = check_session(data, where)
         return cls(cubes=tuple(parts["cubes"]), settings=parts["settings"], regions=tuple(parts["regions"]),
                    views=parts["views"], moments=parts["moments"], catalog=tuple(parts["catalog"]),
-                   client=parts["client"], cubeloupe_version=parts["cubeloupe_version"],
+                   client=parts["client"], channel_maps=parts["channel_maps"],
+                   cubeloupe_version=parts["cubeloupe_version"],
                    version=parts["version"])
 
     # ------------------------------------------------------------- to a suite
@@ -246,6 +262,8 @@ class SessionState:
                     _add_region(loupe, value)
                 elif target == "moments":
                     _remake_moments(loupe, value)
+                elif target == "channel_maps":
+                    _remake_channel_maps(loupe, value)
                 else:
                     widget = loupe if target == "loupe" else getattr(loupe, target)
                     _set(widget, target, name, value)
@@ -316,7 +334,8 @@ def restore_steps(state):
     """The steps that rebuild ``state`` on a new suite, in order: (target, name, value).
 
     ``target`` is 'loupe', a part's attribute name ('sky_view', ...), 'region' (value: the
-    region record) or 'moments' (value: the moment settings). `SessionState.restore` runs them and
+    region record), 'moments' (value: the moment settings) or 'channel_maps' (value: what the
+    channel maps were made from; last, after the parts' settings). `SessionState.restore` runs them and
     `cubeloupe.widgets.replay.to_code` writes them out, so the two cannot disagree.
     """
     s, views = state.settings, state.views
@@ -334,6 +353,8 @@ def restore_steps(state):
         for name, _, _ in traits:
             if (part, name) != ("line_overlay", "velocity_range") and name in views.get(part, {}):
                 steps.append((part, name, views[part][name]))
+    if state.channel_maps is not None:
+        steps.append(("channel_maps", "made_with", state.channel_maps))
     return [step for step in steps if step[2] is not None or step[1] in ("clip", "max_E_up", "vmin", "vmax")]
 
 
@@ -374,6 +395,13 @@ def _remake_moments(loupe, recorded):
     # it shows, and the suite (as of #19) does not give them back after a switch away and back.
 
 
+def _remake_channel_maps(loupe, recorded):
+    panel = loupe.channel_map_panel
+    panel.make(wait=True, record=recorded)
+    if panel.state != "done":
+        raise SessionError(f"the session's channel maps could not be remade: {panel.status.message}")
+
+
 def _check_restored(loupe, state):
     """Read back every setting: a restored suite that differs from the session is refused."""
     for name, _, _ in LOUPE_SETTINGS:
@@ -400,7 +428,7 @@ def session_state(loupe, relative_to=None):
     -------
     dict
         JSON-ready: ``format``, ``version``, ``cubeloupe_version``, ``cubes``, ``settings``, ``regions``,
-        ``views``, ``moments``, ``catalog``, ``client``.
+        ``views``, ``moments``, ``catalog``, ``client``, ``channel_maps``.
     """
     return SessionState.from_loupe(loupe, relative_to=relative_to).to_dict()
 

@@ -15,11 +15,14 @@ from regions import CirclePixelRegion, EllipsePixelRegion, PixCoord, PolygonPixe
 
 from cubeloupe.analysis import AXIS_KINDS, CONVENTIONS, MAX_ORDER, CubeloupeError
 
-__all__ = ["LOUPE_SETTINGS", "MOMENT_SETTINGS", "SESSION_FORMAT", "SESSION_VERSION", "VIEW_SETTINGS",
-           "SessionError", "check_session", "cubeloupe_version", "drawn_shape", "pixel_shape", "session_text"]
+__all__ = ["CHANNEL_MAP_FIELDS", "LOUPE_SETTINGS", "MOMENT_SETTINGS", "SESSION_FORMAT", "SESSION_VERSION",
+           "VIEW_SETTINGS", "SessionError", "check_session", "cubeloupe_version", "drawn_shape", "pixel_shape", "session_text"]
 
 SESSION_FORMAT = "cubeloupe-session"
-SESSION_VERSION = 1
+#: Version 2 (#16, #18) added the position–velocity path, the channel maps and the population diagram
+#: (``views.pv_panel``, ``views.channel_map_panel``, ``views.excitation_panel``, ``channel_maps``); a
+#: version 1 file opens with those at their defaults.
+SESSION_VERSION = 2
 
 
 class SessionError(CubeloupeError, ValueError):
@@ -73,6 +76,21 @@ def _numbers(value):
 
 def _texts(value):
     return isinstance(value, list) and all(isinstance(v, str) for v in value)
+
+
+def _path(value):
+    return isinstance(value, list) and (value == [] or (len(value) >= 2 and all(_is_range(v) for v in value)))
+
+
+#: The fields of a line ticked in the population diagram (`ExcitationPanel.picked`) and their checks.
+_PICKED_FIELDS = {"region": lambda v: isinstance(v, str), "window": lambda v: _count(v), "line": lambda v: bool(v)
+                  and isinstance(v, str), "flux": _is_number, "flux_error": lambda v: _is_number(v) and v >= 0,
+                  "flux_unit": lambda v: isinstance(v, str), "upper_limit": _flag}
+
+
+def _picked(value):
+    return isinstance(value, list) and all(isinstance(item, dict) and set(item) == set(_PICKED_FIELDS) and all(
+        check(item[key]) for key, check in _PICKED_FIELDS.items()) for item in value)
 
 
 def _one_of(choices):
@@ -150,7 +168,43 @@ VIEW_SETTINGS = {
     "fit_panel": (
         ("model", _text, "'none', '1', '2', '3' or 'hyperfine: <group>'"),
     ),
+    # Version 2 (#16, #18). The path last: it takes the slice, with the width and window set before it.
+    "pv_panel": (
+        ("only_line_window", _flag, "true or false"),
+        ("width_unit", _one_of(("pixels", "arcsec")), "'pixels' or 'arcsec'"),
+        ("width", lambda v: _is_number(v) and v > 0, "a positive width in width_unit"),
+        ("path_window", _count, "a window number"),
+        ("path", _path, "[] or [[x, y], ...] (pixels, two vertices or more)"),
+    ),
+    "channel_map_panel": (
+        ("n", lambda v: _count(v) and 1 <= v <= 64, "a whole number of panels from 1 to 64"),
+        ("average", _flag, "true or false"),
+        ("label_in", _one_of(("velocity", "frequency")), "'velocity' or 'frequency'"),
+    ),
+    # The ticked lines before the species of the prediction, the toggle before its temperature and amount
+    # (turning it on starts from the fit).
+    "excitation_panel": (
+        ("limit_sigma", lambda v: _is_number(v) and v > 0, "a positive signal-to-noise ratio"),
+        ("spin", _one_of(("joint", "separate")), "'joint' or 'separate'"),
+        ("picked", _picked, "a list of ticked lines, each {" + ", ".join(_PICKED_FIELDS) + "}"),
+        ("prediction_species", _text, "a species name or ''"),
+        ("show_prediction", _flag, "true or false"),
+        ("prediction_temperature", lambda v: _is_number(v) and v > 0, "a temperature in K"),
+        ("prediction_amount", _is_number, "log10 of a molecule count or column density (cm^-2)"),
+        ("prediction_fwhm", lambda v: _is_number(v) and v > 0, "a line width (FWHM) in km/s"),
+    ),
 }
+
+#: What the channel maps shown were made from (`ChannelMapPanel.made_with`; version 2).
+CHANNEL_MAP_FIELDS = (
+    ("line_window", _is_range, "[low, high] observed frequency in GHz"),
+    ("n", lambda v: _count(v) and 1 <= v <= 64, "a whole number of panels from 1 to 64"),
+    ("average", _flag, "true or false"),
+    ("label_in", _one_of(("velocity", "frequency")), "'velocity' or 'frequency'"),
+    ("rest_frequency", lambda v: _is_number(v) and v >= 0, "a rest frequency in GHz (0: the cube's RESTFRQ)"),
+    ("z", _is_number, "a finite number"),
+    ("convention", _one_of(CONVENTIONS), f"one of {sorted(CONVENTIONS)}"),
+)
 
 #: The settings moment maps are made with (recorded with the maps, which may predate later changes).
 MOMENT_SETTINGS = ("line_window", "line_free", "baseline_order", "rest_frequency", "z", "convention", "clip")
@@ -212,7 +266,9 @@ def check_session(data, where="the session"):
     -------
     dict
         ``cubes``, ``settings``, ``regions``, ``views``, ``moments``, ``catalog`` (extra line lists),
-        ``client`` (whether a dask.distributed client made the moment maps), ``cubeloupe_version`` and ``version``.
+        ``client`` (whether a dask.distributed client made the moment maps), ``channel_maps`` (what the
+        channel maps shown were made from, or None), ``cubeloupe_version`` and ``version``.
+        A field added in a later version and missing from an earlier file takes its default.
     """
     if not isinstance(data, dict):
         raise SessionError(f"{where} is not a cubeloupe session (a JSON object was expected)")
@@ -227,7 +283,7 @@ def check_session(data, where="the session"):
                            f"{data.get('cubeloupe_version', '?')}; this cubeloupe ({cubeloupe_version()}) reads "
                            f"versions up to {SESSION_VERSION}: update cubeloupe to open it")
     known = {"format", "version", "cubeloupe_version", "cubes", "settings", "regions", "views", "moments", "catalog",
-             "client"}
+             "client", "channel_maps"}
     unknown = sorted(set(data) - known)
     if unknown:
         raise SessionError(f"{where}: unknown field(s) {unknown}; a version {found} session has {sorted(known)}")
@@ -238,6 +294,11 @@ def check_session(data, where="the session"):
     settings = _checked_settings(data["settings"], len(cubes), where)
     regions = _checked_regions(data["regions"], len(cubes), where)
     views = _checked_views(data["views"], where)
+    path_window = views["pv_panel"].get("path_window", 0)
+    if path_window >= len(cubes):
+        raise SessionError(f"{where}: field 'views.pv_panel.path_window' is {path_window}, but the session names "
+                           f"{len(cubes)} cube(s) (windows 0 to {len(cubes) - 1})")
+    channel_maps = _checked_channel_maps(data.get("channel_maps"), len(cubes), where)
     moments = _checked_moments(data.get("moments"), len(cubes), where)
     catalog = _checked_catalog(data.get("catalog", []), where)
     if not isinstance(data.get("client", False), bool):
@@ -247,7 +308,7 @@ def check_session(data, where="the session"):
         raise SessionError(f"{where}: field 'settings.sky_source' is {settings['sky_source']!r} but the session "
                            "has no moment maps; set it to 'channel'")
     return {"cubes": cubes, "settings": settings, "regions": regions, "views": views, "moments": moments,
-            "catalog": catalog, "client": data.get("client", False),
+            "catalog": catalog, "client": data.get("client", False), "channel_maps": channel_maps,
             "cubeloupe_version": str(data.get("cubeloupe_version", "unknown")), "version": found}
 
 
@@ -376,6 +437,13 @@ def _checked_views(views, where):
                            f"known: {sorted(VIEW_SETTINGS)}")
     return {part: _check_fields(views.get(part, {}), table, f"views.{part}", where, required=False)
             for part, table in VIEW_SETTINGS.items()}
+
+
+def _checked_channel_maps(record, n_cubes, where):
+    if record is None:
+        return None
+    table = (("window", lambda v: _count(v) and v < n_cubes, f"a window number below {n_cubes}"),) + CHANNEL_MAP_FIELDS
+    return _check_fields(record, table, "channel_maps", where)
 
 
 def _checked_moments(moments, n_cubes, where):

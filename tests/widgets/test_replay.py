@@ -170,3 +170,66 @@ def test_moments_as_shown_lie_within_the_window(driven):
     assert np.all((m1 >= low - 1e-3) & (m1 <= high + 1e-3))
     if case == "disk":  # the disk's rotation is seen (the lensed demo's line-free windows have none)
         assert m1.size > 100 and m1.max() - m1.min() > 100
+
+
+# The newer parts (#16, #18): the script's pv_slice, channel_maps, population_diagram and lte_spectrum, written for
+# the test to compare with the suite's.
+LINE_VIEWS_RUNNER = """
+import json, runpy, sys
+import numpy as np
+ns = runpy.run_path(sys.argv[1], run_name="__main__")
+loupe, diagrams = ns["loupe"], ns["diagrams"]
+np.savez(sys.argv[2] + ".npz", pv=ns["pv"].data.value, maps=ns["channel_map_figure"].channel_panels.images.value,
+         prediction=np.concatenate([p.value for p in ns["prediction"]]),
+         restored_pv=loupe.pv_panel.slice.data.value, restored_maps=loupe.channel_map_panel.panels.images.value)
+with open(sys.argv[2] + ".json", "w") as out:
+    json.dump({"T": {k: float(d.temperature.value) for k, d in diagrams.items()},
+               "N": {k: float(d.column_density.value) for k, d in diagrams.items()},
+               "restored_picked": loupe.excitation_panel.picked,
+               "restored_prediction": [loupe.excitation_panel.prediction_temperature,
+                                       loupe.excitation_panel.prediction_amount],
+               "restored_made_with": loupe.channel_map_panel.made_with}, out)
+"""
+
+
+def test_script_remakes_the_pv_slice_channel_maps_population_diagram_and_prediction(tmp_path):
+    """Run in a fresh interpreter, the script's pv_slice, channel_maps, population_diagram and lte_spectrum equal
+    the suite's bit for bit (the same public functions on the same float64 values), and its Loupe shows them."""
+    import astropy.units as u
+
+    loupe = drive("disk")
+    loupe.pv_panel.set_path([[3.0, 4.0], [40.5, 38.0], [60.0, 30.0]], width=0.5 * u.arcsec, window=0)
+    panel = loupe.channel_map_panel
+    panel.n, panel.label_in = 9, "frequency"
+    panel.make(wait=True)
+    excitation = loupe.excitation_panel
+    excitation.prediction_delay = 0
+    # Integrated intensities of a CO ladder (K km/s), as a user might have measured them.
+    excitation.picked = [{"region": "box", "window": 0, "line": name, "flux": flux, "flux_error": 0.1,
+                          "flux_unit": "K km / s", "upper_limit": False}
+                         for name, flux in (("CO J=1-0", 1.2), ("CO J=2-1", 3.9), ("CO J=3-2", 6.1))]
+    excitation.show_prediction = True
+    excitation.prediction_temperature = 37.5
+    assert panel.state == "done" and loupe.pv_panel.slice is not None and "CO" in excitation.diagrams
+    code = to_code(loupe)
+    for call in ("pv_slice(", "channel_maps(", "population_diagram(", "lte_spectrum("):
+        assert call in code
+    script, runner = tmp_path / "line_views.py", tmp_path / "runner.py"
+    script.write_text(code)
+    runner.write_text(LINE_VIEWS_RUNNER)
+    done = subprocess.run([sys.executable, str(runner), str(script), str(tmp_path / "out")],
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr[-3000:]
+    made = json.loads((tmp_path / "out.json").read_text())
+    arrays = np.load(tmp_path / "out.npz")
+    np.testing.assert_array_equal(arrays["pv"], loupe.pv_panel.slice.data.value)
+    np.testing.assert_array_equal(arrays["restored_pv"], loupe.pv_panel.slice.data.value)
+    np.testing.assert_array_equal(arrays["maps"], panel.panels.images.value)
+    np.testing.assert_array_equal(arrays["restored_maps"], panel.panels.images.value)
+    assert made["restored_made_with"] == panel.made_with
+    d = excitation.diagrams["CO"]
+    assert made["T"] == {"CO": float(d.temperature.value)} and made["N"] == {"CO": float(d.column_density.value)}
+    curves, _ = excitation.prediction()
+    np.testing.assert_array_equal(arrays["prediction"], np.concatenate([values for _, values in curves]))
+    assert made["restored_picked"] == excitation.picked
+    assert made["restored_prediction"] == [37.5, excitation.prediction_amount]

@@ -5,6 +5,7 @@ import os
 import shutil
 from pathlib import Path
 
+import astropy.units as u
 import numpy as np
 import pytest
 from regions import PixCoord, RectanglePixelRegion
@@ -54,11 +55,17 @@ def test_every_setting_a_user_can_change_is_in_the_session():
     base = set(w.VBox.class_trait_names())
     loupe_names = {n for n in Loupe.class_trait_names() if n not in base}
     assert loupe_names - saved - {"regions", "moments", "measurements", "velocity_reference"} == set()
+    # The newer parts (#16, #18): a PV path's width is the sky path tool's (saved through the PV tab, linked both
+    # ways); the path being clicked is a gesture; the PV tab's axis follows the suite's axis choice.
+    not_settings |= {"vertices", "axis"}
     for part in ("sky_view", "line_overlay", "spectrum_view", "region_list", "moment_panel", "channel_bar",
-                 "measurement_table"):
+                 "measurement_table", "smoothing", "fit_panel", "path_tool", "pv_panel", "channel_map_panel",
+                 "excitation_panel"):
         cls = {"sky_view": "SkyView", "line_overlay": "LineOverlay", "spectrum_view": "SpectrumView",
                "region_list": "RegionList", "moment_panel": "MomentPanel", "channel_bar": "ChannelBar",
-               "measurement_table": "MeasurementTable"}[part]
+               "measurement_table": "MeasurementTable", "smoothing": "SmoothingChoice", "fit_panel": "FitPanel",
+               "path_tool": "PathTool", "pv_panel": "PVPanel", "channel_map_panel": "ChannelMapPanel",
+               "excitation_panel": "ExcitationPanel"}[part]
         import cubeloupe.widgets as widgets
         traits = getattr(widgets, cls).class_traits()
         names = {n for n, t in traits.items() if n not in base and not n.startswith("_")
@@ -95,6 +102,27 @@ def _set_everything(loupe):
     loupe.sky_view.velocity_palette = [p for p in type(loupe.sky_view).class_traits()["velocity_palette"].values
                                        if p != loupe.sky_view.velocity_palette][0]
     loupe.channel_bar.play_interval = 120
+    # The newer parts (#16, #18): smoothing and fit, a PV path 1.5 arcsec wide over the whole band, channel maps of
+    # 9 single channels labelled in frequency, and a population diagram of three CO lines with its prediction.
+    loupe.smoothing.kernel = "boxcar"
+    loupe.smoothing.width = 5.0
+    loupe.fit_panel.model = "1"
+    loupe.pv_panel.only_line_window = False
+    loupe.pv_panel.set_path([[3.0, 4.0], [20.5, 18.0], [30.0, 10.0]], width=1.5 * u.arcsec, window=0)
+    assert loupe.pv_panel.slice is not None, loupe.pv_panel.status.message
+    panel = loupe.channel_map_panel
+    panel.n, panel.average, panel.label_in = 9, False, "frequency"
+    panel.make(wait=True)
+    assert panel.state == "done", panel.status.message
+    excitation = loupe.excitation_panel
+    excitation.limit_sigma, excitation.spin = 2.5, "separate"
+    # Integrated intensities of a CO ladder (K km/s), as a user might have measured them.
+    excitation.picked = [{"region": "box", "window": 0, "line": name, "flux": flux, "flux_error": 0.1,
+                          "flux_unit": "K km / s", "upper_limit": False}
+                         for name, flux in (("CO J=1-0", 1.2), ("CO J=2-1", 3.9), ("CO J=3-2", 6.1))]
+    assert "CO" in excitation.diagrams, excitation.status.message
+    excitation.show_prediction = True
+    excitation.prediction_temperature, excitation.prediction_amount, excitation.prediction_fwhm = 42.0, 15.5, 150.0
     assert loupe.status.level != "error", loupe.status.message
 
 
@@ -117,6 +145,15 @@ def test_session_round_trips_every_setting(case, tmp_path):
     for name, shown in loupe.moment_panel.maps.items():  # as shown: moments 1 and 2 where moment 0 is significant
         same_map(again.moment_panel.maps[name].value, shown.value, loupe.moments.n_channels)
     assert SessionState.from_loupe(again).to_dict() == SessionState.from_loupe(loupe).to_dict()
+    # The newer parts give the same pictures and numbers again (#16, #18).
+    np.testing.assert_array_equal(again.pv_panel.slice.data.value, loupe.pv_panel.slice.data.value)
+    assert again.sky_view.path_tool.path == loupe.pv_panel.path and again.sky_view.path_tool.width == 1.5
+    assert again.sky_view.path_tool.width_unit == "arcsec"
+    assert again.channel_map_panel.made_with == loupe.channel_map_panel.made_with
+    np.testing.assert_array_equal(again.channel_map_panel.panels.images.value,
+                                  loupe.channel_map_panel.panels.images.value)
+    assert again.excitation_panel.diagrams["CO"].temperature == loupe.excitation_panel.diagrams["CO"].temperature
+    assert again.excitation_panel.prediction()[0][0][1].tolist() == loupe.excitation_panel.prediction()[0][0][1].tolist()
 
 
 @pytest.mark.parametrize("case", sorted(CASES))
@@ -193,7 +230,14 @@ def _tampered(saved, change):
 
 
 @pytest.mark.parametrize("change, error, match", [
-    (lambda d: d.update(version=SESSION_VERSION + 1), SessionError, "version 2.*update cubeloupe"),
+    (lambda d: d.update(version=SESSION_VERSION + 1), SessionError, f"version {SESSION_VERSION + 1}.*update cubeloupe"),
+    (lambda d: d["views"]["pv_panel"].update(path=[[1.0, 2.0]]), SessionError, r"views\.pv_panel\.path"),
+    (lambda d: d["views"]["pv_panel"].update(path_window=4), SessionError, r"views\.pv_panel\.path_window.*1 cube"),
+    (lambda d: d["views"]["channel_map_panel"].update(n=0), SessionError, r"views\.channel_map_panel\.n"),
+    (lambda d: d["views"]["excitation_panel"].update(picked=[{"line": "CO J=1-0"}]), SessionError,
+     r"views\.excitation_panel\.picked"),
+    (lambda d: d["views"]["excitation_panel"].update(spin="both"), SessionError, r"views\.excitation_panel\.spin"),
+    (lambda d: d.update(channel_maps={"window": 0}), SessionError, r"channel_maps\.line_window' is missing"),
     (lambda d: d.update(format="something else"), SessionError, "not a cubeloupe session"),
     (lambda d: d["settings"].update(z="two"), SessionError, r"settings\.z"),
     (lambda d: d["settings"].pop("line_window"), SessionError, r"settings\.line_window' is missing"),
@@ -267,6 +311,22 @@ def test_sessions_of_earlier_versions_still_open(fixture):
         for name, value in values.items():
             assert getattr(getattr(loupe, part), name) == value
     assert loupe.measurements and loupe.moments is not None
+
+
+def test_a_session_of_before_the_newer_parts_opens_with_their_defaults():
+    """The version 1 fixture predates line families (#15), PV paths, channel maps and population diagrams (#16,
+    #18): it opens with each at the default of a new suite."""
+    data = json.loads((SESSIONS / "v1-disk.cubeloupe.json").read_text())
+    assert data["version"] == 1 and "families" not in data["views"]["line_overlay"] and "pv_panel" not in data["views"]
+    loupe = Loupe.from_session(SESSIONS / "v1-disk.cubeloupe.json")
+    fresh = Loupe(demo_path("disk"), first_view=False)
+    assert loupe.line_overlay.families == fresh.line_overlay.families
+    assert loupe.line_overlay.hyperfine_components == fresh.line_overlay.hyperfine_components
+    for part in ("pv_panel", "channel_map_panel", "excitation_panel", "smoothing", "fit_panel"):
+        for name, _, _ in VIEW_SETTINGS[part]:
+            assert getattr(getattr(loupe, part), name) == getattr(getattr(fresh, part), name), (part, name)
+    assert loupe.pv_panel.slice is None and loupe.channel_map_panel.panels is None
+    assert session_state(loupe)["version"] == SESSION_VERSION and session_state(loupe)["channel_maps"] is None
 
 
 def _line_list(folder):

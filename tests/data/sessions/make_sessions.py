@@ -37,6 +37,12 @@ def driven_suite():
     loupe.sky_view.stretch = "asinh"
     loupe.sky_view.contour_source = "moment 0"
     loupe.region_list.selected = "core"
+    # Version 2 (#16, #18): smoothing, a position–velocity path 3 pixels wide, channel maps of 9 panels.
+    loupe.smoothing.kernel = "hanning"
+    loupe.pv_panel.set_path([[20.0, 22.0], [52.0, 50.0]], width=3.0, window=0)
+    loupe.channel_map_panel.n = 9
+    loupe.channel_map_panel.make(wait=True)
+    assert loupe.pv_panel.slice is not None and loupe.channel_map_panel.state == "done"
     assert loupe.status.level != "error", loupe.status.message
     return loupe
 
