@@ -42,7 +42,7 @@ __all__ = ["ChannelMapPanel", "TAB_TITLE", "PANEL_PIXELS"]
 TAB_TITLE = "Channel maps"
 MAX_PANELS = 64
 PANEL_PIXELS = 256  # largest side of a panel's image as sent to the browser (block-averaged above it)
-_SCREEN_WIDTH = 880  # px of the panels together (4 panels of 220 px), about the tab's width at 1 440 px
+_SCREEN_WIDTH = 760  # px of the panels together (4 of 190 px): with the colour bar, inside the tab at 1 440 px
 _RAMP = "ink to sand"
 _FRAME = "#9fb3c8"
 _NEGATIVE = "#bcccdc"
@@ -54,6 +54,16 @@ _NO_WINDOW = ("No line window yet: choose 'Line window' above the spectrum and d
 def _label(value, unit):
     text = unit.to_string().replace(" / ", "/")
     return f"{value:.1f} {text}" if unit.is_equivalent(u.km / u.s) else f"{value:.5f} {text}"
+
+
+def _joined(xs, ys):
+    """Contour pieces as one line, apart by NaN, with no NaN at either end (see `ChannelMapPanel._draw`)."""
+    x = np.concatenate(xs) if xs else np.empty(0)
+    y = np.concatenate(ys) if ys else np.empty(0)
+    finite = np.flatnonzero(np.isfinite(x) & np.isfinite(y))
+    if not finite.size:
+        return {"x": [], "y": []}
+    return {"x": x[finite[0]:finite[-1] + 1], "y": y[finite[0]:finite[-1] + 1]}
 
 
 class ChannelMapPanel(w.VBox):
@@ -126,18 +136,29 @@ class ChannelMapPanel(w.VBox):
         self.caption = w.HTML()
         self.caption.add_class("cubeloupe-channel-map-caption")
         self._build_figure()
-        super().__init__(children=[
-            row([self.make_button, self.n_input, self.label_choice], flex_flow="row wrap", grid_gap="8px"),
-            row([self.mode_choice], flex_flow="row wrap"),
-            self.hint, self.status, self.figure_row, self.caption,
-            row([self.name, *self.save_buttons, self.overwrite], flex_flow="row wrap", grid_gap="6px"),
-        ], **kwargs)
+        self._shown = tabs is None
+        super().__init__(children=self._parts(), **kwargs)
         self.add_class("cubeloupe-channel-map-panel")
         loupe.observe(self._show_hint, names=["line_window", "window", "z", "rest_frequency", "convention"])
         self._show_hint()
         if tabs is not None:
             tabs.children = (*tabs.children, self)
-            tabs.set_title(len(tabs.children) - 1, TAB_TITLE)
+            self._tab_index = len(tabs.children) - 1
+            tabs.set_title(self._tab_index, TAB_TITLE)
+            tabs.observe(self._on_tab, names=["selected_index"])
+
+    def _parts(self):
+        # The figure joins the page once there are maps and the tab has been shown: drawn in a hidden tab or
+        # a hidden box, bqplot would lay it out at zero width (negative sizes, console errors).
+        figure = [self.figure_row, self.caption] if self._shown and self.made_with else []
+        return [row([self.make_button, self.n_input, self.label_choice], flex_flow="row wrap", grid_gap="8px"),
+                row([self.mode_choice], flex_flow="row wrap"), self.hint, self.status, *figure,
+                row([self.name, *self.save_buttons, self.overwrite], flex_flow="row wrap", grid_gap="6px")]
+
+    def _on_tab(self, change):
+        if change.new == self._tab_index and not self._shown:
+            self._shown = True
+            self.children = self._parts()
 
     def _build_figure(self):
         self.x_scale = LinearScale(allow_padding=False, min=0.0, max=1.0)
@@ -153,25 +174,40 @@ class ChannelMapPanel(w.VBox):
         self.beam = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=1.2)
         self.labels = Label(x=[], y=[], text=[], scales=scales, colors=["#ffffff"], default_size=11,
                             align="start", x_offset=4, y_offset=13)
-        self.figure = Figure(marks=[self.image, self.negative_contours, self.contours, self.beam, self.frames,
-                                    self.labels],
-                             padding_x=0, padding_y=0, fig_margin={"top": 2, "bottom": 2, "left": 2, "right": 2},
-                             background_style={"fill": blank_color(_RAMP)},
-                             layout=w.Layout(width=f"{_SCREEN_WIDTH}px", height=f"{_SCREEN_WIDTH}px"))
-        self.figure.add_class("cubeloupe-channel-map-figure")
         self.bar_scale = LinearScale(allow_padding=False, min=0.0, max=1.0)
         self.bar_image = ImageGL(image=np.linspace(0.0, 1.0, 256, dtype=np.float32)[:, None],
                                  scales={"x": LinearScale(min=0.0, max=1.0), "y": self.bar_scale,
                                          "image": ColorScale(min=0.0, max=1.0, colors=RAMPS[_RAMP])},
                                  x=(0.0, 1.0), y=(0.0, 1.0))
         self.bar_axis = Axis(scale=self.bar_scale, side="right", label="", label_offset="50px", grid_lines="none")
+        self.figure = self.colorbar = None
+        self._figure_size = None
+        self.figure_row = w.HBox(layout=w.Layout(max_width="100%", overflow="auto"))
+        self._size_figures(_SCREEN_WIDTH, _SCREEN_WIDTH)
+
+    def _size_figures(self, width, height):
+        """The figure and its colour bar at ``width`` x ``height`` screen px (new ones when the size changes).
+
+        A bqplot figure already drawn does not lay itself out again when its layout's size changes (the
+        colour bar was drawn over the panels): a new size takes new figures, on the same marks.
+        """
+        if self._figure_size == (width, height):
+            return
+        old = [f for f in (self.figure, self.colorbar) if f is not None]
+        self.figure = Figure(marks=[self.image, self.negative_contours, self.contours, self.beam, self.frames,
+                                    self.labels],
+                             padding_x=0, padding_y=0, fig_margin={"top": 2, "bottom": 2, "left": 2, "right": 2},
+                             background_style={"fill": blank_color(_RAMP)},
+                             layout=w.Layout(width=f"{width}px", min_width=f"{width}px", height=f"{height}px"))
+        self.figure.add_class("cubeloupe-channel-map-figure")
         self.colorbar = Figure(marks=[self.bar_image], axes=[self.bar_axis], padding_x=0, padding_y=0,
                                fig_margin={"top": 12, "bottom": 12, "left": 4, "right": 76},
-                               layout=w.Layout(width="96px", min_width="96px", height=f"{_SCREEN_WIDTH}px"))
+                               layout=w.Layout(width="96px", min_width="96px", height=f"{height}px"))
         self.colorbar.add_class("cubeloupe-channel-map-colorbar")
-        # Shown once maps are made: an empty bqplot figure in a hidden tab is laid out at zero width.
-        self.figure_row = w.HBox([self.figure, self.colorbar],
-                                 layout=w.Layout(display="none", max_width="100%", overflow="auto"))
+        self.figure_row.children = [self.figure, self.colorbar]
+        self._figure_size = (width, height)
+        for figure in old:
+            figure.close()
 
     @validate("n")
     def _valid_n(self, proposal):
@@ -332,28 +368,29 @@ class ChannelMapPanel(w.VBox):
         beam_x, beam_y = self._beam(panels, factor, (0, 0), (nx, ny))
         with self.hold_trait_notifications():
             self.limits = (float(low), float(high))
-        with self.figure.hold_sync():
-            self.image.image = mosaic
-            self.image.x, self.image.y = (-0.5, width - 0.5), (-0.5, height - 0.5)
-            self.x_scale.min, self.x_scale.max = -0.5, width - 0.5
-            self.y_scale.min, self.y_scale.max = -0.5, height - 0.5
-            for mark, (xs, ys) in ((self.contours, positive), (self.negative_contours, negative)):
-                mark.x = np.concatenate(xs) if xs else []
-                mark.y = np.concatenate(ys) if ys else []
-            self.frames.x, self.frames.y = frames_x, frames_y
-            self.beam.x, self.beam.y = beam_x, beam_y
-            self.labels.x, self.labels.y, self.labels.text = label_x, label_y, texts
-        # Screen px per image pixel: a panel's longer side at most 220 px (or its share of the width); square pixels.
-        scale = min(220, _SCREEN_WIDTH // columns) / max(nx, ny)
-        self.figure.layout.width = f"{round(width * scale) + 4}px"
-        self.figure.layout.height = f"{round(height * scale) + 4}px"
-        self.colorbar.layout.height = self.figure.layout.height
+        # Screen px per image pixel: a panel at most 190 px a side (or its share of the width); square pixels.
+        scale = min(190, _SCREEN_WIDTH // columns) / max(nx, ny)
+        self._size_figures(round(width * scale) + 4, round(height * scale) + 4)
+        # One message per widget: a mark whose x, y (and text) arrive apart is drawn with mismatched lengths
+        # in between (bqplot's 'translate(undefined,...)' and 'NaN' path errors).
+        values = [(self.image, {"image": mosaic, "x": (-0.5, width - 0.5), "y": (-0.5, height - 0.5)}),
+                  (self.x_scale, {"min": -0.5, "max": width - 0.5}), (self.y_scale, {"min": -0.5, "max": height - 0.5}),
+                  (self.frames, {"x": frames_x, "y": frames_y}), (self.beam, {"x": beam_x, "y": beam_y}),
+                  (self.labels, {"x": label_x, "y": label_y, "text": texts})]
+        # Pieces apart by NaN, none after the last: bqplot places a line's (hidden) label at its last point,
+        # and a NaN there gave 'translate(undefined,undefined)' errors in the browser.
+        values += [(mark, _joined(xs, ys)) for mark, (xs, ys) in ((self.contours, positive),
+                                                                  (self.negative_contours, negative))]
+        for widget, traits in values:
+            with widget.hold_sync():
+                for name, value in traits.items():
+                    setattr(widget, name, value)
         with self.colorbar.hold_sync():
-            self.bar_image.image = np.linspace(low, high, 256, dtype=np.float32)[:, None]
+            # The mosaic holds colour positions (linear between the limits): the bar's ramp is 0..1 spread over them.
+            self.bar_image.image = np.linspace(0.0, 1.0, 256, dtype=np.float32)[:, None]
             self.bar_image.y = (float(low), float(high))
             self.bar_scale.min, self.bar_scale.max = float(low), float(high)
             self.bar_axis.label = panels.images.unit.to_string() or "value"
-        self.figure_row.layout.display = ""
         contour_text = (f"contours -{DEFAULT_CONTOURS[0]:g}, " + ", ".join(f"{c:g}" for c in DEFAULT_CONTOURS) +
                         f" x rms ({noise:.3g} {panels.images.unit.to_string()}; the negative one dashed)"
                         if levels else "no contours (no finite rms)")
@@ -407,3 +444,5 @@ class ChannelMapPanel(w.VBox):
     def _enable_saving(self, change):
         for button in self.save_buttons:
             button.disabled = not self.made_with
+        if bool(change.old) != bool(change.new):
+            self.children = self._parts()

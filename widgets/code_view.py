@@ -18,7 +18,7 @@ from traitlets import Bool, Unicode, observe
 from cubeloupe.analysis import CubeloupeError
 
 from .replay import to_code
-from .session import follow_moments
+from .session import VIEW_SETTINGS, follow_moments
 
 __all__ = ["CodeView", "WATCHED"]
 
@@ -26,10 +26,10 @@ __all__ = ["CodeView", "WATCHED"]
 WATCHED = ("window", "channel", "z", "velocity_offset", "rest_frequency", "reference_line", "convention",
            "axis_kind", "regions", "line_free", "line_window", "peaks", "baseline_order", "show_subtracted",
            "clip", "sky_source", "spectrum_span", "magnification", "cosmology", "moments", "measurements")
-_PART_WATCHED = {"sky_view": ("stretch", "palette", "lower_percentile", "upper_percentile", "vmin", "vmax",
-                              "show_beam", "contour_source", "contour_levels", "velocity_palette"),
-                 "moment_panel": ("significance",),
-                 "line_overlay": ("species", "spin_isomer", "max_E_up", "velocity_range")}
+#: The parts' traits whose change changes the script: every setting a session saves (the PV path, the
+#: channel maps and the population diagram's too, #16 and #18), and the channel maps made.
+_PART_WATCHED = {part: tuple(name for name, _, _ in traits) for part, traits in VIEW_SETTINGS.items()}
+_PART_WATCHED["channel_map_panel"] += ("made_with",)
 
 # Copies the text box of the same view: the button and the box are found from the clicked element, so
 # several suites on one page each copy their own script.

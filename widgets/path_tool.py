@@ -126,7 +126,7 @@ class PathTool(w.HBox):
         """Draw the strip's edges: pixel (x, y) of each path segment's two ends on each side (see `path_band`)."""
         pairs = [np.asarray(side, dtype=float).reshape(-1, 2, 2) for side in (one_side, other_side)]
         pieces = np.concatenate(pairs) if sum(len(p) for p in pairs) else np.empty((0, 2, 2))
-        with self.sky.figure.hold_sync():
+        with self.band_lines.hold_sync():
             self.band_lines.x = pieces[:, :, 0] if len(pieces) else []
             self.band_lines.y = pieces[:, :, 1] if len(pieces) else []
 

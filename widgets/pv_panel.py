@@ -344,11 +344,13 @@ class PVPanel(w.VBox):
             self.x_scale.min, self.x_scale.max = x_edges
             self.y_scale.min, self.y_scale.max = y_edges
             self.y_axis.label = label
-            self.marker_lines.x = [list(x_edges) for _ in values] if values else []
-            self.marker_lines.y = [[v, v] for v in values] if values else []
-            self.marker_labels.x = [x_edges[0]] * len(values)
-            self.marker_labels.y = values
-            self.marker_labels.text = names
+            with self.marker_lines.hold_sync():  # one message a mark: x and y of the same length
+                self.marker_lines.x = [list(x_edges) for _ in values] if values else []
+                self.marker_lines.y = [[v, v] for v in values] if values else []
+            with self.marker_labels.hold_sync():
+                self.marker_labels.x = [x_edges[0]] * len(values)
+                self.marker_labels.y = values
+                self.marker_labels.text = names
 
     # ------------------------------------------------------------- files
     def export(self, path, overwrite=False):

@@ -2,10 +2,13 @@
 
 A notebook opens the suite on the disk demo cube at 1 440 x 900 with JupyterLab's file browser
 open. The "Channel maps" tab first says that a line window is needed; the window is then dragged
-on the spectrum and the channel maps made with the tab's button. The Path tool draws the disk's
-major axis on the sky with three clicks and a double-click; the "Position–velocity" tab comes to
-the front with the slice along that path, and shows the CO line at the systemic velocity once the
-spectrum's axis is in velocity. At each step nothing of the suite sticks out of the notebook's
+on the spectrum and the channel maps made with the tab's button (drawn in bqplot, with their colour
+bar in Jy/beam), then again with 9 panels of one channel each labelled in frequency, and saved as
+PNG. The Path tool, 3 pixels wide, draws the disk's major axis on the sky with three clicks and a
+double-click (thin lines either side show the strip averaged); the "Position–velocity" tab comes to
+the front with the slice along that path and its colour bar, and shows the CO line at the systemic
+velocity once the spectrum's axis is in velocity. The "Code" tab's script then holds the
+`pv_slice` and `channel_maps` calls. At each step nothing of the suite sticks out of the notebook's
 output area, the console stays clean, and a screenshot is kept in the browser suite's folder.
 
 Where the result has a geometric meaning it is checked against the demo's injected values
@@ -15,10 +18,13 @@ to the receding end.
 
 Hooks relied on. CSS classes: cubeloupe-loupe, cubeloupe-actions (tab titles "Channel maps",
 "Position–velocity"), cubeloupe-channel-map-panel, cubeloupe-channel-map-button,
-cubeloupe-channel-map-image, cubeloupe-region-tools (button "Path"), cubeloupe-sky-figure,
+cubeloupe-channel-map-figure, cubeloupe-channel-map-colorbar, cubeloupe-channel-map-panels,
+cubeloupe-channel-map-mode, cubeloupe-channel-map-labels, cubeloupe-channel-map-save-png,
+cubeloupe-region-tools (button "Path"), cubeloupe-path-width, cubeloupe-sky-figure,
 cubeloupe-spectrum-figure, cubeloupe-spectrum-mode (button "Line window"), cubeloupe-pv-panel,
-cubeloupe-pv-figure. Traits read back: Loupe.line_window, channel_map_panel.state/panels,
-pv_panel.path/slice/axis/marker_names, spectrum_view.band.
+cubeloupe-pv-figure, cubeloupe-pv-colorbar, cubeloupe-code-text. Traits read back: Loupe.line_window,
+channel_map_panel.state/panels/made_with, pv_panel.path/slice/axis/marker_names/width,
+sky_view.path_tool.band_lines, spectrum_view.band.
 """
 
 import json
@@ -139,22 +145,45 @@ def test_channel_maps_need_a_window_then_show_the_line(views):
     _open_tab(suite, "Channel maps")
     panel.locator(".cubeloupe-channel-map-button").click()
     wait_until(lambda: ask_kernel(lab, "L.channel_map_panel.state") == "done", "the channel maps to be made")
-    image = panel.locator(".cubeloupe-channel-map-image")
-    wait_until(lambda: image.evaluate("(img) => img.complete && img.naturalWidth > 0"), "the picture to load")
+    figure, bar = panel.locator(".cubeloupe-channel-map-figure"), panel.locator(".cubeloupe-channel-map-colorbar")
+    figure.wait_for(state="visible")
+    wait_until(lambda: "km/s" in (figure.text_content() or ""), "the panels' velocity labels")
+    wait_until(lambda: "Jy / beam" in (bar.text_content() or ""), "the colour bar's unit")
     kernel = ask_kernel(lab, "[len(L.channel_map_panel.panels.channels), L.channel_map_panel.panels.centers.unit"
                              ".to_string(), L.channel_map_panel.panels.channels[0][0], "
                              "L.channel_map_panel.panels.channels[-1][1]]")
     assert kernel[0] == 16 and kernel[1] == "km / s"
     _open_tab(suite, "Channel maps")
     _scroll_to_tabs(suite)
-    assert distinct_colours(image) > 100, "the channel maps are drawn"
-    # The picture is shown whole at its own size, or scaled down to the tab's width; never stretched.
-    shown, room = image.bounding_box(), panel.bounding_box()
-    natural = image.evaluate("(img) => img.naturalWidth")
-    assert shown["width"] == pytest.approx(min(natural, room["width"]), abs=2)
+    assert distinct_colours(figure) > 100, "the channel maps are drawn"
     _assert_nothing_sticks_out(suite, "channel maps at 1440 px with the file browser open")
     lab.screenshot("line-views-02-channel-maps")
-    assert lab.console_errors[lab.errors_at_start:] == []
+
+    # Nine panels of one channel each, labelled in observed frequency, then saved as PNG for a paper.
+    count = panel.locator(".cubeloupe-channel-map-panels input")
+    count.fill("9")
+    count.press("Enter")
+    panel.locator(".cubeloupe-channel-map-mode button", has_text="one channel of every k").click()
+    panel.locator(".cubeloupe-channel-map-labels select").select_option("frequency")
+    wait_until(lambda: ask_kernel(lab, "[L.channel_map_panel.n, L.channel_map_panel.average, "
+                                       "L.channel_map_panel.label_in]") == [9, False, "frequency"],
+               "the panel's settings to reach the kernel")
+    panel.locator(".cubeloupe-channel-map-button").click()
+    wait_until(lambda: ask_kernel(lab, "L.channel_map_panel.made_with.get('n')") == 9, "the nine channel maps")
+    wait_until(lambda: ask_kernel(lab, "L.channel_map_panel.state") == "done", "the channel maps to be made")
+    kernel = ask_kernel(lab, "[len(L.channel_map_panel.panels.channels), L.channel_map_panel.panels.centers.unit"
+                             ".to_string(), [b - a for a, b in L.channel_map_panel.panels.channels]]")
+    assert kernel[0] == 9 and kernel[1] == "GHz" and set(kernel[2]) == {1}
+    wait_until(lambda: "GHz" in (figure.text_content() or ""), "the panels' frequency labels")
+    panel.locator(".widget-text input[type='text']").fill("line_views_maps")
+    panel.locator(".cubeloupe-channel-map-save-png").click()
+    wait_until(lambda: "Written" in panel.locator(".cubeloupe-status").inner_text(), "the PNG to be written")
+    assert ask_kernel(lab, "__import__('os').path.getsize('line_views_maps.png') > 10000")
+    _scroll_to_tabs(suite)
+    _assert_nothing_sticks_out(suite, "nine channel maps at 1440 px with the file browser open")
+    lab.screenshot("line-views-02b-nine-channels-in-frequency")
+    errors = lab.console_errors[lab.errors_at_start:]
+    assert errors == [], "\n".join(errors)
 
 
 class SkyArea:
@@ -191,6 +220,10 @@ def test_path_drawn_with_the_mouse_gives_the_position_velocity_view(views):
     suite.locator(".cubeloupe-sky-view").evaluate("(view) => view.scrollIntoView({block: 'start'})")
     suite.locator(".cubeloupe-region-tools button", has_text="Path").click()
     suite.locator(".cubeloupe-finish-path").wait_for(state="visible")
+    width = suite.locator(".cubeloupe-path-width input")
+    width.fill("3")
+    width.press("Tab")
+    wait_until(lambda: ask_kernel(lab, "L.sky_view.path_tool.width") == 3.0, "the path's width to reach the kernel")
     sky = SkyArea(suite, nx, ny)
     mouse = lab.page.mouse
     for x, y in vertices[:-1]:
@@ -201,6 +234,8 @@ def test_path_drawn_with_the_mouse_gives_the_position_velocity_view(views):
     assert len(path) == 3
     for (x, y), (x_clicked, y_clicked) in zip(path, vertices):
         assert x == pytest.approx(x_clicked, abs=sky.tolerance) and y == pytest.approx(y_clicked, abs=sky.tolerance)
+    # Three pixels averaged across the path; the strip's edges drawn either side of each of its two segments.
+    assert ask_kernel(lab, "[L.pv_panel.slice.width, len(L.sky_view.path_tool.band_lines.x)]") == [3.0, 4]
     suite.locator(".cubeloupe-sky-view").evaluate("(view) => view.scrollIntoView({block: 'start'})")
     lab.screenshot("line-views-03-path-on-the-sky")
 
@@ -228,8 +263,17 @@ def test_path_drawn_with_the_mouse_gives_the_position_velocity_view(views):
     _open_tab(suite, "Position–velocity")
     _scroll_to_tabs(suite)
     assert distinct_colours(figure) > 30, "the slice is drawn"
+    bar = suite.locator(".cubeloupe-pv-colorbar")
+    wait_until(lambda: "Jy / beam" in (bar.text_content() or ""), "the PV colour bar's unit")
+    assert distinct_colours(bar) > 30, "the colour bar's ramp is drawn"
     _assert_nothing_sticks_out(suite, "the PV view at 1440 px with the file browser open")
     lab.screenshot("line-views-04-position-velocity")
+    # The script of this state makes the same slice and channel maps.
+    _open_tab(suite, "Code")
+    text = suite.locator(".cubeloupe-code-text textarea")
+    wait_until(lambda: "pv_slice(" in text.input_value() and "channel_maps(" in text.input_value(),
+               "the script of the PV slice and channel maps")
+    _open_tab(suite, "Position–velocity")
     assert lab.error_outputs() == []
     assert lab.console_errors[lab.errors_at_start:] == []
 

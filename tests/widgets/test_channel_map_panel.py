@@ -135,7 +135,9 @@ def test_panels_on_screen_are_the_binned_images_on_one_colour_scale_with_rms_con
     assert_allclose(np.asarray(panel.contours.x)[:x.size], x, equal_nan=True)
     assert_allclose(np.asarray(panel.contours.y)[:y.size], y + ny + gap, equal_nan=True)
     assert len(panel.beam.x) > 0 and np.nanmax(panel.beam.x) < nx, "the beam in the lower-left panel"
-    assert panel.figure_row.layout.display == ""
+    assert panel.figure_row not in panel.children, "the figure joins the page when its tab is shown"
+    _tabs(loupe).selected_index = list(_tabs(loupe).children).index(panel)
+    assert panel.figure_row in panel.children and panel.caption in panel.children
 
 
 def test_maps_can_be_remade_from_what_they_were_made_with(loupe, line_cube):
@@ -151,3 +153,15 @@ def test_maps_can_be_remade_from_what_they_were_made_with(loupe, line_cube):
     panel.make(wait=True, record=record)
     assert_array_equal(panel.panels.images.value, first.images.value) and panel.made_with == record
     assert record["n"] == 6 and record["average"] is False and record["label_in"] == "frequency"
+
+
+def test_colour_bar_ramp_spans_the_colour_positions_between_the_limits(loupe):
+    """The mosaic holds colour positions 0..1 (linear between the limits): the bar's ramp covers 0..1 from the
+    lower limit to the upper one, so each colour reads at its data value."""
+    mark_ranges(loupe)
+    panel = loupe.channel_map_panel
+    panel.make(wait=True)
+    ramp = np.asarray(panel.bar_image.image)[:, 0]
+    assert ramp[0] == 0.0 and ramp[-1] == 1.0 and np.all(np.diff(ramp) > 0)
+    assert tuple(panel.bar_image.y) == panel.limits
+    assert np.nanmin(panel.image.image) >= 0.0 and np.nanmax(panel.image.image) <= 1.0

@@ -78,3 +78,14 @@ def test_problem_is_shown_in_the_view(line_cube):
     suite = Loupe(SpectralCube(data=opened.filled_data[:], wcs=opened.wcs), first_view=False)
     assert suite.code_view.refresh().startswith("# No script for this state:")
     assert "made in memory" in suite.code_view.text.value
+
+
+def test_script_follows_the_newer_parts_while_shown(loupe):
+    """A path drawn, channel maps made or a line ticked while the Code tab is shown rewrite the script (#16, #18)."""
+    view = loupe.code_view
+    view.showing = True
+    assert "pv_slice(" not in view.text.value
+    loupe.pv_panel.set_path([[3.0, 4.0], [20.0, 18.0]], width=2.0)
+    assert "pv_slice(" in view.text.value and "width=2.0" in view.text.value
+    loupe.pv_panel.width = 3.0
+    assert "width=3.0" in view.text.value
