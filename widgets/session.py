@@ -187,6 +187,10 @@ class SessionState:
         for part, traits in VIEW_SETTINGS.items():
             widget = getattr(loupe, part)
             views[part] = {name: _plain(getattr(widget, name)) for name, _, _ in traits if widget.has_trait(name)}
+            for name, check, rule in traits:  # e.g. a ticked line whose flux is NaN: JSON cannot hold it
+                if name in views[part] and not check(views[part][name]):
+                    raise SessionError(f"the suite's {part}.{name} = {views[part][name]!r} cannot be saved: it must "
+                                       f"be {rule}; change it (for a ticked line, untick it) and save again")
         return cls(cubes=cubes, settings=settings, regions=tuple(regions), views=views,
                    moments=moment_settings(loupe),
                    catalog=_catalog_records(getattr(loupe, "catalog_argument", None), relative_to),

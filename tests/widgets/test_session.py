@@ -401,3 +401,13 @@ def test_session_fields_catalog_and_client_are_checked(tmp_path):
     # A version 1 session written before these fields existed still reads: no extra list, no client.
     state = SessionState.from_dict({k: v for k, v in good.items() if k not in ("catalog", "client")})
     assert state.catalog == () and state.client is False
+
+
+def test_a_setting_json_cannot_hold_is_refused_by_name(line_cube, tmp_path):
+    """A ticked line whose flux is NaN (a failed measurement) cannot go into JSON: the message names it."""
+    loupe = Loupe(line_cube, first_view=False)
+    loupe.excitation_panel.picked = [{"region": "r", "window": 0, "line": "CO J=2-1", "flux": float("nan"),
+                                      "flux_error": 0.1, "flux_unit": "K km / s", "upper_limit": False}]
+    with pytest.raises(SessionError, match=r"excitation_panel\.picked.*untick"):
+        loupe.save_session(tmp_path / "s.cubeloupe.json")
+    assert not (tmp_path / "s.cubeloupe.json").exists()
