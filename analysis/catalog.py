@@ -505,20 +505,31 @@ def collapse_hyperfine(table):
     # The strongest component stands for its group in the columns not averaged.
     order = np.lexsort((-share, which))
     strongest = rows[order[np.r_[0, np.flatnonzero(np.diff(which[order])) + 1]]]
-    merged = table[strongest]
-    species = np.asarray(merged["species"], dtype=str)
-    merged.replace_column("name", Column(names, name="name"))
-    merged.replace_column("transition", Column([n[len(s) + 1:] for n, s in zip(names, species)],
-                                               name="transition"))
-    merged["relative_intensity"] = total
-    merged["g_up"] = np.bincount(which, weights=np.asarray(table["g_up"], dtype=float)[rows])
+    # One take of the rows kept (ungrouped rows and each group's strongest component), in the
+    # order of the merged frequencies; then whole columns replaced: stacking tables row-wise
+    # (astropy vstack) costs ten times more on the full catalog.
+    kept = np.flatnonzero(~in_group)
+    sort_by = "observed_frequency" if "observed_frequency" in table.colnames else "rest_frequency"
+    averaged = {}
     for name in ("rest_frequency", "observed_frequency", "velocity", "E_up", "einstein_A"):
         if name in table.colnames:
             column = u.Quantity(table[name])
-            merged[name] = np.bincount(which, weights=weight * column.value[rows]) * column.unit
-    out = vstack([table[~in_group], merged], join_type="exact", metadata_conflicts="silent")
+            averaged[name] = (np.r_[column.value[kept], np.bincount(which, weights=weight * column.value[rows])],
+                              column.unit)
+    position = np.argsort(averaged[sort_by][0], kind="stable")
+    out = table[np.r_[kept, strongest][position]]
+    species = np.asarray(table["species"], dtype=str)[strongest]
+    texts = {"name": np.r_[np.asarray(table["name"], dtype=str)[kept], names],
+             "transition": np.r_[np.asarray(table["transition"], dtype=str)[kept],
+                                 [n[len(s) + 1:] for n, s in zip(names, species)]]}
+    for name, values in texts.items():
+        out.replace_column(name, Column(values[position], name=name))
+    out["relative_intensity"] = np.r_[np.asarray(table["relative_intensity"], dtype=float)[kept], total][position]
+    g_up = np.asarray(table["g_up"], dtype=float)
+    out["g_up"] = np.r_[g_up[kept], np.bincount(which, weights=g_up[rows])][position]
+    for name, (values, unit) in averaged.items():
+        out[name] = values[position] * unit
     out.meta.update(table.meta)
-    out.sort("observed_frequency" if "observed_frequency" in out.colnames else "rest_frequency")
     return out
 
 

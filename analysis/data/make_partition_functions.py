@@ -17,12 +17,17 @@ commit both files. Three kinds of source, named per row in ``provenance``:
   o-H2O file (sources/lamda/o-h2o-levels.dat, spin weight 3 divided out,
   counted from 1_01, 34.23 K above 0_00), para as the JPL total less the
   ortho part, Q_p = Q_JPL - 3 exp(-E(1_01)/kT) Q_o, at the JPL temperatures;
+* H2CO's ortho and para and CH3OH's A and E own Q: sums over the levels met in
+  the published line lists vendored from Splatalogue (sources/splatalogue_rows.txt:
+  CDMS H2CO, CH3OH vt=0 of line list 14), g = 2J+1, each from its lowest level,
+  tabulated up to the highest JPL temperature at which the two add up (with the
+  totals' spin weights) to the JPL total within 1 % (H2CO 300 K, CH3OH 37.5 K);
 * sums over a published level list (the vendored LAMDA files): each spin
   species' own Q, with energies counted from its lowest level, tabulated only
   up to a sixth of the highest listed level's energy, where the missing levels
   change Q by well under 1 %;
 * sums over levels computed from the catalog's rotational constants (the
-  species make_transitions computes), up to J = 150 (K <= 40).
+  linear rotors make_transitions computes), up to J = 150.
 """
 
 from pathlib import Path
@@ -30,6 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from cubeloupe.analysis.data import make_transitions as mt
+from cubeloupe.analysis.data import splatalogue_rows as splat
 
 HERE = Path(__file__).parent
 TARGET = HERE / "partition_functions.ecsv"
@@ -44,6 +50,8 @@ CDMS_SPECIES = {  # catalog species: (CDMS tag, hyperfine spin multiplicity divi
     "13CO": (29501, 2), "C17O": (29503, 6), "N2H+": (29506, 9), "HCO+": (29507, 1), "C18O": (30502, 1),
     "H13CO+": (30504, 1), "HNCO": (43511, 1), "CS": (44501, 1), "SiO": (44505, 1), "13CS": (45501, 2),
     "C34S": (46501, 1), "SO": (48501, 1), "HC3N": (51501, 1), "OCS": (60503, 1), "SO2": (64502, 1),
+    # CH3CCH and CH3CN: the CDMS weights of the K ladders are the catalog's (make_transitions.DEGENERACY)
+    "CH3CCH": (40502, 1), "CH3CN": (41505, 1),
 }
 JPL_SPECIES = {"H2O": 18003, "HDO": 19002, "H2CO": 30004, "CH3OH": 32003}
 CDMS_SPIN_TOTALS = {"H2O+": 18505}  # CDMS tables that count both spin isomers with their spin weights
@@ -99,6 +107,60 @@ def _water_spin_rows(jpl_lg_q, jpl_copy):
             + [("H2O", "para", float(ti), float(qi), 0.0, para) for ti, qi in zip(t, q_para)])
 
 
+def spin_levels(species):
+    """{spin species: (E [K], g)} of H2CO (ortho, para) or CH3OH (A, E), from the vendored catalogue rows.
+
+    Every level met as the upper or lower level of a line of the entry (sources/splatalogue_rows.txt:
+    H2CO from CDMS, CH3OH vt=0 from Splatalogue's line list 14), with g = 2J+1 (no nuclear-spin
+    factors) and E on the molecule's scale (from para-H2CO 0_00, from A-CH3OH 0_0+).
+    """
+    levels = {}
+    for _, qn, _, e_low, e_up, _, _ in splat.rows(species):
+        parsed = splat.asymmetric_top_levels(qn)
+        if parsed is None:
+            continue  # hyperfine components repeat their rotational levels
+        upper, lower, parity = parsed
+        for level, energy, sign in ((upper, e_up, parity[:1]), (lower, e_low, parity[1:])):
+            if species == "H2CO":
+                spin = "ortho" if level[1] % 2 else "para"
+            else:
+                spin = "A" if parity else "E"
+            levels[(spin, sign) + level] = (energy, 2 * level[0] + 1)
+    out = {}
+    for (spin, *_), value in levels.items():
+        out.setdefault(spin, []).append(value)
+    return {spin: (np.array([e for e, _ in v]), np.array([g for _, g in v], dtype=float)) for spin, v in out.items()}
+
+
+# Spin species summed over the vendored level lists, tabulated up to the temperature where the
+# sum of both (with the spin weights of the published totals) stays within 1 % of the JPL
+# total (tests/analysis/test_partition.py checks it): (species, weights of the total).
+SPIN_SUMS = {"H2CO": {"ortho": 3.0, "para": 1.0}, "CH3OH": {"A": 1.0, "E": 1.0}}
+
+
+def _spin_sum_rows(jpl_tables, jpl_copy):
+    out = []
+    for species, weights in SPIN_SUMS.items():
+        levels = spin_levels(species)
+        zeros = {spin: float(e.min()) for spin, (e, _) in levels.items()}
+        published = 10 ** np.array(jpl_tables[JPL_SPECIES[species]])
+        t_jpl = np.array(JPL_T, dtype=float)
+        total = sum(weights[s] * np.exp(-zeros[s] / t_jpl) * _level_sum(e - zeros[s], g, t_jpl)
+                    for s, (e, g) in levels.items())
+        agree = np.abs(total / published - 1) <= 0.01
+        t_max = float(max(t for t, ok in zip(t_jpl, agree) if ok and all(agree[t_jpl <= t])))
+        grid = np.unique(np.r_[GRID[GRID <= t_max], t_jpl[t_jpl <= t_max]])
+        for spin, (e, g) in levels.items():
+            q = _level_sum(e - zeros[spin], g, grid)
+            prov = (f"sum over the {len(e)} levels of the {'CDMS' if species == 'H2CO' else 'line list 14'} "
+                    f"entry's lines as copied in Splatalogue ({splat.copy_read()}); g = 2J+1, no spin weight; "
+                    f"energies from the lowest {spin} level; with spin weights "
+                    f"{', '.join(f'{s} {w:g}' for s, w in weights.items())} the sum of both agrees with the "
+                    f"JPL total (tag {JPL_SPECIES[species]}, {jpl_copy}) within 1 % up to {t_max:g} K")
+            out += [(species, spin, float(t), float(qi), round(zeros[spin], 4), prov) for t, qi in zip(grid, q)]
+    return out
+
+
 def rows():
     """(species, spin_isomer, temperature [K], Q, energy_zero [K], provenance) rows."""
     cdms, jpl, copy = _read_tables()
@@ -114,6 +176,7 @@ def rows():
             "isomers with their spin weights (ortho 3, para 1) and the hyperfine levels")
     out += [("H2O+", "none", t, 10**lg, 0.0, prov) for t, lg in zip(CDMS_T, cdms[tag]) if np.isfinite(lg)]
     out += _water_spin_rows(jpl[JPL_SPECIES["H2O"]], copy["jpl"])
+    out += _spin_sum_rows(jpl, copy["jpl"])
     for species, tag in JPL_SPECIES.items():
         prov = (f"JPL partition function table (Pickett et al. 1998), tag {tag}, {copy['jpl']}; "
                 "sums both spin isomers with their spin weights")
@@ -156,16 +219,6 @@ def rows():
     out += [("[OIII]", "none", float(t), float(qi), 0.0,
              "sum over the 3P0,1,2 levels: 113.178 cm^-1 from NIST via PyNeb, 306.174 cm^-1 from memory")
             for t, qi in zip(GRID, q)]
-    for species, a_rot, b, dj, djk, dk, _ in mt.SYMMETRIC_TOPS:
-        jj, kk = np.meshgrid(np.arange(0, 151), np.arange(0, 41), indexing="ij")
-        ok = kk <= jj
-        energy = mt.symmetric_top_levels(a_rot, b, dj, djk, dk, jj[ok], kk[ok])
-        weight = (2 * jj[ok] + 1) * mt.symmetric_top_weight(kk[ok])
-        keep = (energy >= 0) & (energy < 20000)
-        q = _level_sum(energy[keep], weight[keep], GRID)
-        prov = ("sum over symmetric-top levels J <= 150, K <= 40 from the catalog's constants (from memory), "
-                "with the K-ladder weights of make_transitions.DEGENERACY")
-        out += [(species, "none", float(t), float(qi), 0.0, prov) for t, qi in zip(GRID, q)]
     return out
 
 

@@ -34,9 +34,12 @@ LAMDA files vendored in ``sources/lamda/`` (level and line sections, each file
 naming the public copy read; see ``sources/vendor_lamda.py``), hyperfine-resolved
 where the file is; linear rotors computed from constants fitted to recalled or
 published lines (ROTORS); the CH3CN and CH3CCH K ladders from recalled
-symmetric-top constants; hyperfine groups from published component tables
-(N2H+ J=1-0, NH3 (1,1) and (2,2), C17O J=1-0); recalled lines of H2CO, CH3OH,
-HNCO and HDO; and the H, He and C recombination lines of
+symmetric-top constants, replaced since by the published lines; hyperfine
+groups from published component tables (N2H+ J=1-0, NH3 (1,1) and (2,2), C17O
+J=1-0); the lines of H2CO, CH3OH, HNCO, HDO, CH3CN and CH3CCH and the SiO v=1,
+v=2 and HC3N ladders copied from the published catalogues as vendored from
+Splatalogue (``sources/splatalogue_rows.txt``, see ``_published_rows``); and
+the H, He and C recombination lines of
 `cubeloupe.analysis.recombination`. Each row's g_up follows DEGENERACY below;
 ``make_partition_functions.py`` writes the matching partition functions.
 """
@@ -46,6 +49,7 @@ from pathlib import Path
 import astropy.units as u
 import numpy as np
 
+from cubeloupe.analysis.data import splatalogue_rows as splat
 from cubeloupe.analysis.recombination import recombination_lines
 
 HERE = Path(__file__).parent
@@ -246,8 +250,10 @@ components are left out too: a hyperfine component's g_up is (2F+1)/prod(2I+1),
 its share of the rotational level, so the components of a level sum to 2J+1.
 Exception: CH3CN and CH3CCH keep the relative spin weight of their K ladders
 (2 for K = 3n, 1 otherwise; Araya et al. 2005, ApJS 157, 279, scaled by 4),
-because one partition function covers all K. Partition functions follow the
-same convention (analysis/partition.py)."""
+because one partition function covers all K (the CDMS CH3CCH and JPL CH3CN
+entries print the same weights). CH3OH's A and E rows carry 2J+1, as the
+JPL total Q counts both; each also has its own Q (spin_isomer "A", "E").
+Partition functions follow the same convention (analysis/partition.py)."""
 
 
 def _ghz_cm(nu_ghz):
@@ -464,18 +470,6 @@ HC3N_PROV = ("nu: B, D fitted to the lines of the LAMDA file hc3n.dat (vendored 
              "spectralradex-1.1.5), extrapolated past J=20; E_up: level energies from the same constants; "
              "A: rigid rotor with mu=3.73 D (CDMS entry, from memory)")
 
-# Symmetric tops (Gordy & Cook 1984, Microwave Molecular Spectra, ch. 6):
-# nu = 2(J+1)(B - D_JK K^2) - 4 D_J (J+1)^3;  E = B J(J+1) + (A-B) K^2 - D_J J^2(J+1)^2
-# - D_JK J(J+1) K^2 - D_K K^4;  A_ul = 64 pi^4 nu^3 mu^2 (J_u^2 - K^2) / (3 h c^3 J_u (2J_u+1)).
-# (species, A, B [MHz], D_J, D_JK, D_K [kHz], dipole [D])
-SYMMETRIC_TOPS = [
-    ("CH3CN", 158099.0, 9198.899167, 3.80757, 177.4084, 2830.0, 3.92197),
-    ("CH3CCH", 158590.0, 8545.876967, 2.94278, 163.4105, 2800.0, 0.7804),
-]
-SYMTOP_PROV = ("nu: A, B, D_J, D_JK, D_K of the CDMS entry (Mueller et al. 2005), from memory, checked against "
-               "published lines in tests/data/catalog_reference.ecsv; E_up: level energies from the same "
-               "constants; A: symmetric-top formula with the CDMS dipole moment, from memory")
-
 # ---------------------------------------------------------------------------
 # Hyperfine groups from published component tables:
 # N2H+ J=1-0: offsets and line strengths of the 15 components tabulated in
@@ -532,57 +526,6 @@ C_KMS = 299792.458
 # C17O J=1-0 (17O, I = 5/2): F'=3/2, 7/2, 5/2 -> F=5/2; LTE-thin intensities 2F'+1 over 18.
 C17O_10 = [("F=3/2-5/2", 112.358777, 4), ("F=7/2-5/2", 112.358982, 8), ("F=5/2-5/2", 112.360016, 6)]
 
-# ---------------------------------------------------------------------------
-# Single lines of asymmetric tops without a published file in hand:
-# (species, transition, nu [GHz], E_up [K], A [s^-1], g_up, spin, family).
-# All from memory (CDMS/JPL values as recalled); A nan where not recalled.
-# ---------------------------------------------------------------------------
-MEMORY_LINES = [
-    ("H2CO", "1_01-0_00", 72.837948, 3.5, 8.15e-6, 3, "para", "complex organics"),
-    ("H2CO", "2_12-1_11", 140.839502, 21.9, 5.30e-5, 5, "ortho", "complex organics"),
-    ("H2CO", "2_02-1_01", 145.602949, 10.5, 7.81e-5, 5, "para", "complex organics"),
-    ("H2CO", "2_11-1_10", 150.498334, 22.6, 6.46e-5, 5, "ortho", "complex organics"),
-    ("H2CO", "3_13-2_12", 211.211468, 32.1, 2.27e-4, 7, "ortho", "complex organics"),
-    ("H2CO", "3_03-2_02", 218.222192, 21.0, 2.82e-4, 7, "para", "complex organics"),
-    ("H2CO", "3_22-2_21", 218.475632, 68.1, 1.57e-4, 7, "para", "complex organics"),
-    ("H2CO", "3_21-2_20", 218.760066, 68.1, 1.58e-4, 7, "para", "complex organics"),
-    ("H2CO", "3_12-2_11", 225.697775, 33.4, 2.77e-4, 7, "ortho", "complex organics"),
-    ("H2CO", "4_14-3_13", 281.526929, 45.6, 5.88e-4, 9, "ortho", "complex organics"),
-    ("H2CO", "4_04-3_03", 290.623405, 34.9, 6.90e-4, 9, "para", "complex organics"),
-    ("H2CO", "4_23-3_22", 291.237766, 82.1, 5.21e-4, 9, "para", "complex organics"),
-    ("H2CO", "4_22-3_21", 291.948067, 82.1, 5.25e-4, 9, "para", "complex organics"),
-    ("H2CO", "4_13-3_12", 300.836635, 47.9, 7.17e-4, 9, "ortho", "complex organics"),
-    ("H2CO", "5_15-4_14", 351.768645, 62.5, 1.20e-3, 11, "ortho", "complex organics"),
-    ("H2CO", "5_05-4_04", 362.736048, 52.3, 1.37e-3, 11, "para", "complex organics"),
-    ("CH3OH", "7(0)-6(1) A+", 44.069410, 65.0, 3.9e-7, 15, "none", "complex organics"),
-    ("CH3OH", "4(-1)-3(0) E", 36.169265, 28.8, 2.1e-7, 9, "none", "complex organics"),
-    ("CH3OH", "5(-1)-4(0) E", 84.521172, 40.4, 1.97e-6, 11, "none", "complex organics"),
-    ("CH3OH", "8(0)-7(1) A+", 95.169463, 83.5, 2.13e-6, 17, "none", "complex organics"),
-    ("CH3OH", "2(1)-1(1) A+", 95.914310, 21.4, 2.49e-6, 5, "none", "complex organics"),
-    ("CH3OH", "2(-1)-1(-1) E", 96.739362, 12.5, 2.49e-6, 5, "none", "complex organics"),
-    ("CH3OH", "2(0)-1(0) A+", 96.741375, 7.0, 3.41e-6, 5, "none", "complex organics"),
-    ("CH3OH", "2(0)-1(0) E", 96.744550, 20.1, 3.41e-6, 5, "none", "complex organics"),
-    ("CH3OH", "2(1)-1(1) E", 96.755511, 28.0, 2.62e-6, 5, "none", "complex organics"),
-    ("CH3OH", "3(1)-4(0) A+", 107.013831, 28.3, 3.06e-6, 7, "none", "complex organics"),
-    ("CH3OH", "0(0)-1(-1) E", 108.893945, 13.1, 1.47e-5, 1, "none", "complex organics"),
-    ("CH3OH", "4(2)-3(1) E", 218.440063, 45.5, 4.69e-5, 9, "none", "complex organics"),
-    ("CH3OH", "8(-1)-7(0) E", 229.758756, 89.1, 4.19e-5, 17, "none", "complex organics"),
-    ("CH3OH", "5(0)-4(0) E", 241.700159, 47.9, 6.04e-5, 11, "none", "complex organics"),
-    ("CH3OH", "5(-1)-4(-1) E", 241.767234, 40.4, 5.81e-5, 11, "none", "complex organics"),
-    ("CH3OH", "5(0)-4(0) A+", 241.791352, 34.8, 6.05e-5, 11, "none", "complex organics"),
-    ("CH3OH", "7(-1)-6(-1) E", 338.344588, 70.6, 1.67e-4, 15, "none", "complex organics"),
-    ("CH3OH", "7(0)-6(0) A+", 338.408698, 65.0, 1.70e-4, 15, "none", "complex organics"),
-    ("HNCO", "4_04-3_03", 87.925237, 10.5, 8.78e-6, 9, "none", "shock tracers"),
-    ("HNCO", "5_05-4_04", 109.905749, 15.8, 1.75e-5, 11, "none", "shock tracers"),
-    ("HNCO", "10_010-9_09", 219.798274, 58.0, 1.51e-4, 21, "none", "shock tracers"),
-    ("HNCO", "16_016-15_015", 351.633257, 143.5, 6.27e-4, 33, "none", "shock tracers"),
-    ("HDO", "1_10-1_11", 80.578295, 47.0, 1.32e-6, 3, "none", "water and hydrides"),
-    ("HDO", "2_11-2_12", 241.561550, 95.2, 1.19e-5, 5, "none", "water and hydrides"),
-    ("HDO", "3_12-2_21", 225.896720, 167.6, 1.32e-5, 7, "none", "water and hydrides"),
-    ("HDO", "1_01-0_00", 464.924520, 22.3, 1.69e-4, 3, "none", "water and hydrides"),
-    ("HDO", "1_11-0_00", 893.638666, 42.9, 8.35e-3, 3, "none", "water and hydrides"),
-]
-MEMORY_PROV = "nu, E_up, A, g_up: CDMS/JPL catalogue entry, from memory"
 
 
 # ---------------------------------------------------------------------------
@@ -636,12 +579,23 @@ def _curated_rows():
             if species == "HCN" and j == 1:
                 continue  # HCN J=1-0 is a hyperfine group (LAMDA_HYPERFINE)
             out.append(_row(species, f"J={j}-{j - 1}", nu, e_up, a, "none", prov, 2 * j + 1))
+    jpl_water = _published_water()
     for upper, lower, nu, nu_from, e_up, a, e_a_from in WATER:
         j = int(upper.split("_")[0])
         ka, kc = (int(q) for q in upper.split("_")[1])
         spin = "ortho" if (ka + kc) % 2 else "para"
-        out.append(_row("H2O", f"{upper}-{lower}", nu, e_up, a, spin,
-                        _water_provenance(nu_from, e_a_from, spin, a), 2 * j + 1))
+        prov = _water_provenance(nu_from, e_a_from, spin, a)
+        published = jpl_water.get(f"{upper}-{lower}")
+        demo_chain = f"H2O {upper}-{lower}" in DEMO_CHAIN and round(published[0], 7) != nu if published else False
+        if published and (f"H2O {upper}-{lower}" in DEMO_LINES or demo_chain) and nu_from == "memory":
+            prov = prov.replace("from memory", f"from memory, {(published[0] - nu) * 1e3:+.3f} MHz from the "
+                                "JPL entry as copied in Splatalogue (kept: the demo cubes use this line)", 1)
+        elif published and f"H2O {upper}-{lower}" not in DEMO_LINES and not demo_chain:
+            nu, prov = _water_published(published, nu, nu_from, e_a_from, prov)
+            if e_a_from == "memory":
+                e_up = round(published[1], 2)
+                a = float(f"{published[2]:.4g}") if np.isfinite(a) else a
+        out.append(_row("H2O", f"{upper}-{lower}", nu, e_up, a, spin, prov, 2 * j + 1))
     for species, transition, nu, e_up, a, spin, prov in OTHERS:
         if species.startswith("["):
             g = _atom_g(transition)
@@ -709,6 +663,7 @@ def linear_rotor_levels(b_mhz, d_khz, j):
 def _rotor_rows():
     out = []
     constants = rotor_constants()
+    published = _published_ladders()
     for species, prefix, family, mu, e_vib, jrange in ROTORS:
         b, d, _ = constants[f"{species} {prefix}".strip()]
         j_lo, j_hi = jrange or (1, 200)
@@ -723,41 +678,18 @@ def _rotor_rows():
                 continue  # from the LAMDA file
             a = float(f"{_rigid_rotor_a(nu, j, mu):.4g}")
             prov = HC3N_PROV if species == "HC3N" else CONSTANTS_PROV
+            name = f"{species} {prefix}J={j}-{j - 1}"
+            if name in published:
+                nu, e_up, a, prov = published[name]
             out.append(_row(species, f"{prefix}J={j}-{j - 1}", round(nu, 7), round(e_up, 2), a, "none",
                             prov, 2 * j + 1, family))
     return out
-
-
-def symmetric_top_levels(a_mhz, b_mhz, dj, djk, dk, j, k):
-    """E(J,K)/k [K] of a prolate symmetric top (Gordy & Cook 1984)."""
-    j, k = np.asarray(j, dtype=float), np.asarray(k, dtype=float)
-    e_mhz = (b_mhz * j * (j + 1) + (a_mhz - b_mhz) * k**2 - dj * 1e-3 * j**2 * (j + 1) ** 2
-             - djk * 1e-3 * j * (j + 1) * k**2 - dk * 1e-3 * k**4)
-    return H_OVER_K * 1e-3 * e_mhz
 
 
 def symmetric_top_weight(k):
     """g_K g_I of a C3v top's K ladder in this catalog's convention (see DEGENERACY)."""
     k = np.asarray(k)
     return np.where(k == 0, 1, 2) * np.where(k % 3 == 0, 2, 1)
-
-
-def _symmetric_top_rows():
-    out = []
-    for species, a_rot, b, dj, djk, dk, mu in SYMMETRIC_TOPS:
-        for j_up in range(1, 200):
-            if 2 * b * j_up * 1e-3 > BAND[1]:
-                break
-            for k in range(j_up):
-                nu = (2 * j_up * (b - djk * 1e-3 * k**2) - 4 * dj * 1e-3 * j_up**3) * 1e-3
-                e_up = float(symmetric_top_levels(a_rot, b, dj, djk, dk, j_up, k))
-                if nu < BAND[0] or e_up > MAX_E_UP:
-                    continue
-                a = float(f"{_symmetric_top_a(nu, j_up, k, mu):.4g}")
-                g = (2 * j_up + 1) * float(symmetric_top_weight(k))
-                out.append(_row(species, f"J={j_up}-{j_up - 1} K={k}", round(nu, 7), round(e_up, 2), a,
-                                "none", SYMTOP_PROV, g, "complex organics"))
-    return out
 
 
 def _published_group_rows():
@@ -809,14 +741,164 @@ def _published_group_rows():
     return out
 
 
-def _memory_rows():
-    return [_row(s, t, nu, e, a, spin, MEMORY_PROV, g, fam) for s, t, nu, e, a, g, spin, fam in MEMORY_LINES]
+# ---------------------------------------------------------------------------
+# Lines copied from the published catalogues as vendored from Splatalogue
+# (sources/splatalogue_rows.txt, see sources/vendor_splatalogue.py and
+# splatalogue_rows.py): every line between 20 GHz and 1.91 THz up to MAX_E_UP of
+# H2CO (CDMS), CH3OH (line list 14), HNCO (CDMS, hyperfine-free rows), HDO (JPL),
+# CH3CCH (CDMS), CH3CN (JPL, whose hyperfine components are merged per (J, K)),
+# the SiO v=1 and v=2 ladders and HC3N (CDMS). They replace the recalled rows of
+# the recalled single lines and the ladders computed from recalled constants.
+# (species, family, g_up divisor per row from the catalogue's convention)
+# ---------------------------------------------------------------------------
+PUBLISHED_SPECIES = ["H2CO", "CH3OH", "HNCO", "HDO", "CH3CCH", "CH3CN"]
+FAMILY = {"H2CO": "complex organics", "CH3OH": "complex organics", "HNCO": "shock tracers",
+          "HDO": "water and hydrides", "CH3CCH": "complex organics", "CH3CN": "complex organics"}
+METHANOL_SYMMETRY = {"": "E", "++": "A+", "--": "A-", "+-": "A+-", "-+": "A-+"}
+
+
+def _published_provenance(ll_id, extra=""):
+    return (f"nu, E_up, A: {splat.LINE_LISTS[ll_id]}, entry as copied in Splatalogue (Remijan et al. 2007), "
+            f"{splat.copy_read()}" + extra)
+
+
+def _published_rows():
+    out = []
+    for species in PUBLISHED_SPECIES:
+        if species == "CH3CN":
+            out += _ch3cn_rows()
+            continue
+        for nu, qn, a, _, e_up, g_file, ll_id in splat.rows(species):
+            if not (BAND[0] <= nu <= BAND[1]) or e_up > MAX_E_UP or not np.isfinite(a):
+                continue
+            spin, extra = "none", "; g_up: the file's"
+            if species == "CH3CCH":
+                j_up, k, j_low, _, _ = splat.symmetric_top_levels(qn)
+                name, g = f"J={j_up}-{j_low} K={k}", (2 * j_up + 1) * float(symmetric_top_weight(k))
+                extra += " (2J+1 times the K-ladder weight of DEGENERACY)"
+            else:
+                levels = splat.asymmetric_top_levels(qn)
+                if levels is None:
+                    continue  # a hyperfine component (HNCO); the hyperfine-free row is kept
+                (ju, kau, kcu), (jl, kal, kcl), parity = levels
+                g = 2 * ju + 1
+                if species == "CH3OH":
+                    name = f"{ju}({kau})-{jl}({kal}) {METHANOL_SYMMETRY[parity]}"
+                    extra += " (2J+1; the A and E species share one partition function, see DEGENERACY)"
+                else:
+                    name = f"{_asym(f'{ju} {kau} {kcu}')}-{_asym(f'{jl} {kal} {kcl}')}"
+                    extra += " (2J+1)"
+                if species == "H2CO":
+                    spin = "ortho" if kau % 2 else "para"
+                    extra = "; g_up: 2J+1, the file's g_up over the spin weight (3 ortho, 1 para)"
+            # The copy keeps g_up values above 99 modulo 100 (4 ortho-H2CO lines): compare modulo 100.
+            expected = g * (3 if spin == "ortho" else 1)
+            if g_file % 100 != expected % 100:
+                raise ValueError(f"{species} {name}: g_up {g_file} of the file is not {g} times the spin weight")
+            out.append(_row(species, name, round(nu, 7), round(e_up, 2), float(f"{a:.4g}"), spin,
+                            _published_provenance(ll_id, extra), g, FAMILY[species]))
+    return _unique(out)
+
+
+def _unique(rows_):
+    """Rows with one name each: a name met twice (CH3OH A levels of equal J, K) gets the Kc of its levels."""
+    names = [r[:2] for r in rows_]
+    return [r for r in rows_ if names.count(r[:2]) == 1] + _renamed([r for r in rows_ if names.count(r[:2]) > 1])
+
+
+def _renamed(rows_):
+    out = []
+    for r in rows_:
+        levels = [splat.asymmetric_top_levels(q[1]) for q in splat.rows(r[0]) if round(q[0], 7) == r[2]]
+        levels = [lv for lv in levels if lv][0]
+        (ju, kau, kcu), (jl, kal, kcl), _ = levels
+        out.append((r[0], f"{ju}({kau},{kcu})-{jl}({kal},{kcl}) {r[1].split()[-1]}") + r[2:])
+    return out
+
+
+def _ch3cn_rows():
+    """CH3CN (J, K) lines: the JPL hyperfine components (14N) merged.
+
+    nu is the g A-weighted mean of the components (their LTE-thin intensity centroid); E_up and
+    A are those of the F=J+1 -> J component, whose upper level decays by that line only, so its
+    A is the (J, K) line's; g_up is (2J+1) times the K-ladder weight of DEGENERACY (the file's
+    g_up of that component is (2F+1) times the same weight).
+    """
+    groups = {}
+    for nu, qn, a, _, e_up, g_file, ll_id in splat.rows("CH3CN"):
+        j_up, k, j_low, f_up, f_low = splat.symmetric_top_levels(qn)
+        groups.setdefault((j_up, k), []).append((nu, a, e_up, g_file, f_up, f_low, ll_id))
+    out = []
+    for (j_up, k), parts in sorted(groups.items()):
+        top = [p for p in parts if p[4] == j_up + 1 and p[5] == j_up]
+        if k >= j_up or not top:
+            continue
+        _, a, e_up, g_file, f_up, _, ll_id = top[0]
+        weight = float(symmetric_top_weight(k))
+        if g_file != (2 * f_up + 1) * weight:
+            raise ValueError(f"CH3CN J={j_up} K={k}: g_up {g_file} of F={f_up} is not (2F+1) x {weight}")
+        nu = sum(p[0] * p[3] * p[1] for p in parts) / sum(p[3] * p[1] for p in parts)
+        if not (BAND[0] <= nu <= BAND[1]) or e_up > MAX_E_UP:
+            continue
+        entry = (f"{splat.LINE_LISTS[ll_id]}, entry as copied in Splatalogue (Remijan et al. 2007), "
+                 f"{splat.copy_read()}")
+        prov = (f"nu: g A-weighted mean of the hyperfine components of the {entry}; E_up, A: its F=J+1-J "
+                f"component, {entry}; g_up: (2J+1) times the K-ladder weight of DEGENERACY")
+        out.append(_row("CH3CN", f"J={j_up}-{j_up - 1} K={k}", round(nu, 7), round(e_up, 2), float(f"{a:.4g}"),
+                        "none", prov, (2 * j_up + 1) * weight, "complex organics"))
+    return out
+
+
+def _published_ladders():
+    """SiO v=1, v=2 and HC3N J>20 from the CDMS entries: {name: (nu, E_up, A, provenance)}."""
+    out = {}
+    for species, prefix in (("SiO v=1", "v=1 "), ("SiO v=2", "v=2 "), ("HC3N", "")):
+        for nu, qn, a, _, e_up, g_file, ll_id in splat.rows(species):
+            levels = splat.linear_rotor_levels(qn)
+            if levels is None or g_file != 2 * levels[0] + 1:
+                continue
+            out[f"{species.split()[0]} {prefix}J={levels[0]}-{levels[1]}"] = (
+                round(nu, 7), round(e_up, 2), float(f"{a:.4g}"), _published_provenance(ll_id, "; g_up: 2J+1"))
+    return out
 
 
 def _recombination_rows():
     table = recombination_lines(BAND[0] * u.GHz, BAND[1] * u.GHz)
     return [_row(str(r["species"]), str(r["transition"]), r["rest_frequency"].to_value("GHz"), NAN, NAN,
                  "none", str(r["provenance"]), NAN, "recombination lines") for r in table]
+
+
+# Catalog lines the demo cubes inject (demo_cubes/*.json): their values stay as the cubes were made
+# with them until the cubes are regenerated (see DEVELOPERS.md, "Demo cubes").
+DEMO_LINES = {"H2O 1_10-1_01", "H2O 1_11-0_00", "H2O 2_02-1_11", "H2O 2_11-2_02", "H2O 3_12-3_03",
+              "H2O 3_21-3_12"}
+# Para lines whose frequencies the demo generator chains into para-H2O level energies
+# (make_demo_cubes.PARA_H2O_LADDER): a published value that differs waits for the cubes' next run.
+DEMO_CHAIN = {"H2O 2_20-2_11", "H2O 3_13-2_20", "H2O 3_22-3_13", "H2O 3_31-3_22", "H2O 4_04-3_13",
+              "H2O 4_13-3_22", "H2O 4_22-3_31", "H2O 4_31-4_22", "H2O 5_15-4_22", "H2O 5_24-4_31"}
+
+
+def _published_water():
+    """{'upper-lower': (nu [GHz], E_up [K], A [s^-1])} of the JPL H2O entry as vendored."""
+    out = {}
+    for nu, qn, a, _, e_up, _, _ in splat.rows("H2O"):
+        levels = splat.asymmetric_top_levels(qn)
+        if levels:
+            out["-".join(_asym(" ".join(map(str, lv))) for lv in levels[:2])] = (nu, e_up, a)
+    return out
+
+
+def _water_published(published, nu, nu_from, e_a_from, prov):
+    """(nu, provenance) of a water row whose recalled values give way to the JPL entry."""
+    jpl = f"{JPL}, entry as copied in Splatalogue, {splat.copy_read()}"
+    clauses = prov.split("; ")
+    if nu_from == "memory":
+        nu = round(published[0], 7)
+        clauses[0] = f"nu: {jpl}"
+    if e_a_from == "memory":
+        clauses = [c for c in clauses if not c.startswith(("E_up", "A"))]
+        clauses.append(f"E_up{', A' if 'A: ' in prov else ''}: {jpl}")
+    return nu, "; ".join(clauses)
 
 
 def _water_provenance(nu_from, e_a_from, spin, a):
@@ -841,9 +923,8 @@ def rows():
     out += _lamda_rows(curated)
     out += _lamda_hyperfine_rows(curated)
     out += _rotor_rows()
-    out += _symmetric_top_rows()
+    out += _published_rows()
     out += _published_group_rows()
-    out += _memory_rows()
     out += _recombination_rows()
     names = [f"{r[0]} {r[1]}" for r in out]
     duplicated = {n for n in names if names.count(n) > 1}

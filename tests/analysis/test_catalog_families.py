@@ -95,9 +95,14 @@ def test_energy_cut_keeps_recombination_lines():
 def test_provenance_and_from_memory_marks(catalog):
     # Every row names its source; values recalled rather than copied say so.
     memory = np.array(["from memory" in p for p in catalog["provenance"]])
-    assert memory.sum() < len(catalog) / 2
-    for species in ("CH3OH", "H2CO", "CH3CN", "H13CN"):
-        assert all("from memory" in p for p in catalog["provenance"][catalog["species"] == species])
+    assert memory.sum() < len(catalog) / 10
+    # Species copied from the published catalogues (the vendored Splatalogue rows) name the copy.
+    for species in ("CH3OH", "H2CO", "CH3CN", "CH3CCH", "HNCO", "HDO"):
+        provenance = catalog["provenance"][catalog["species"] == species]
+        assert len(provenance) and not any("from memory" in p for p in provenance), species
+        assert all("casadata-2025.9.22" in p for p in provenance), species
+    # Ladders computed from recalled constants still say so.
+    assert all("from memory" in p for p in catalog["provenance"][catalog["species"] == "H13CN"])
 
 
 # ---------------------------------------------------------------------------
@@ -219,15 +224,17 @@ def test_symmetric_top_ladder(catalog):
     rows, k = rows[np.argsort(k)], np.sort(k)
     nu = rows["rest_frequency"].to_value(u.MHz)
     assert np.all(np.diff(nu) < 0)
+    # The published lines (JPL components merged) against the first-order spacing with the CDMS
+    # D_JK = 177.408 kHz (from memory); higher-order terms and the hyperfine centroids differ by < 0.5 %.
     d_jk = (nu[0] - nu[1:]) / (2 * 12 * k[1:] ** 2)
-    np.testing.assert_allclose(d_jk, d_jk[0], rtol=1e-6)
+    np.testing.assert_allclose(d_jk, 0.177408, rtol=5e-3)
     ratio = rows["g_up"] / np.where(k == 0, 1, 2)
     np.testing.assert_array_equal(ratio, np.where(k % 3 == 0, 2, 1) * 25)
 
 
 @pytest.mark.parametrize("name, mhz", [
-    # JPL/CDMS catalogue frequencies as recalled (from memory); the catalog computes these
-    # lines from recalled constants, so agreement checks the constants and the formulas.
+    # JPL/CDMS catalogue frequencies as recalled (from memory); the catalog copies these lines from
+    # the published entries (CH3CN: its hyperfine components merged), so agreement checks the copy.
     ("CH3CN J=5-4 K=0", 91987.0876), ("CH3CN J=5-4 K=2", 91979.9943), ("CH3CN J=12-11 K=3", 220709.0165),
     ("CH3CCH J=5-4 K=0", 85457.3003), ("CH3CCH J=5-4 K=3", 85442.6010), ("CH3CCH J=6-5 K=0", 102547.9842),
 ])

@@ -34,7 +34,18 @@ A_RTOL = 0.01
 
 # Provenance clauses that describe a computation rather than a copied number.
 DERIVED = ("h nu/k", "rigid rotor", "fitted", "level energies from the same constants", "symmetric-top formula",
-           "Rydberg formula", "component offsets", "upper level's energy in the level list")
+           "Rydberg formula", "component offsets", "upper level's energy in the level list",
+           "weighted mean of the hyperfine components")
+# (the CH3CN centres, weighted means of the JPL components, are checked in test_ch3cn_centres_*)
+SPLATALOGUE = VENDORED.parent / "splatalogue_rows.txt"
+
+
+def read_splatalogue():
+    """The vendored catalogue rows as arrays (nu [GHz], E_up [K], A [s^-1]), read as the file prints them."""
+    cells = [line.split("\t") for line in SPLATALOGUE.read_text().splitlines() if not line.startswith("#")]
+    nu = np.array([float(c[3]) for c in cells]) / 1e3
+    a = np.array([10 ** float(c[5]) if c[5] != "None" else np.nan for c in cells])
+    return nu, np.array([float(c[7]) for c in cells]), a
 # (an E_up read from a LAMDA file's level list is checked in test_nh3_e_up_is_the_upper_level_energy)
 QUANTITIES = {"nu": "rest_frequency", "E_up": "E_up", "A": "einstein_A"}
 
@@ -209,6 +220,14 @@ def test_each_value_is_backed_or_marked(catalog, name):
         text = clauses[key]
         if "from memory" in text or any(word in text for word in DERIVED):
             continue
+        if "splatalogue.db" in text:
+            # A value copied from the vendored Splatalogue rows: nu to 1 kHz, E_up to 0.006 K, A to 0.1 %.
+            nu, e_up, a = read_splatalogue()
+            value = row[column].value
+            printed = {"rest_frequency": (nu, 1e-6), "E_up": (e_up, 0.006), "einstein_A": (a, 1e-3 * value)}
+            column_values, tolerance = printed[column]
+            assert np.any(np.abs(column_values - value) <= tolerance), (name, key, value, "splatalogue rows")
+            continue
         vendored = _vendored_file(text)
         if vendored:
             # The value must be one the named LAMDA file prints (nu to 1 kHz, E_up to its
@@ -230,3 +249,22 @@ def test_nh3_e_up_is_the_upper_level_energy():
     for group, level in (("NH3 (J,K)=(1,1)", 16.169963295), ("NH3 (J,K)=(2,2)", 44.793901871)):
         rows = catalog[np.asarray(catalog["hyperfine_group"]) == group]
         assert np.allclose(rows["E_up"].to_value(u.K), level * 1.4387769, atol=0.006)
+
+
+def test_ch3cn_centres_lie_among_their_published_components():
+    # Each CH3CN (J, K) line of the catalog is the g A-weighted centroid of the 14N hyperfine components
+    # of the JPL entry (vendored Splatalogue rows): it must lie within the components' span, and the
+    # strong components (F=J-1..J+1 -> F-1) lie within 0.1 MHz of each other (Pickett et al. 1998 entry).
+    cells = [line.split("\t") for line in SPLATALOGUE.read_text().splitlines()
+             if not line.startswith("#") and line.startswith("606\t")]
+    spans = {}
+    for c in cells:
+        match = re.match(r"\s*(\d+)\(\s*(\d+)\)-", c[4])
+        spans.setdefault((int(match.group(1)), int(match.group(2))), []).append(float(c[3]))
+    catalog = load_catalog()
+    rows = catalog[np.asarray(catalog["species"]) == "CH3CN"]
+    assert len(rows) > 100
+    for row in rows:
+        j, k = (int(v) for v in re.match(r"J=(\d+)-\d+ K=(\d+)", str(row["transition"])).groups())
+        nu = row["rest_frequency"].to_value(u.MHz)
+        assert min(spans[(j, k)]) <= nu <= max(spans[(j, k)]), row["name"]

@@ -70,8 +70,10 @@ def test_water_against_the_asymmetric_rotor_formula():
 @pytest.mark.parametrize("species, a_ghz, b_ghz", [("CH3CN", 158.099, 9.198899), ("CH3CCH", 158.590, 8.545877)])
 def test_symmetric_tops_against_the_classical_formula(species, a_ghz, b_ghz):
     # Q ~ <g_I> sqrt(pi (kT/h)^3 / (A B^2)) (Gordy & Cook 1984, ch. 3), where <g_I> = 4/3 is
-    # the mean of the K ladders' weights 2 (K = 3n) and 1 used by the catalog.
-    t = np.array([75.0, 150.0, 300.0])
+    # the mean of the K ladders' weights 2 (K = 3n) and 1 used by the catalog. The bundled CDMS
+    # tables (tags 41505, 40502) also count vibrationally excited states, which fill above ~100 K
+    # (CH3CN v8=1 lies ~525 K up; from memory): the ground-state formula is compared up to 75 K.
+    t = np.array([37.5, 75.0])
     kt_h = t / H_OVER_K
     classical = 4 / 3 * np.sqrt(np.pi * kt_h**3 / (a_ghz * b_ghz**2))
     np.testing.assert_allclose(partition_function(species, t * u.K).value, classical, rtol=0.03)
@@ -194,3 +196,50 @@ def test_h2o_plus_against_the_cdms_table():
     # at 2.725 K only the ground level 0_00 J=1/2 of ortho-H2O+ counts: (2J+1)(2I+1) = 2 x 3 = 6
     # (the CDMS table counts the spin weight; H2O+'s ortho levels have Ka + Kc even; common practice)
     assert partition_function("H2O+", 2.725 * u.K).value == pytest.approx(6.0, rel=1e-3)
+
+
+# JPL partition function tables (Pickett et al. 1998, JQSRT 60, 883; copy in the PyPI wheel
+# astroquery-0.4.11, jplspec/data/catdir.cat), lg Q at JPL_H2O_T: H2CO (tag 30004) counts ortho levels
+# with spin weight 3 and para with 1; CH3OH (tag 32003) counts A and E levels with 2J+1 each.
+JPL_H2CO_LG_Q = [3.4598, 3.2724, 3.0086, 2.5584, 2.1094, 1.6501, 1.1399]
+JPL_CH3OH_LG_Q = [3.9765, 3.7216, 3.3870, 2.8640, 2.3622, 1.8372, 1.2910]
+
+
+def test_h2co_ortho_and_para_add_up_to_the_published_total():
+    zero = partition_energy_zero("H2CO", "ortho")
+    # ortho-H2CO counts from 1_11, 10.54 cm^-1 = 15.16 K above para 0_00 (CDMS/JPL level energy, from memory)
+    assert zero.to_value(u.K) == pytest.approx(15.16, abs=0.01)
+    assert partition_energy_zero("H2CO", "para").to_value(u.K) == 0
+    total = (partition_function("H2CO", JPL_H2O_T, "para")
+             + 3 * np.exp(-zero / JPL_H2O_T) * partition_function("H2CO", JPL_H2O_T, "ortho"))
+    np.testing.assert_allclose(total.value, 10 ** np.array(JPL_H2CO_LG_Q), rtol=1e-3)
+    # the lowest levels alone at 2.725 K (2J+1 each): para 0_00, 1_01 (3.50 K), 2_02 (10.48 K), 3_03 (20.96 K);
+    # ortho 1_11, 1_10 (15.16, 15.40 K), 2_12 (21.92 K), 2_11 (22.62 K) (CDMS level energies, from memory)
+    t = 2.725
+    assert partition_function("H2CO", t * u.K, "para").value == pytest.approx(
+        1 + 3 * np.exp(-3.50 / t) + 5 * np.exp(-10.48 / t) + 7 * np.exp(-20.96 / t), rel=2e-3)
+    assert partition_function("H2CO", t * u.K, "ortho").value == pytest.approx(
+        3 + 3 * np.exp(-0.24 / t) + 5 * np.exp(-6.76 / t) + 5 * np.exp(-7.46 / t), rel=5e-3)
+    with pytest.raises(CatalogError, match="outside"):
+        partition_function("H2CO", 500 * u.K, "ortho")
+
+
+def test_methanol_a_and_e_add_up_to_the_published_total_where_the_level_list_is_complete():
+    zero = partition_energy_zero("CH3OH", "E")
+    # E-CH3OH counts from 1_-1 E, 5.49 cm^-1 = 7.90 K above 0_0 A+ (JPL level energy, from memory)
+    assert zero.to_value(u.K) == pytest.approx(7.90, abs=0.01)
+    t = [37.5, 18.75, 9.375] * u.K
+    total = partition_function("CH3OH", t, "A") + np.exp(-zero / t) * partition_function("CH3OH", t, "E")
+    np.testing.assert_allclose(total.value, 10 ** np.array(JPL_CH3OH_LG_Q[-3:]), rtol=1e-3)
+    # above 37.5 K the vt=0 level list misses torsionally excited levels the JPL total counts: refused
+    with pytest.raises(CatalogError, match="outside"):
+        partition_function("CH3OH", 75 * u.K, "A")
+
+
+def test_catalog_g_up_of_spin_species_leaves_the_spin_weight_out():
+    catalog = load_catalog()
+    # 2J+1 of the upper level (make_transitions.DEGENERACY; CDMS prints 3(2J+1) for ortho-H2CO)
+    for name, g in (("H2CO 2_11-1_10", 5), ("H2CO 3_03-2_02", 7), ("CH3OH 5(0)-4(0) A+", 11),
+                    ("CH3OH 5(-1)-4(-1) E", 11)):
+        assert find_line(name, catalog)["g_up"] == g
+    assert find_line("H2CO 2_11-1_10", catalog)["spin_isomer"] == "ortho"
