@@ -51,10 +51,11 @@ Examples
 
 import concurrent.futures
 import os
+import threading
 from dataclasses import dataclass
 
 import numpy as np
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 from .cube_file import cube_array, custom_mask, file_view, stored_array
 from .errors import CancelledComputation, ClusterError, CubeFileError
@@ -66,6 +67,7 @@ __all__ = [
     "channel_runs",
     "spectra_blocks",
     "plane_blocks",
+    "streams",
     "resolve_client",
     "run_blocks",
 ]
@@ -214,22 +216,78 @@ def _read_block(array, block, dtype, mask=None, scaling=None):
     values and each run is scaled while it is copied (blanks become NaN).
     """
     out = np.empty(block.shape, dtype=dtype)
-    is_dask = not isinstance(array, np.ndarray)
     k = 0
     for start, stop in block.runs:
-        part = array[start:stop, block.rows, block.columns]
-        if is_dask:
-            part = part.compute(scheduler="synchronous")
-        # one copy: byte order and dtype are converted while copying out of the memory map
-        if scaling is None:
-            out[k:k + stop - start] = part
-        else:
-            scaling.apply_into(part, out[k:k + stop - start])
-        if mask is not None:
-            keep = mask((slice(start, stop), block.rows, block.columns))
-            out[k:k + stop - start][~keep] = np.nan
+        _read_run(array, start, stop, block, out[k:k + stop - start], mask, scaling)
         k += stop - start
     return out
+
+
+def _read_run(array, start, stop, block, out, mask, scaling):
+    """Copy channels ``start:stop`` of ``block``'s pixels into ``out`` (native dtype)."""
+    part = array[start:stop, block.rows, block.columns]
+    if not isinstance(array, np.ndarray):
+        part = part.compute(scheduler="synchronous")
+    # one copy: byte order and dtype are converted while copying out of the memory map
+    if scaling is None:
+        np.copyto(out, part, casting="unsafe")
+    else:
+        scaling.apply_into(part, out)
+    if mask is not None:
+        keep = mask((slice(start, stop), block.rows, block.columns))
+        out[~keep] = np.nan
+
+
+# Streaming (`run_blocks` with a kernel that has ``stream``): a block of many whole image rows is
+# read a slab of channels at a time into one reused buffer of about this size, so that the
+# byte-swapping copy and the kernel's products on it stay in the core's L2 cache, and each
+# channel of a slab is one long contiguous piece of the file (tens of kB). Reading the same
+# pixels as whole spectra of a few kB per channel made the copy alone 1.3-1.8x one np.sum pass
+# over the data; slabs of 16 channels x 16384 pixels copy in 0.7x (issue #20, measured on
+# the 1 GB benchmark cube).
+SLAB_BYTES = 2**20
+STREAM_PIXELS = 16384
+_buffers = threading.local()
+
+
+def _slab_buffer(n_values, dtype):
+    buffer = getattr(_buffers, "array", None)
+    if buffer is None or buffer.size < n_values or buffer.dtype != dtype:
+        buffer = _buffers.array = np.empty(n_values, dtype=dtype)
+    return buffer
+
+
+def _slabs(array, block, dtype, mask, scaling):
+    """Yield ``(first, slab)``: the block's selected channels ``first:first + n`` as (n, pixels).
+
+    Each slab is a view of one thread-local buffer, overwritten by the next slab.
+    """
+    dtype = np.dtype(dtype)
+    _, ny, nx = block.shape
+    pixels = ny * nx
+    per_slab = max(1, SLAB_BYTES // (pixels * dtype.itemsize))
+    buffer = _slab_buffer(per_slab * pixels, dtype)
+    first = 0
+    for start, stop in block.runs:
+        for c0 in range(start, stop, per_slab):
+            c1 = min(stop, c0 + per_slab)
+            out = buffer[:(c1 - c0) * pixels].reshape(c1 - c0, ny, nx)
+            _read_run(array, c0, c1, block, out, mask, scaling)
+            yield first, out.reshape(c1 - c0, pixels)
+            first += c1 - c0
+
+
+def streams(cube, client=None):
+    """True when `run_blocks` hands blocks to a streaming kernel slab by slab (in this process).
+
+    Callers then choose larger blocks (`spectra_blocks` with ``block_bytes`` of
+    about `STREAM_PIXELS` spectra): memory stays bounded by the slab buffer.
+    """
+    if resolve_client(client) is not None:
+        return False
+    if cube_array(cube) is not None:
+        return True
+    return stored_array(cube) is not None or isinstance(getattr(cube, "_data", None), np.ndarray)
 
 
 def _remote_block(view, block, dtype, mask_bits, kernel):
@@ -285,6 +343,20 @@ def default_threads():
         return os.cpu_count() or 1
 
 
+_controller = []
+
+
+def _blas_threads(limit):
+    """threadpoolctl's BLAS thread limit without scanning the loaded libraries on every call.
+
+    Building threadpoolctl's view of the loaded libraries took 2.6 ms, paid by every
+    `run_blocks` (a moment map of a 300-channel slab takes about 30 ms; issue #20).
+    """
+    if not _controller:
+        _controller.append(ThreadpoolController())
+    return _controller[0].limit(limits=limit, user_api="blas")
+
+
 def _check_cancel(cancel, done, total):
     if cancel is not None and cancel.is_set():
         raise CancelledComputation(f"cancelled after {done} of {total} blocks; nothing was returned. "
@@ -302,7 +374,13 @@ def run_blocks(cube, kernel, blocks, consume, *, dtype=np.float64, client=None, 
         ``kernel(data) -> result`` with ``data`` a native-order array of shape
         ``block.shape`` in ``dtype``, NaN where the cube is masked or blank. It
         must be pure; for a cluster it must also pickle (a module-level
-        function or an instance of a module-level class).
+        function or an instance of a module-level class). A kernel that also
+        has ``stream(slabs, shape, reread)`` is given, in this process, the
+        block as ``slabs``: ``(first, slab)`` pairs, ``slab`` of shape
+        (n, pixels) holding the block's selected channels ``first:first + n``
+        in a buffer reused for the next slab; ``reread(rows)`` returns the
+        block's rows ``rows`` (a slice) whole, as ``kernel`` would get them.
+        ``stream`` must return what ``kernel`` returns for the block.
     blocks : list of Block
         From `spectra_blocks` or `plane_blocks`.
     consume : callable
@@ -347,15 +425,25 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     threads = default_threads() if threads is None else max(1, int(threads))
     ahead = BlockReadAhead(data, blocks) if isinstance(data, np.ndarray) else None
 
+    stream = getattr(kernel, "stream", None) if isinstance(data, np.ndarray) else None
+
     def work(block):
         if ahead is not None:
             ahead.before(block)
-        return kernel(_read_block(data, block, dtype, mask, scaling))
+        if stream is None:
+            return kernel(_read_block(data, block, dtype, mask, scaling))
+
+        def reread(rows):
+            part = Block(block.index, block.runs, slice(block.rows.start + rows.start, block.rows.start + rows.stop),
+                         block.columns)
+            return _read_block(data, part, dtype, mask, scaling)
+
+        return stream(_slabs(data, block, dtype, mask, scaling), block.shape, reread)
 
     if threads == 1 or total <= 1:
         # BLAS threads beyond the cores allowed fight over them: with the process on one core, an
         # unlimited OpenBLAS made the moment kernel 7x slower (bench_moments, issue #20).
-        with threadpool_limits(limits=threads, user_api="blas"):
+        with _blas_threads(threads):
             for done, block in enumerate(blocks, start=1):
                 consume(block, work(block))
                 if progress is not None:
@@ -367,7 +455,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     queue = iter(blocks)
     done = 0
     # One BLAS thread per worker thread: the worker threads already fill the cores.
-    with threadpool_limits(limits=1, user_api="blas"), \
+    with _blas_threads(1), \
             concurrent.futures.ThreadPoolExecutor(max_workers=threads, thread_name_prefix="cubeloupe-block") as pool:
         try:
             for block in queue:
