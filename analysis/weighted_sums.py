@@ -70,20 +70,60 @@ def _accumulate(slab, first, n_free, basis, window_rows, totals):
         v1 = slab[c0 + 1] if m > 1 else zeros
         v2 = slab[c0 + 2] if m > 2 else zeros
         v3 = slab[c0 + 3] if m > 3 else zeros
-        for k in range(n_basis if free else 3):
-            w = np.zeros(4)
+        rows = n_basis if free else 3
+        w = np.zeros((max(rows, 3), 4))
+        for k in range(rows):
             for g in range(m):
-                w[g] = basis[k, j0 + g] if free else window_rows[k, j0 + g - n_free]
-            w0, w1, w2, w3 = w[0], w[1], w[2], w[3]
-            out = totals[3 + k] if free else totals[k]
-            for x in range(pixels):
-                out[x] += w0 * v0[x] + w1 * v1[x] + w2 * v2[x] + w3 * v3[x]
-        if free:
-            out = totals[last]
-            for x in range(pixels):
-                a0, a1, a2, a3 = np.float64(v0[x]), np.float64(v1[x]), np.float64(v2[x]), np.float64(v3[x])
-                out[x] += a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3
+                w[k, g] = basis[k, j0 + g] if free else window_rows[k, j0 + g - n_free]
+        if free and n_basis == 2:
+            # the usual case (an order-1 baseline): both sums and the squares in one sweep
+            _free_two(v0, v1, v2, v3, w, totals[3], totals[4], totals[last])
+        elif free:
+            for k in range(n_basis):
+                _one_row(v0, v1, v2, v3, w[k], totals[3 + k])
+            _squares(v0, v1, v2, v3, totals[last])
+        else:
+            _window_three(v0, v1, v2, v3, w, totals[0], totals[1], totals[2])
         c0 += m
 
 
-accumulate = None if njit is None else njit(cache=True, nogil=True, error_model="numpy")(_accumulate)
+def _one_row(v0, v1, v2, v3, w, out):
+    w0, w1, w2, w3 = w[0], w[1], w[2], w[3]
+    for x in range(out.size):
+        out[x] += w0 * v0[x] + w1 * v1[x] + w2 * v2[x] + w3 * v3[x]
+
+
+def _squares(v0, v1, v2, v3, out):
+    for x in range(out.size):
+        a0, a1, a2, a3 = np.float64(v0[x]), np.float64(v1[x]), np.float64(v2[x]), np.float64(v3[x])
+        out[x] += a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3
+
+
+def _free_two(v0, v1, v2, v3, w, out0, out1, squares):
+    p0, p1, p2, p3 = w[0, 0], w[0, 1], w[0, 2], w[0, 3]
+    q0, q1, q2, q3 = w[1, 0], w[1, 1], w[1, 2], w[1, 3]
+    for x in range(out0.size):
+        a0, a1, a2, a3 = np.float64(v0[x]), np.float64(v1[x]), np.float64(v2[x]), np.float64(v3[x])
+        out0[x] += p0 * a0 + p1 * a1 + p2 * a2 + p3 * a3
+        out1[x] += q0 * a0 + q1 * a1 + q2 * a2 + q3 * a3
+        squares[x] += a0 * a0 + a1 * a1 + a2 * a2 + a3 * a3
+
+
+def _window_three(v0, v1, v2, v3, w, out0, out1, out2):
+    p0, p1, p2, p3 = w[0, 0], w[0, 1], w[0, 2], w[0, 3]
+    q0, q1, q2, q3 = w[1, 0], w[1, 1], w[1, 2], w[1, 3]
+    r0, r1, r2, r3 = w[2, 0], w[2, 1], w[2, 2], w[2, 3]
+    for x in range(out0.size):
+        a0, a1, a2, a3 = np.float64(v0[x]), np.float64(v1[x]), np.float64(v2[x]), np.float64(v3[x])
+        out0[x] += p0 * a0 + p1 * a1 + p2 * a2 + p3 * a3
+        out1[x] += q0 * a0 + q1 * a1 + q2 * a2 + q3 * a3
+        out2[x] += r0 * a0 + r1 * a1 + r2 * a2 + r3 * a3
+
+
+if njit is None:
+    accumulate = None
+else:
+    _compile = njit(cache=True, nogil=True, error_model="numpy")
+    _one_row, _squares, _free_two, _window_three = (_compile(f) for f in (_one_row, _squares, _free_two,
+                                                                           _window_three))
+    accumulate = _compile(_accumulate)
