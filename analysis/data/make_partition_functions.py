@@ -204,7 +204,9 @@ def rows():
         energy = mt.linear_rotor_levels(b, d, j)
         q = _level_sum(energy, 2 * j + 1, GRID)
         prov = ("sum over the levels J=0-150 "
-                f"from the catalog's constants B={b:.4f} MHz, D={d:.3f} kHz (fitted to recalled CDMS lines, from memory)")
+                f"from the catalog's constants B={b:.4f} MHz, D={d:.3f} kHz " + (
+                    "(fitted to the published lines of the vendored Splatalogue rows)" if species in mt.CONSTANTS_FROM_ROWS
+                    else "(fitted to recalled CDMS lines, from memory)"))
         out += [(species, "none", float(t), float(qi), 0.0, prov) for t, qi in zip(GRID, q)]
     for species, b in RIGID.items():
         energy = mt.linear_rotor_levels(b, 0.0, j)

@@ -455,6 +455,10 @@ def rotor_constants():
     anchors = dict(ROTOR_ANCHORS)
     _, _, lines = read_lamda("hc3n.dat")
     anchors["HC3N"] = [(up - 1, nu * 1e3) for up, _, _, nu, _ in lines]
+    # Where the vendored catalogue rows hold the ladder, fit to those lines instead (CONSTANTS_FROM_ROWS).
+    for name in CONSTANTS_FROM_ROWS:
+        anchors[name] = sorted({int(key.split("J=")[1].split("-")[0]): value[0] * 1e3
+                                for key, value in _published_ladders().items() if key.startswith(f"{name} J=")}.items())
     out = {}
     for name, pairs in anchors.items():
         j = np.array([p[0] for p in pairs], dtype=float)
@@ -464,6 +468,13 @@ def rotor_constants():
         out[name] = (float(b), float(d) * 1e3, float(np.max(np.abs(nu - design @ (b, d)))))
     return out
 
+
+CONSTANTS_FROM_ROWS_PROV = ("nu: B, D fitted to the published lines of the vendored Splatalogue rows "
+                            "(sources/splatalogue_rows.txt), extrapolated past the last; E_up: level energies "
+                            "from the same constants; A: rigid rotor with the dipole moment of the CDMS entry, "
+                            "from memory")
+# Species whose B, D are fitted to the published lines of the vendored rows (not to recalled ones).
+CONSTANTS_FROM_ROWS = ["H13CN", "HC15N", "DCN", "HN13C", "H13CO+", "DCO+", "N2D+", "C34S", "13CS"]
 
 ROTORS.append(("HC3N", "", "dense gas", 3.73, 0.0, None))
 HC3N_PROV = ("nu: B, D fitted to the lines of the LAMDA file hc3n.dat (vendored copy of the PyPI wheel "
@@ -574,11 +585,18 @@ def _atom_g(transition):
 
 def _curated_rows():
     out = []
+    ladders = _published_ladders()
     for species, prov, table in PUBLISHED_LADDERS:
         for j, (nu, e_up, a) in enumerate(table, start=1):
             if species == "HCN" and j == 1:
                 continue  # HCN J=1-0 is a hyperfine group (LAMDA_HYPERFINE)
-            out.append(_row(species, f"J={j}-{j - 1}", nu, e_up, a, "none", prov, 2 * j + 1))
+            row_prov = prov
+            if species == "HCO+" and f"HCO+ J={j}-{j - 1}" in ladders:
+                # the LAMDA file's E_up and A stay; nu from the published list (0.001-0.02 MHz from the
+                # recalled CDMS values, within the LAMDA files' spread)
+                nu, line_prov = ladders[f"HCO+ J={j}-{j - 1}"][0], ladders[f"HCO+ J={j}-{j - 1}"][3]
+                row_prov = f"nu: {line_prov.split(': ', 1)[1].split('; ')[0]}; E_up, A: {SOURCES['hco+']}"
+            out.append(_row(species, f"J={j}-{j - 1}", nu, e_up, a, "none", row_prov, 2 * j + 1))
     jpl_water = _published_water()
     for upper, lower, nu, nu_from, e_up, a, e_a_from in WATER:
         j = int(upper.split("_")[0])
@@ -605,6 +623,8 @@ def _curated_rows():
             g = 2 * 1.5 + 1 if "J=3/2" in transition else 2 * 0.5 + 1
         else:  # CH+, HF: J=1-0
             g = 3
+            if species == "HF" and "HF J=1-0" in ladders:
+                nu, e_up, a, prov = ladders["HF J=1-0"]
         out.append(_row(species, transition, nu, e_up, a, spin, prov, g))
     return out
 
@@ -677,7 +697,8 @@ def _rotor_rows():
             if species == "HC3N" and j <= 20:
                 continue  # from the LAMDA file
             a = float(f"{_rigid_rotor_a(nu, j, mu):.4g}")
-            prov = HC3N_PROV if species == "HC3N" else CONSTANTS_PROV
+            prov = HC3N_PROV if species == "HC3N" else (
+                CONSTANTS_FROM_ROWS_PROV if species in CONSTANTS_FROM_ROWS else CONSTANTS_PROV)
             name = f"{species} {prefix}J={j}-{j - 1}"
             if name in published:
                 nu, e_up, a, prov = published[name]
@@ -852,14 +873,22 @@ def _ch3cn_rows():
 def _published_ladders():
     """SiO v=1, v=2 and HC3N J>20 from the CDMS entries: {name: (nu, E_up, A, provenance)}."""
     out = {}
-    for species, prefix in (("SiO v=1", "v=1 "), ("SiO v=2", "v=2 "), ("HC3N", "")):
+    ladders = [("SiO v=1", "v=1 "), ("SiO v=2", "v=2 ")] + [(s, "") for s in PUBLISHED_ROTORS + ["HCO+", "HF"]]
+    for species, prefix in ladders:
         for nu, qn, a, _, e_up, g_file, ll_id in splat.rows(species):
             levels = splat.linear_rotor_levels(qn)
-            if levels is None or g_file != 2 * levels[0] + 1:
-                continue
-            out[f"{species.split()[0]} {prefix}J={levels[0]}-{levels[1]}"] = (
-                round(nu, 7), round(e_up, 2), float(f"{a:.4g}"), _published_provenance(ll_id, "; g_up: 2J+1"))
+            name = f"{species.split()[0]} {prefix}J={levels[0]}-{levels[1]}" if levels else None
+            if levels is None or name in out or not np.isfinite(a) or g_file % (2 * levels[0] + 1):
+                continue  # hyperfine components; a second copy of a line (N2D+) keeps the first
+            spins = int(g_file // (2 * levels[0] + 1))
+            extra = "; g_up: 2J+1" + (f" (the file's g_up over {spins}, the nuclear-spin multiplicity)"
+                                       if spins > 1 else "")
+            out[name] = (round(nu, 7), round(e_up, 2), float(f"{a:.4g}"), _published_provenance(ll_id, extra))
     return out
+
+
+# Linear rotors whose hyperfine-free lines the vendored rows hold (see sources/vendor_splatalogue.py).
+PUBLISHED_ROTORS = ["HC3N", "N2D+", "HN13C", "C34S", "13CS", "DCN", "DCO+", "C17O", "H13CN", "HC15N", "H13CO+"]
 
 
 def _recombination_rows():

@@ -14,10 +14,12 @@ ROWS = Path(__file__).parent / "sources" / "splatalogue_rows.txt"
 LINE_LISTS = {10: "CDMS catalogue (Mueller et al. 2005)", 12: "JPL catalogue (Pickett et al. 1998)",
               14: "Splatalogue line list 14 ('SLISE')"}
 SPECIES_IDS = {"H2CO": 194, "CH3OH": 55, "HNCO": 673, "HDO": 472, "CH3CN": 606, "CH3CCH": 311,
-               "H2O": 418, "SiO v=1": 1089, "SiO v=2": 1090, "HC3N": 294}
+               "H2O": 418, "SiO v=1": 1089, "SiO v=2": 1090, "HC3N": 294, "N2D+": 59, "HN13C": 473,
+               "C34S": 117, "13CS": 142, "DCN": 23, "DCO+": 256, "C17O": 226, "H13CN": 137, "HC15N": 255,
+               "H13CO+": 38, "HCO+": 15, "HF": 535}
 _ASYM = re.compile(r"^\s*(\d+)\(\s*(-?\d+),\s*(\d+)\)-\s*(\d+)\(\s*(-?\d+),\s*(\d+)\)\s*([+-]{2})?\s*$")
 _SYMTOP = re.compile(r"^\s*(\d+)\(\s*(\d+)\)-\s*(\d+)\(\s*(\d+)\)(?:,\s*F=\s*(\d+)-\s*(\d+))?\s*$")
-_LINEAR = re.compile(r"^\s*J=\s*(\d+)-\s*(\d+)\s*$|^\s*(\d+)-\s*(\d+)\s*$")
+_LINEAR = re.compile(r"^\s*(?:J=)?\s*(\d+)\s*-\s*(\d+)\s*$")
 
 
 def copy_read():
@@ -26,7 +28,7 @@ def copy_read():
 
 
 def rows(species):
-    """[(nu [GHz], QN text, A [s^-1], E_low [K], E_up [K], g_up, line list id)] of one species."""
+    """[(nu [GHz], QN text, A [s^-1], E_low [K], E_up [K], g_up, line list id)] of one species (nan: none given)."""
     wanted = str(SPECIES_IDS[species])
     out = []
     for line in ROWS.read_text(encoding="utf-8").splitlines():
@@ -36,8 +38,8 @@ def rows(species):
         if cells[0] != wanted:
             continue
         a = 10 ** float(cells[5]) if cells[5] != "None" else float("nan")
-        out.append((float(cells[3]) * 1e-3, cells[4], a, float(cells[6]), float(cells[7]), int(cells[8]),
-                    int(cells[1])))
+        g = float(cells[8]) if cells[8] != "None" else float("nan")
+        out.append((float(cells[3]) * 1e-3, cells[4], a, float(cells[6]), float(cells[7]), g, int(cells[1])))
     return out
 
 
@@ -66,5 +68,4 @@ def linear_rotor_levels(qn):
     match = _LINEAR.match(qn)
     if not match:
         return None
-    values = [int(v) for v in match.groups() if v is not None]
-    return values[0], values[1]
+    return int(match.group(1)), int(match.group(2))

@@ -37,6 +37,20 @@ WANTED = [
     (1089, 10, 3000.0),  # SiO v=1 (CDMS)
     (1090, 10, 4500.0),  # SiO v=2 (CDMS)
     (294, 10, 700.0),   # HC3N v=0 (CDMS)
+    # isotopologues and ions of the linear-rotor ladders (hyperfine-free rows are used)
+    (59, 10, 700.0),    # N2D+ (CDMS)
+    (473, 12, 700.0),   # HN13C (JPL)
+    (473, 14, 700.0),   # HN13C (line list 14)
+    (117, 14, 700.0),   # C34S v=0
+    (142, 14, 700.0),   # 13CS v=0
+    (23, 14, 700.0),    # DCN v=0
+    (256, 14, 700.0),   # DCO+ v=0
+    (226, 14, 700.0),   # C17O
+    (137, 14, 700.0),   # H13CN v=0
+    (255, 14, 700.0),   # HC15N v=0
+    (38, 14, 700.0),    # H13CO+
+    (15, 14, 700.0),    # HCO+ v=0
+    (535, 14, 700.0),   # HF
 ]
 COLUMNS = ("m.species_id, m.ll_id, s.s_name, m.orderedfreq, m.resolved_QNs, m.aij, m.lower_state_energy_K, "
            "m.upper_state_energy_K, m.upper_state_degeneracy")
