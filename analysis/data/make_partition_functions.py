@@ -17,11 +17,12 @@ commit both files. Three kinds of source, named per row in ``provenance``:
   o-H2O file (sources/lamda/o-h2o-levels.dat, spin weight 3 divided out,
   counted from 1_01, 34.23 K above 0_00), para as the JPL total less the
   ortho part, Q_p = Q_JPL - 3 exp(-E(1_01)/kT) Q_o, at the JPL temperatures;
-* H2CO's ortho and para and CH3OH's A and E own Q: sums over the levels met in
-  the published line lists vendored from Splatalogue (sources/splatalogue_rows.txt:
-  CDMS H2CO, CH3OH vt=0 of line list 14), g = 2J+1, each from its lowest level,
-  tabulated up to the highest JPL temperature at which the two add up (with the
-  totals' spin weights) to the JPL total within 1 % (H2CO 300 K, CH3OH 37.5 K);
+* the ortho and para Q of H2CO and c-C3H2 and CH3OH's A and E Q: sums over the
+  levels met in the published line lists vendored from Splatalogue
+  (sources/splatalogue_rows.txt: CDMS H2CO, JPL c-C3H2, CH3OH vt=0 of line list
+  14), g = 2J+1, each from its lowest level, tabulated up to the highest JPL
+  temperature at which the two add up (with the totals' spin weights) to the JPL
+  total within 1 % (H2CO 300 K, c-C3H2 150 K, CH3OH 37.5 K);
 * sums over a published level list (the vendored LAMDA files): each spin
   species' own Q, with energies counted from its lowest level, tabulated only
   up to a sixth of the highest listed level's energy, where the missing levels
@@ -53,11 +54,10 @@ CDMS_SPECIES = {  # catalog species: (CDMS tag, hyperfine spin multiplicity divi
     # CH3CCH and CH3CN: the CDMS weights of the K ladders are the catalog's (make_transitions.DEGENERACY)
     "CH3CCH": (40502, 1), "CH3CN": (41505, 1),
 }
-JPL_SPECIES = {"H2O": 18003, "HDO": 19002, "H2CO": 30004, "CH3OH": 32003}
+JPL_SPECIES = {"H2O": 18003, "HDO": 19002, "H2CO": 30004, "CH3OH": 32003, "c-C3H2": 38002}
 CDMS_SPIN_TOTALS = {"H2O+": 18505}  # CDMS tables that count both spin isomers with their spin weights
 LEVEL_FILES = [("NH3", "ortho", "o-nh3.dat", 1), ("NH3", "para", "p-nh3.dat", 1),
                ("H2S", "ortho", "oh2s.dat", 1), ("H2S", "para", "ph2s.dat", 1),
-               ("c-C3H2", "ortho", "o-c3h2.dat", 1), ("c-C3H2", "para", "p-c3h2.dat", 1),
                ("H3O+", "ortho", "o-h3o+.dat", 1), ("H3O+", "para", "p-h3o+.dat", 1),
                ("HCl", "none", "hcl@hfs.dat", 4), ("[CII]", "none", "c+.dat", 1),
                ("[NII]", "none", "n+.dat", 1), ("[OI]", "none", "oatom.dat", 1)]
@@ -108,11 +108,11 @@ def _water_spin_rows(jpl_lg_q, jpl_copy):
 
 
 def spin_levels(species):
-    """{spin species: (E [K], g)} of H2CO (ortho, para) or CH3OH (A, E), from the vendored catalogue rows.
+    """{spin species: (E [K], g)} of H2CO or c-C3H2 (ortho, para) or CH3OH (A, E), from the vendored rows.
 
     Every level met as the upper or lower level of a line of the entry (sources/splatalogue_rows.txt:
-    H2CO from CDMS, CH3OH vt=0 from Splatalogue's line list 14), with g = 2J+1 (no nuclear-spin
-    factors) and E on the molecule's scale (from para-H2CO 0_00, from A-CH3OH 0_0+).
+    H2CO from CDMS, c-C3H2 from JPL, CH3OH vt=0 from Splatalogue's line list 14), with g = 2J+1
+    (no nuclear-spin factors) and E on the molecule's scale (from para 0_00, from A-CH3OH 0_0+).
     """
     levels = {}
     for _, qn, _, e_low, e_up, _, _ in splat.rows(species):
@@ -123,6 +123,8 @@ def spin_levels(species):
         for level, energy, sign in ((upper, e_up, parity[:1]), (lower, e_low, parity[1:])):
             if species == "H2CO":
                 spin = "ortho" if level[1] % 2 else "para"
+            elif species == "c-C3H2":  # ortho: Ka + Kc odd, where the JPL entry prints g_up = 3(2J+1)
+                spin = "ortho" if (level[1] + level[2]) % 2 else "para"
             else:
                 spin = "A" if parity else "E"
             levels[(spin, sign) + level] = (energy, 2 * level[0] + 1)
@@ -135,7 +137,9 @@ def spin_levels(species):
 # Spin species summed over the vendored level lists, tabulated up to the temperature where the
 # sum of both (with the spin weights of the published totals) stays within 1 % of the JPL
 # total (tests/analysis/test_partition.py checks it): (species, weights of the total).
-SPIN_SUMS = {"H2CO": {"ortho": 3.0, "para": 1.0}, "CH3OH": {"A": 1.0, "E": 1.0}}
+SPIN_SUMS = {"H2CO": {"ortho": 3.0, "para": 1.0}, "CH3OH": {"A": 1.0, "E": 1.0},
+             "c-C3H2": {"ortho": 3.0, "para": 1.0}}
+ENTRY = {"H2CO": "CDMS", "CH3OH": "line list 14", "c-C3H2": "JPL"}
 
 
 def _spin_sum_rows(jpl_tables, jpl_copy):
@@ -152,7 +156,7 @@ def _spin_sum_rows(jpl_tables, jpl_copy):
         grid = np.unique(np.r_[GRID[GRID <= t_max], t_jpl[t_jpl <= t_max]])
         for spin, (e, g) in levels.items():
             q = _level_sum(e - zeros[spin], g, grid)
-            prov = (f"sum over the {len(e)} levels of the {'CDMS' if species == 'H2CO' else 'line list 14'} "
+            prov = (f"sum over the {len(e)} levels of the {ENTRY[species]} "
                     f"entry's lines as copied in Splatalogue ({splat.copy_read()}); g = 2J+1, no spin weight; "
                     f"energies from the lowest {spin} level; with spin weights "
                     f"{', '.join(f'{s} {w:g}' for s, w in weights.items())} the sum of both agrees with the "

@@ -16,7 +16,7 @@ LINE_LISTS = {10: "CDMS catalogue (Mueller et al. 2005)", 12: "JPL catalogue (Pi
 SPECIES_IDS = {"H2CO": 194, "CH3OH": 55, "HNCO": 673, "HDO": 472, "CH3CN": 606, "CH3CCH": 311,
                "H2O": 418, "SiO v=1": 1089, "SiO v=2": 1090, "HC3N": 294, "N2D+": 59, "HN13C": 473,
                "C34S": 117, "13CS": 142, "DCN": 23, "DCO+": 256, "C17O": 226, "H13CN": 137, "HC15N": 255,
-               "H13CO+": 38, "HCO+": 15, "HF": 535}
+               "H13CO+": 38, "HCO+": 15, "HF": 535, "c-C3H2": 493}
 _ASYM = re.compile(r"^\s*(\d+)\(\s*(-?\d+),\s*(\d+)\)-\s*(\d+)\(\s*(-?\d+),\s*(\d+)\)\s*([+-]{2})?\s*$")
 _SYMTOP = re.compile(r"^\s*(\d+)\(\s*(\d+)\)-\s*(\d+)\(\s*(\d+)\)(?:,\s*F=\s*(\d+)-\s*(\d+))?\s*$")
 _LINEAR = re.compile(r"^\s*(?:J=)?\s*(\d+)\s*-\s*(\d+)\s*$")

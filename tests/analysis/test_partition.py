@@ -243,3 +243,20 @@ def test_catalog_g_up_of_spin_species_leaves_the_spin_weight_out():
                     ("CH3OH 5(-1)-4(-1) E", 11)):
         assert find_line(name, catalog)["g_up"] == g
     assert find_line("H2CO 2_11-1_10", catalog)["spin_isomer"] == "ortho"
+
+
+# JPL partition function table of c-C3H2 (tag 38002; same copy as above), lg Q at JPL_H2O_T,
+# counting ortho levels (Ka + Kc odd) with spin weight 3 and para with 1.
+JPL_C3H2_LG_Q = [4.1215, 3.9226, 3.6548, 3.2035, 2.7535, 2.3050, 1.8598]
+
+
+def test_c3h2_ortho_and_para_add_up_to_the_published_total():
+    zero = partition_energy_zero("c-C3H2", "ortho")
+    # ortho counts from 1_01, 1.6332 cm^-1 = 2.35 K above para 0_00 (LAMDA o-c3h2.dat level list)
+    assert zero.to_value(u.K) == pytest.approx(1.6332 * 1.4387769, abs=0.005)
+    t = JPL_H2O_T[2:]  # 150 K and below: the level list is complete enough there
+    total = (partition_function("c-C3H2", t, "para")
+             + 3 * np.exp(-zero / t) * partition_function("c-C3H2", t, "ortho"))
+    np.testing.assert_allclose(total.value, 10 ** np.array(JPL_C3H2_LG_Q[2:]), rtol=3e-3)
+    with pytest.raises(CatalogError, match="outside"):
+        partition_function("c-C3H2", 300 * u.K, "ortho")

@@ -16,7 +16,7 @@ Columns: species_id, ll_id, the species' s_name, orderedfreq [MHz],
 resolved_QNs, aij (log10 of A in s^-1), lower_state_energy_K,
 upper_state_energy_K, upper_state_degeneracy. Rows of H2CO and CH3OH are kept
 at every frequency and energy (their level lists give the spin species'
-partition functions); the others only between 20 GHz and 2.5 THz.
+partition functions), and so are those of c-C3H2; the others only between 20 GHz and 2.5 THz.
 """
 
 import sqlite3
@@ -29,6 +29,7 @@ COPY = "PyPI wheel casadata-2025.9.22, casadata/__data__/ephemerides/splatalogue
 WANTED = [
     (194, 10, None),    # H2CO (CDMS)
     (55, 14, None),     # CH3OH vt=0 (line list 14)
+    (493, 12, None),    # c-C3H2 v=0 (JPL; its level list gives the spin species' partition functions)
     (673, 10, 700.0),   # HNCO v=0 (CDMS)
     (472, 12, 1000.0),  # HDO (JPL)
     (606, 12, 700.0),   # CH3CN v=0 (JPL, hyperfine components)
