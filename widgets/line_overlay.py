@@ -26,6 +26,7 @@ from cubeloupe.analysis import (
 )
 
 from ._look import MARKER_COLOR, format_optional_number, parse_optional_number, row, section
+from .mark_update import update_mark
 from .status import StatusLine
 
 __all__ = ["LineOverlay"]
@@ -299,17 +300,19 @@ class LineOverlay(w.VBox):
     def _on_z_input(self, change):
         if change.new == _format_z(self.z):
             return
+        shift = self.velocity_offset
         try:
             z = float(str(change.new).strip())
-            self.z = z
+            # The typed z places the lines now; a shift kept from before would move them off their lines.
+            # Both change together, so the markers are placed (and sent) once (#20).
+            with self.hold_trait_notifications():
+                self.z = z
+                self.velocity_offset = 0.0
         except (TraitError, ValueError) as exc:
             self.status.error(f"Could not use that redshift ({change.new!r}): {exc}")
             self.z_input.value = _format_z(self.z)
             return
-        if self.velocity_offset != 0:
-            # The typed z places the lines now; a shift kept from before would move them off their lines.
-            shift = self.velocity_offset
-            self.velocity_offset = 0.0
+        if shift != 0:
             self.status.info(f"Velocity shift set back to 0 (it was {shift:+.1f} km/s): the redshift now "
                              "places the lines.")
         else:
@@ -447,18 +450,14 @@ class LineOverlay(w.VBox):
             xs = x[shown]
             n = len(xs)
             placement = self._layout_labels(xs, names, shown)
-            with self.view.figure.hold_sync():
-                self.stems.x = np.repeat(xs[:, None], 2, axis=1) if n else []
-                self.stems.y = np.tile([0.0, HEAD_HEIGHT], (n, 1)) if n else []
-                self.heads.x, self.heads.y = xs, np.full(n, HEAD_HEIGHT)
-                if list(self.heads.names) != names:
-                    self.heads.names = names
-                for r, mark in enumerate(self.labels):
-                    pick = np.flatnonzero(placement.row == r) if n else np.array([], dtype=int)
-                    text = [names[i] for i in pick]
-                    mark.x, mark.y = np.asarray(placement.x)[pick] if n else [], np.full(len(pick), HEAD_HEIGHT)
-                    if list(mark.text if mark.text is not None else []) != text:
-                        mark.text = text
+            # Each mark in one message, and only what changed: every message is a redraw in the browser (#20).
+            update_mark(self.stems, x=np.repeat(xs[:, None], 2, axis=1) if n else [],
+                        y=np.tile([0.0, HEAD_HEIGHT], (n, 1)) if n else [])
+            update_mark(self.heads, x=xs, y=np.full(n, HEAD_HEIGHT), names=names)
+            for r, mark in enumerate(self.labels):
+                pick = np.flatnonzero(placement.row == r) if n else np.array([], dtype=int)
+                update_mark(mark, x=np.asarray(placement.x)[pick] if n else [], y=np.full(len(pick), HEAD_HEIGHT),
+                            text=[names[i] for i in pick])
 
     def _layout_labels(self, xs, names, shown):
         """Label rows (`label_rows`) of the drawn markers, widths converted from pixels to axis units."""
@@ -635,7 +634,7 @@ class _SummaryWorker:
     costs more than moving the markers, and the computation would compete with them for the GIL.
     """
 
-    def __init__(self, action, quiet=0.15):
+    def __init__(self, action, quiet=0.03):
         self._action = action
         self._quiet = quiet
         self._condition = threading.Condition()

@@ -571,10 +571,10 @@ class Loupe(w.VBox):
     def _measure(self):
         if not self._measure_enabled:
             return
-        rows = []
-        self.measurement_table.set_table(None)
+        table = None
         with self.status.guard("measuring the line"):
             if not self.line_window or not self.spectra:
+                self.measurement_table.set_table(None)
                 self.measurements = []
                 return
             if self.z != 0 and self._rest() is None:
@@ -585,9 +585,9 @@ class Loupe(w.VBox):
                 line_free=u.Quantity(self.line_free, u.GHz) if self.line_free else None,
                 order=self.baseline_order, rest_frequency=self._rest(), z=self.z, convention=self.convention,
                 line=self._line_label(), cosmology=self.cosmology, magnification=self.magnification)
-            self.measurement_table.set_table(table)
-            rows = self.measurement_table.rows
-        self.measurements = rows
+        # Once, after the work: clearing it first made the browser draw an empty table in between (#20).
+        self.measurement_table.set_table(table)
+        self.measurements = self.measurement_table.rows
 
     def _on_smoothing(self, change):
         """Show the spectra smoothed as chosen (the unsmoothed ones faint behind) and measure them (#18)."""

@@ -100,6 +100,7 @@ class RegionList(w.VBox):
         self._grid_keys = {}
         self._rows = w.Box(layout=w.Layout(flex_flow="row wrap", align_items="center"))
         self._row_widgets = {}
+        self._shared_parts = {}  # layouts and styles shared by the rows (see _shared)
         self._outline_cache = {}
         self._empty = w.HTML("<span style='color:#829ab1;font-size:90%'>No regions yet: pick Box, Oval, Outline "
                              "or Pixel above the sky image and draw on it, or add one from code "
@@ -356,20 +357,37 @@ class RegionList(w.VBox):
         self._rows.children = rows
         self._empty.layout.display = "none" if rows else ""
 
+    def _shared(self, key, make, **kwargs):
+        """``make(**kwargs)`` whose style (and layout, when not given) are those of the rows made before.
+
+        Layouts and styles are widgets of their own, one more model for the browser to make each: shared,
+        a new region's row costs 7 models instead of 17 before its spectrum is drawn (#20).
+        """
+        for part in ("style", "layout"):
+            if (key, part) in self._shared_parts and part not in kwargs:
+                kwargs[part] = self._shared_parts[(key, part)]
+        widget = make(**kwargs)
+        for part in ("style", "layout"):
+            self._shared_parts.setdefault((key, part), getattr(widget, part))
+        return widget
+
     def _make_row(self, item):
         name = item["name"]
-        pick = w.ToggleButton(value=name == self.selected, icon="hand-pointer-o", layout=w.Layout(width="36px"),
-                              tooltip=f"Select region {name} (its spectrum is used for the table and reshaping)")
+        pick = self._shared("pick", w.ToggleButton, value=name == self.selected, icon="hand-pointer-o",
+                            layout=self._shared_parts.get(("pick", "layout")) or w.Layout(width="36px"),
+                            tooltip=f"Select region {name} (its spectrum is used for the table and reshaping)")
         pick.observe(lambda ch, name=name: ch.new and setattr(self, "selected", name), names="value")
-        color = w.ColorPicker(value=item["color"], concise=True, layout=w.Layout(width="36px"),
-                              tooltip="Colour of this region's outline and spectrum")
+        color = self._shared("color", w.ColorPicker, value=item["color"], concise=True, layout=pick.layout,
+                             tooltip="Colour of this region's outline and spectrum")
         color.observe(lambda ch, name=name: self.recolor(name, ch.new), names="value")
-        label = w.Text(value=name, layout=w.Layout(width="96px"),
-                       tooltip="Name of the region; type a new one and press Enter", continuous_update=False)
+        label = self._shared("label", w.Text, value=name, continuous_update=False,
+                             layout=self._shared_parts.get(("label", "layout")) or w.Layout(width="96px"),
+                             tooltip="Name of the region; type a new one and press Enter")
         label.observe(lambda ch, name=name: self._safe_rename(name, ch.new), names="value")
-        kind = w.HTML(f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
-                      layout=w.Layout(width="48px"))
-        drop = w.Button(icon="times", layout=w.Layout(width="36px"), tooltip=f"Remove region {name} and its spectrum")
+        kind = self._shared("kind", w.HTML, value=f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
+                            layout=self._shared_parts.get(("kind", "layout")) or w.Layout(width="48px"))
+        drop = self._shared("drop", w.Button, icon="times", layout=pick.layout,
+                            tooltip=f"Remove region {name} and its spectrum")
         drop.on_click(lambda _, name=name: self.remove(name))
         row = w.HBox([pick, color, label, kind, drop],
                      layout=w.Layout(align_items="center", margin="0 14px 0 0",

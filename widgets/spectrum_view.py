@@ -20,6 +20,7 @@ from cubeloupe.analysis import (
 )
 
 from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
+from .mark_update import update_mark
 from .status import StatusLine
 
 __all__ = ["SpectrumView", "CLICK_MODES", "RANGE_MODES"]
@@ -409,8 +410,7 @@ class SpectrumView(w.VBox):
     @observe("line_free", "baseline_order")
     def _on_baseline_inputs(self, change):
         self._refit()
-        self._redraw_all()
-        self._draw_ranges()
+        self._redraw_all()  # the ranges too
 
     @observe("show_raw")
     def _on_show_raw(self, change):
@@ -452,8 +452,8 @@ class SpectrumView(w.VBox):
         y = np.concatenate([np.append(self._on_baseline(i, v), np.nan) for i, (_, v) in enumerate(self.prediction)]
                            or [[]])
         y = np.where(self.in_view(x), y, np.nan)
-        with self.prediction_mark.hold_sync():
-            self.prediction_mark.x, self.prediction_mark.y = drawable(x, y)
+        x, y = drawable(x, y)
+        update_mark(self.prediction_mark, x=x, y=y)
 
     def _redraw(self, names=None):
         names = list(self.spectra) if names is None else names
@@ -477,14 +477,15 @@ class SpectrumView(w.VBox):
                         mark = Lines(scales=scales, colors=[entry["color"]], stroke_width=1.6,
                                      labels=[name])
                         self.curve_marks[key] = mark
-                    (mark.x, mark.y), mark.colors = drawable(x, y), [entry["color"]]
+                    shown_x, shown_y = drawable(x, y)
+                    update_mark(mark, x=shown_x, y=shown_y, colors=[entry["color"]])
                     if fit is not None and not self.show_subtracted:
                         model = self.model_marks.get(key)
                         if model is None:
                             model = Lines(scales=scales, colors=[BASELINE_COLOR], stroke_width=1.2,
                                           line_style="dash_dotted")
                             self.model_marks[key] = model
-                        model.x, model.y = x, np.asarray(fit.model.value, dtype=float)
+                        update_mark(model, x=x, y=np.asarray(fit.model.value, dtype=float))
                     else:
                         self.model_marks.pop(key, None)
                     self._draw_extras(key, x, fit, entry["color"], scales)
@@ -503,7 +504,7 @@ class SpectrumView(w.VBox):
                 order = np.argsort(x)
                 raw_y = raw_y - np.interp(raw_x, x[order], np.asarray(fit.model.value, float)[order])
             mark = self.raw_marks.get(key) or Lines(scales=scales, stroke_width=1.0, opacities=[0.35])
-            mark.x, mark.y, mark.colors = raw_x, raw_y, [color]
+            update_mark(mark, x=raw_x, y=raw_y, colors=[color])
             self.raw_marks[key] = mark
         else:
             self.raw_marks.pop(key, None)
@@ -516,20 +517,20 @@ class SpectrumView(w.VBox):
         marks = self.fit_marks.get(key) or (
             Lines(scales=scales, colors=[FIT_COLOR], stroke_width=2.0),
             Lines(scales=scales, colors=[RESIDUAL_COLOR], stroke_width=1.0))  # no labels: residuals end in NaN
-        marks[0].x, marks[0].y = x, model
+        update_mark(marks[0], x=x, y=model)
         # Only the fitted span: bqplot places a line's (hidden) label at its last point, which must be a number.
         fitted = np.flatnonzero(np.isfinite(residuals))
         span = slice(fitted[0], fitted[-1] + 1) if fitted.size else slice(0, 0)
-        marks[1].x, marks[1].y = x[span], residuals[span]
+        update_mark(marks[1], x=x[span], y=residuals[span])
         self.fit_marks[key] = marks
 
     def _draw_zero(self):
         xs = [m.x for m in self.curve_marks.values() if len(m.x)]
         if self.show_subtracted and xs:
             lo, hi = min(np.nanmin(x) for x in xs), max(np.nanmax(x) for x in xs)
-            self.zero_mark.x, self.zero_mark.y = [lo, hi], [0.0, 0.0]
+            update_mark(self.zero_mark, x=[lo, hi], y=[0.0, 0.0])
         else:
-            self.zero_mark.x, self.zero_mark.y = [], []
+            update_mark(self.zero_mark, x=[], y=[])
 
     def _band_polygons(self, ranges):
         if not ranges:
@@ -540,18 +541,18 @@ class SpectrumView(w.VBox):
 
     def _draw_ranges(self):
         with self.figure.hold_sync():
-            self.free_mark.x, self.free_mark.y = self._band_polygons(self.line_free)
+            free_x, free_y = self._band_polygons(self.line_free)
             # One fill colour per shaded range (bqplot fills only the lines it has a colour for).
             n_free = max(len(self.line_free), 1)
-            self.free_mark.fill_colors = [LINE_FREE_FILL] * n_free
-            self.free_mark.fill_opacities = [0.3] * n_free
-            self.window_mark.x, self.window_mark.y = self._band_polygons([self.line_window] if self.line_window
-                                                                         else [])
+            update_mark(self.free_mark, x=free_x, y=free_y, fill_colors=[LINE_FREE_FILL] * n_free,
+                        fill_opacities=[0.3] * n_free)
+            window_x, window_y = self._band_polygons([self.line_window] if self.line_window else [])
+            update_mark(self.window_mark, x=window_x, y=window_y)
             if self.peaks:
-                self.peak_mark.x = self.x_of_frequency(np.array(self.peaks))
-                self.peak_mark.y = np.full(len(self.peaks), 0.96)
+                update_mark(self.peak_mark, x=self.x_of_frequency(np.array(self.peaks)),
+                            y=np.full(len(self.peaks), 0.96))
             else:
-                self.peak_mark.x, self.peak_mark.y = [], []
+                update_mark(self.peak_mark, x=[], y=[])
             self._draw_cursor()
 
     @observe("line_window", "peaks")
@@ -562,13 +563,13 @@ class SpectrumView(w.VBox):
     @observe("cursor_frequency")
     def _draw_cursor(self, change=None):
         if self.cursor_frequency is None:
-            self.cursor_mark.x = []
+            update_mark(self.cursor_mark, x=[])
             return
         try:
             x = float(self.x_of_frequency(self.cursor_frequency)[0])
         except CubeloupeError:
             return
-        self.cursor_mark.x, self.cursor_mark.y = [x, x], [0.0, 1.0]
+        update_mark(self.cursor_mark, x=[x, x], y=[0.0, 1.0])
 
     def clear_marks(self):
         """Forget line-free ranges, the line window and peaks."""

@@ -22,10 +22,17 @@ What is measured, on the page
     A capture listener notes the time stamp of the input event (the click, the mouse
     release ending a drag, the Enter key, the ``change`` of a drop-down). From then on a
     MutationObserver on the suite's element and hooks on WebGL's draw and texture calls of
-    the suite's canvases note every change drawn; each change schedules a frame
-    (``requestAnimationFrame`` followed by a task, so after the paint). An interaction has
-    finished when the kernel is idle and nothing changed for ``QUIET_MS``; its time is the
-    frame after the last change minus the input event.
+    the suite's canvases note every change drawn; changes request a frame, one request at a
+    time (``requestAnimationFrame`` followed by a task, so after the paint; requested again
+    while changes keep coming). An interaction has finished when the kernel is idle and
+    nothing changed for ``QUIET_MS``; its time is the frame after the last change minus the
+    input event.
+
+Where the time goes
+    ``--verbose`` prints, for each interaction, what changed on the page when and what the
+    kernel sent when (ms after the input event, model and traits); ``--profile NAME`` the
+    page's main-thread work after the input event (a CPU profile by function and a timeline
+    trace by kind: scripts, style, layout, paint, GC).
 
 Baseline, same run
     The round trip of a trivial widget message: a button whose click handler in the kernel
@@ -64,6 +71,7 @@ REAL_CUBES = REPO.parent / "shared" / "real-cubes"
 QUIET_MS = 600          # nothing drawn for this long, kernel idle: the interaction has finished
 TIMEOUT_S = 90          # one interaction's time limit (a moment map on a busy machine)
 VERBOSE = False
+PROFILE = None          # --profile NAME: the browser's CPU profile of the interactions whose name starts so
 VIEWPORT = {"width": 1440, "height": 1000}
 
 # Wraps WebGL before any page script runs: draws and texture uploads of canvases inside the
@@ -108,10 +116,18 @@ PAGE_TIMER = """
     cl.last = now; cl.count += 1;
     if (cl.timeline.length < 400) cl.timeline.push([Math.round(now - cl.t0), kind === 'dom' ? describe(node) : kind]);
     if (kind === 'tex') cl.tex.push(now);
-    const seq = ++cl.seq;
-    // The frame that shows this change: its animation frame, then a task after its paint.
-    requestAnimationFrame(() => setTimeout(() => { if (seq === cl.seq) cl.frame = performance.now(); }, 0));
+    cl.seq += 1;
+    // The frame that shows the changes: their animation frame, then a task after its paint. One request
+    // at a time (not one per change: hundreds of them cost the page more than what they measure).
+    if (!cl.pending) { cl.pending = true; cl.tick(); }
   };
+  cl.tick = () => requestAnimationFrame(() => {
+    const seen = cl.seq;
+    setTimeout(() => {
+      if (seen === cl.seq) { cl.pending = false; cl.frame = performance.now(); } else cl.tick();
+    }, 0);
+  });
+  cl.pending = false;
   cl.arm = (type, key) => { cl.armed = {type, key}; cl.t0 = null; cl.last = null; cl.frame = null;
                             cl.count = 0; cl.tex = []; cl.timeline = []; };
   if (!cl.listening) {
@@ -163,7 +179,8 @@ def _cl_timed_send(self, key=None):
 _cl_raw_send = Widget._send
 def _cl_counted(self, msg, buffers=None):
     size = sum(memoryview(b).nbytes for b in (buffers or [])) + len(json.dumps(msg, default=str))
-    _cl_log.append(('bytes', time.time(), 0.0, size))
+    what = type(self).__name__ + ':' + ','.join(sorted((msg.get('state') or {}))[:3]) if isinstance(msg, dict) else ''
+    _cl_log.append(('bytes', time.time(), 0.0, size, what))
     return _cl_raw_send(self, msg, buffers)
 Widget._send = _cl_counted
 Widget._handle_msg, Widget.send_state = _cl_timed_handle, _cl_timed_send
@@ -224,7 +241,16 @@ class Driver:
     def measure(self, name, trigger, act, key=None):
         """Arm the page timer for the input event ``trigger``, call ``act()``, wait until drawn."""
         self.page.evaluate("([type, key]) => window.__cl.arm(type, key)", [trigger, key])
+        profiling = PROFILE is not None and name.startswith(PROFILE) and name not in self.records
+        if profiling:
+            cdp = self.page.context.new_cdp_session(self.page)
+            cdp.send("Profiler.enable")
+            cdp.send("Profiler.setSamplingInterval", {"interval": 250})
         act()
+        if profiling:  # from the input event on (the gesture's own moves left out)
+            cdp.send("Profiler.start")
+            browser = self.page.context.browser
+            browser.start_tracing(page=self.page, categories=["devtools.timeline"])
         deadline = time.monotonic() + TIMEOUT_S
         while True:
             state = self.page.evaluate(READ_TIMER)
@@ -236,6 +262,10 @@ class Driver:
                 print(f"  {name}: no end within {TIMEOUT_S} s (t0 {state['t0']}, changes {state['count']})")
                 return None
             time.sleep(0.05)  # polling interval of the condition above
+        if profiling:
+            print_profile(name, cdp.send("Profiler.stop")["profile"])
+            cdp.detach()
+            print_trace(json.loads(browser.stop_tracing()))
         if state["last"] is None:
             print(f"  {name}: nothing changed on the page")
             return None
@@ -253,6 +283,16 @@ class Driver:
             kept = [step for k, step in enumerate(steps) if k < 6 or k >= len(steps) - 4 or ":tex" in step
                     or ":gl" in step]
             print(f"  {name}: {ms:.0f} ms; changes: {'; '.join(kept)}")
+        if VERBOSE:
+            # Every run in short: when each kind of change was first and last seen (axis ticks redrawn
+            # mean a rescale, which redraws every mark of the figure too).
+            kinds = {}
+            for at, what in state["timeline"]:
+                kind = "axis" if "axis<" in what else what.split(" in ")[-1].split("<")[0] or what
+                first, last = kinds.get(kind, (at, at))
+                kinds[kind] = (min(first, at), max(last, at))
+            print(f"    run {len(self.records[name])}: {ms:.0f} ms: "
+                  + ", ".join(f"{k} {a}-{b}" for k, (a, b) in sorted(kinds.items(), key=lambda kv: kv[1])))
         return state
 
     # --- the gestures -------------------------------------------------------------------------
@@ -269,6 +309,45 @@ class Driver:
     def visible(self, selector):
         locator = self.suite.locator(selector)
         return locator.count() > 0 and locator.first.is_visible()
+
+
+def print_profile(name, profile, top=22):
+    """The page's main-thread time by function (self time), from a CDP CPU profile of one interaction.
+
+    The profile starts as the gesture ends (just after the input event) and spans the wait until drawn.
+    """
+    nodes = {node["id"]: node for node in profile["nodes"]}
+    spent = {}
+    for node_id, delta in zip(profile["samples"], profile["timeDeltas"]):
+        frame = nodes[node_id]["callFrame"]
+        where = frame["url"].rsplit("/", 1)[-1][:40]
+        key = f"{frame['functionName'] or '(anonymous)'} {where}:{frame['lineNumber']}" if where else \
+            frame["functionName"]
+        spent[key] = spent.get(key, 0) + delta / 1000
+    busy = sum(v for k, v in spent.items() if k not in ("(idle)", "(program)"))
+    print(f"  {name}: profile, {busy:.0f} ms in scripts of {sum(spent.values()):.0f} ms sampled "
+          f"(idle {spent.get('(idle)', 0):.0f}, program {spent.get('(program)', 0):.0f}, "
+          f"GC {spent.get('(garbage collector)', 0):.0f})")
+    for key, ms in sorted(spent.items(), key=lambda kv: -kv[1])[:top]:
+        if key not in ("(idle)", "(program)"):
+            print(f"    {ms:6.1f} ms  {key}")
+
+
+def print_trace(trace, top=12):
+    """The renderer's main thread by kind of work (style, layout, paint, scripts...), from a timeline trace.
+
+    Durations of nested events overlap (a layout forced by a script is inside the script's time).
+    """
+    events = trace["traceEvents"] if isinstance(trace, dict) else trace
+    main = {(e["pid"], e["tid"]) for e in events if e.get("name") == "thread_name"
+            and e.get("args", {}).get("name") == "CrRendererMain"}
+    spent, count = {}, {}
+    for e in events:
+        if e.get("ph") == "X" and (e["pid"], e["tid"]) in main:
+            spent[e["name"]] = spent.get(e["name"], 0) + e.get("dur", 0) / 1000
+            count[e["name"]] = count.get(e["name"], 0) + 1
+    print("    main thread, by kind: " + "; ".join(f"{k} {v:.0f} ms ({count[k]}x)" for k, v in
+                                                 sorted(spent.items(), key=lambda kv: -kv[1])[:top]))
 
 
 def run_interactions(lab, repeat):
@@ -412,6 +491,15 @@ def kernel_split(lab, records):
             run["kernel_ms"] = 1000 * sum(e[2] for e in inside if e[0] == "handle")
             run["send_ms"] = 1000 * sum(e[2] for e in inside if e[0] == "send")
             run["bytes"] = sum(e[3] for e in inside if e[0] == "bytes")
+            # What the kernel sent when, after the input event (--verbose): ms, model class and keys.
+            run["sent"] = [(round(1000 * (e[1] - run["t0"])), e[4]) for e in inside if e[0] == "bytes"]
+    if VERBOSE:
+        for name, runs in records.items():
+            for k, run in enumerate(runs):
+                sent = run.get("sent")
+                if sent:
+                    print(f"  {name}, run {k + 1} ({run['ms']:.0f} ms): kernel sent "
+                          + "; ".join(f"{at}:{what}" for at, what in sent[:24]))
 
 
 def scenarios(folder, only):
@@ -456,9 +544,11 @@ def main():
                         help="demo, 'demo x5', real, big (default all; may be repeated)")
     parser.add_argument("--json", type=Path, help="also write every measurement here")
     parser.add_argument("--verbose", action="store_true", help="print what changed when, for each interaction")
+    parser.add_argument("--profile", metavar="NAME", help="print the browser's CPU profile (self time by function) "
+                                                          "of the first run of each interaction named NAME...")
     args = parser.parse_args()
-    global VERBOSE
-    VERBOSE = args.verbose
+    global VERBOSE, PROFILE
+    VERBOSE, PROFILE = args.verbose, args.profile
     chromium = find_chromium()
     if chromium is None:
         sys.exit("no Chromium found: install the distribution's 'chromium' package")
