@@ -576,7 +576,9 @@ class SkyView(w.VBox):
     def _draw_outlines(self):
         # Marks are reused and updated in place (#20): a new mark list makes the browser lay out the figure anew.
         pool, items, grown = self._outline_pool, list(self.outlines), len(self.outlines) > len(self._outline_pool)
-        while len(pool) < len(items):  # outline only: a fill would tint the data beneath (issue #17)
+        # Grown a few at a time: a new mark is a new model and a new mark list for the browser, so the
+        # next regions' outlines find an empty mark waiting (#20).
+        while len(pool) < len(items) + (2 if grown else 0):  # outline only: a fill would tint the data (#17)
             pool.append(Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale}, colors=["#ffffff"],
                               stroke_width=2.5, display_legend=False, fill="none"))
         with self.figure.hold_sync():

@@ -106,6 +106,7 @@ class SpectrumView(w.VBox):
         self.spectra = {}
         self.fits = {}
         self.curve_marks = {}
+        self._spare_curves = []  # empty curve marks in the figure, for the next spectra (see _new_curve)
         self.model_marks = {}
         # Smoothing and Gaussian fits (#18): unsmoothed curves drawn faintly, fitted models and residuals.
         self.raw_spectra, self.raw_marks, self.line_fits, self.fit_marks = {}, {}, {}, {}
@@ -224,6 +225,8 @@ class SpectrumView(w.VBox):
             if key in self.raw_marks and self.show_raw:
                 curves.insert(0, self.raw_marks[key])
             curves.append(self.curve_marks[key])
+        # The spare curves next: the first becomes the next spectrum's curve with the mark list unchanged.
+        curves += self._spare_curves
         curves += [mark for key in self.curve_marks for mark in self.fit_marks.get(key, ())]
         self.figure.marks = [self.free_mark, self.window_mark, self.zero_mark, *curves, self.prediction_mark,
                              *self._overlay_marks, self.peak_mark, self.cursor_mark]
@@ -474,11 +477,9 @@ class SpectrumView(w.VBox):
                         y = fit.subtracted.value
                     mark = self.curve_marks.get(key)
                     if mark is None:
-                        mark = Lines(scales=scales, colors=[entry["color"]], stroke_width=1.6,
-                                     labels=[name])
-                        self.curve_marks[key] = mark
+                        mark = self.curve_marks[key] = self._new_curve()
                     shown_x, shown_y = drawable(x, y)
-                    update_mark(mark, x=shown_x, y=shown_y, colors=[entry["color"]])
+                    update_mark(mark, x=shown_x, y=shown_y, colors=[entry["color"]], labels=[name])
                     if fit is not None and not self.show_subtracted:
                         model = self.model_marks.get(key)
                         if model is None:
@@ -493,6 +494,17 @@ class SpectrumView(w.VBox):
             self._set_marks()
             self._draw_zero()
             self._draw_cursor()
+
+    def _new_curve(self):
+        """A mark for a new spectrum: one of the empty ones waiting in the figure (#20).
+
+        A new mark is a new model and a new mark list for the browser to make before the spectrum
+        shows: they are made a few at a time, ahead of need.
+        """
+        if not self._spare_curves:
+            self._spare_curves = [Lines(x=[], y=[], labels=[], scales={"x": self.x_scale, "y": self.y_scale},
+                                        stroke_width=1.6) for _ in range(3)]
+        return self._spare_curves.pop(0)
 
     def _draw_extras(self, key, x, fit, color, scales):
         """The faint unsmoothed curve and the fitted model with its residuals, for one spectrum (#18)."""
