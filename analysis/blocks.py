@@ -239,13 +239,15 @@ def _read_run(array, start, stop, block, out, mask, scaling):
 
 
 # Streaming (`run_blocks` with a kernel that has ``stream``): a block of many whole image rows is
-# read a slab of channels at a time into one reused buffer of about this size, so that the
-# byte-swapping copy and the kernel's products on it stay in the core's L2 cache, and each
-# channel of a slab is one long contiguous piece of the file (tens of kB). Reading the same
+# read a slab of channels at a time into one reused buffer (16 channels of `STREAM_PIXELS` pixels:
+# 1 MB), so that the byte-swapping copy and the kernel's sums on it stay in the core's L2 cache,
+# and each channel of a slab is one long contiguous piece of the file (64 kB). Reading the same
 # pixels as whole spectra of a few kB per channel made the copy alone 1.3-1.8x one np.sum pass
-# over the data; slabs of 16 channels x 16384 pixels copy in 0.7x (issue #20, measured on
-# the 1 GB benchmark cube).
-SLAB_BYTES = 2**20
+# over the data; slabs of 16 channels x 16384 pixels copy in 0.7x (issue #20, measured on the
+# 1 GB benchmark cube). Slabs hold a fixed number of channels and break at the block's channel
+# runs, whatever the block's size, so that a streaming kernel adds its sums in the same order
+# in this process and on a cluster.
+SLAB_CHANNELS = 16
 STREAM_PIXELS = 16384
 _buffers = threading.local()
 
@@ -257,6 +259,16 @@ def _slab_buffer(n_values, dtype):
     return buffer
 
 
+def _slab_ranges(runs):
+    """``(first, start, stop)`` of each slab: its place in the block's channel order and in the cube."""
+    first = 0
+    for start, stop in runs:
+        for c0 in range(start, stop, SLAB_CHANNELS):
+            c1 = min(stop, c0 + SLAB_CHANNELS)
+            yield first, c0, c1
+            first += c1 - c0
+
+
 def _slabs(array, block, dtype, mask, scaling):
     """Yield ``(first, slab)``: the block's selected channels ``first:first + n`` as (n, pixels).
 
@@ -265,16 +277,11 @@ def _slabs(array, block, dtype, mask, scaling):
     dtype = np.dtype(dtype)
     _, ny, nx = block.shape
     pixels = ny * nx
-    per_slab = max(1, SLAB_BYTES // (pixels * dtype.itemsize))
-    buffer = _slab_buffer(per_slab * pixels, dtype)
-    first = 0
-    for start, stop in block.runs:
-        for c0 in range(start, stop, per_slab):
-            c1 = min(stop, c0 + per_slab)
-            out = buffer[:(c1 - c0) * pixels].reshape(c1 - c0, ny, nx)
-            _read_run(array, c0, c1, block, out, mask, scaling)
-            yield first, out.reshape(c1 - c0, pixels)
-            first += c1 - c0
+    buffer = _slab_buffer(SLAB_CHANNELS * pixels, dtype)
+    for first, c0, c1 in _slab_ranges(block.runs):
+        out = buffer[:(c1 - c0) * pixels].reshape(c1 - c0, ny, nx)
+        _read_run(array, c0, c1, block, out, mask, scaling)
+        yield first, out.reshape(c1 - c0, pixels)
 
 
 def streams(cube, client=None):
@@ -299,7 +306,21 @@ def _remote_block(view, block, dtype, mask_bits, kernel):
     if mask_bits is not None:
         keep = np.unpackbits(mask_bits, count=data.size).reshape(data.shape).astype(bool)
         data[~keep] = np.nan
-    return kernel(data)
+    return _run_on_block(kernel, block, data)
+
+
+def _run_on_block(kernel, block, data):
+    """``kernel(data)``, or for a streaming kernel its ``stream`` over slabs that are views of ``data``.
+
+    A streaming kernel then does the same arithmetic wherever its blocks come from (the file here,
+    a worker, a dask graph): the same slabs, so the same sums in the same order.
+    """
+    stream = getattr(kernel, "stream", None)
+    if stream is None:
+        return kernel(data)
+    flat = data.reshape(data.shape[0], -1)
+    slabs = ((first, flat[first:first + c1 - c0]) for first, c0, c1 in _slab_ranges(block.runs))
+    return stream(slabs, data.shape, lambda rows: data[:, rows].copy())
 
 
 def resolve_client(client):
@@ -431,7 +452,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
         if ahead is not None:
             ahead.before(block)
         if stream is None:
-            return kernel(_read_block(data, block, dtype, mask, scaling))
+            return _run_on_block(kernel, block, _read_block(data, block, dtype, mask, scaling))
 
         def reread(rows):
             part = Block(block.index, block.runs, slice(block.rows.start + rows.start, block.rows.start + rows.stop),

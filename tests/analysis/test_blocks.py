@@ -297,7 +297,7 @@ def test_streamed_slabs_are_the_block_masked_and_in_order(cube_path, rng, monkey
     # masked voxels NaN), channel runs in the order asked for.
     import cubeloupe.analysis.blocks as blocks_module
 
-    monkeypatch.setattr(blocks_module, "SLAB_BYTES", 3 * 4 * 4 * 7)   # 3 channels a slab of a 4 x 7 block
+    monkeypatch.setattr(blocks_module, "SLAB_CHANNELS", 3)
     data = rng.normal(size=(NCHAN, 8, 7))
     cube = open_cube(cube_path(data))
     keep = rng.random(data.shape) > 0.1

@@ -352,7 +352,7 @@ def test_streamed_sums_match_naive_reference_with_bright_continuum(centred_path,
     import cubeloupe.analysis.blocks as blocks_module
     import cubeloupe.analysis.moments as moments_module
 
-    monkeypatch.setattr(blocks_module, "SLAB_BYTES", 7 * 4 * 6 * 7)  # 7 channels a slab: many slabs, odd sizes
+    monkeypatch.setattr(blocks_module, "SLAB_CHANNELS", 7)  # many slabs, of odd sizes
     if not compiled:
         monkeypatch.setattr(moments_module, "accumulate", None)
     elif moments_module.accumulate is None:
