@@ -55,7 +55,7 @@ from .first_view import FirstView, first_view
 from .velocity_only import NOMINAL_REST_FREQUENCY, on_nominal_frequencies, velocity_convention_of, velocity_only
 from .velocity_reference import VelocityReference, catalog_line_at, choose_velocity_reference
 from .moments import MomentMaps, moment_maps
-from .moment_mask import DEFAULT_SIGNIFICANCE, SignificantMoments, significant_moments
+from .moment_mask import DEFAULT_SIGNIFICANCE, SignificantMoments, significant_moments, within_window
 from .noise import (
     ChannelStatistics, ContinuumMap, PeakSpectrum, channel_noise, channel_statistics, cube_noise,
     leftover_continuum, peak_spectrum,
@@ -106,7 +106,7 @@ __all__ = [
     "LineMeasurement", "measure_line", "MEASUREMENT_COLUMNS", "measurement_table",
     "VelocityReference", "catalog_line_at", "choose_velocity_reference", "FirstView", "first_view",
     "NOMINAL_REST_FREQUENCY", "on_nominal_frequencies", "velocity_convention_of", "velocity_only",
-    "MomentMaps", "moment_maps", "DEFAULT_SIGNIFICANCE", "SignificantMoments", "significant_moments",
+    "MomentMaps", "moment_maps", "DEFAULT_SIGNIFICANCE", "SignificantMoments", "significant_moments", "within_window",
     "ChannelStatistics", "ContinuumMap", "PeakSpectrum", "channel_noise", "channel_statistics", "cube_noise",
     "leftover_continuum", "peak_spectrum",
     "CubeCheck", "check_cube",

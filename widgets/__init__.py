@@ -11,7 +11,7 @@ from .channel_bar import ChannelBar
 from .region_list import RegionList
 from .spectrum_view import SpectrumView
 from .line_overlay import LineOverlay
-from .moment_panel import MomentPanel, within_window
+from .moment_panel import MomentPanel
 from .measurement_table import MeasurementTable
 from .smoothing_choice import SmoothingChoice
 from .fit_panel import FitPanel
@@ -30,7 +30,6 @@ __all__ = [
     "SpectrumView",
     "LineOverlay",
     "MomentPanel",
-    "within_window",
     "MeasurementTable",
     "SmoothingChoice",
     "FitPanel",

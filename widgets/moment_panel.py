@@ -12,45 +12,17 @@ import ipywidgets as w
 import numpy as np
 from traitlets import Bool, Dict, Float, Instance, Int, TraitError, Unicode, observe, validate
 
-from cubeloupe.analysis import DEFAULT_SIGNIFICANCE, CancelledComputation, moment_maps, significant_moments
+from cubeloupe.analysis import (DEFAULT_SIGNIFICANCE, CancelledComputation, moment_maps, significant_moments,
+                                within_window)
 
 from ._look import format_optional_number, parse_optional_number, row
 from .status import StatusLine
 
-__all__ = ["MomentPanel", "within_window"]
+__all__ = ["MomentPanel"]
 
 MAP_NAMES = {"m0": "moment 0", "m1": "moment 1", "m2": "moment 2", "m0_error": "moment 0 error", "rms": "rms"}
 
 
-def within_window(m1, m2, window):
-    """Moments 1 and 2 blanked (NaN) where moment 1 lies outside the window's channel velocities.
-
-    An intensity-weighted mean of the window's channel velocities with non-negative weights lies
-    between the first and the last of them (a convex combination); a moment 1 outside that range
-    comes from negative, i.e. noise, intensities, and so does the dispersion beside it. Kept, such
-    pixels set the colour range and hide the velocity field (issue #17, on real interferometer cubes).
-
-    Parameters
-    ----------
-    m1, m2 : Projection
-        Moments 1 and 2 (velocities).
-    window : Quantity [velocity], shape (2,)
-        Velocities of the window's first and last channel (`MomentMaps.window`).
-
-    Returns
-    -------
-    m1, m2 : Projection
-        Copies, NaN where moment 1 is outside the window.
-    """
-    low, high = sorted(u.Quantity(window).to_value(m1.unit))
-    # A few float32 roundings of slack at the ends: a single-channel pixel sits exactly on a channel velocity.
-    slack = 1e-5 * max(abs(low), abs(high), high - low)
-    with np.errstate(invalid="ignore"):
-        outside = ~((m1.value >= low - slack) & (m1.value <= high + slack))
-    m1, m2 = m1.copy(), m2.copy()
-    m1[outside] = np.nan
-    m2[outside] = np.nan
-    return m1, m2
 
 
 class MomentPanel(w.VBox):

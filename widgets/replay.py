@@ -380,8 +380,10 @@ def _analysis_names(loupe, state):
         names.append("population_diagram")
         if "lte_spectrum(" in "\n".join(_population_section(loupe, state)):
             names += ["frequency_axis", "lte_spectrum"]
-    if state.moments is not None and state.moments["line_free"]:
-        names.append("significant_moments")
+    if state.moments is not None:
+        names.append("within_window")
+        if state.moments["line_free"]:
+            names.append("significant_moments")
     return sorted(names)
 
 
@@ -434,7 +436,7 @@ def to_code(loupe):
               ")",
               "",
               f"from cubeloupe.analysis import {', '.join(_analysis_names(loupe, state))}",
-              f"from cubeloupe.widgets import {', '.join([type(loupe).__name__] + (['within_window'] if state.moments is not None else []))}",
+              f"from cubeloupe.widgets import {type(loupe).__name__}",
               "",
               "# The cubes: the suite's spectral windows, in its order.",
               "paths = ["] + [f"    {p!r}," for p in paths] + [

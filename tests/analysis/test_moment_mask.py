@@ -3,10 +3,10 @@
 import astropy.units as u
 import numpy as np
 import pytest
-from numpy.testing import assert_array_equal
+from numpy.testing import assert_allclose, assert_array_equal
 
 from cubefactory import frequency_axis_hz, line_cube_data
-from cubeloupe.analysis import CubeloupeError, moment_maps, open_cube, significant_moments
+from cubeloupe.analysis import CubeloupeError, moment_maps, open_cube, significant_moments, within_window
 
 KMS = u.km / u.s
 CO21 = 230.538 * u.GHz  # CO J=2-1 (CDMS, Mueller et al. 2005)
@@ -39,3 +39,24 @@ def test_a_stricter_cut_keeps_fewer_pixels_and_bad_thresholds_are_refused(maps):
     for bad in (0, -1, float("nan"), "three"):
         with pytest.raises(CubeloupeError, match="threshold"):
             significant_moments(maps, bad)
+
+
+def test_moment_1_outside_the_window_is_not_shown():
+    """Issue #17: on real interferometer cubes noise pixels gave moment 1 far outside the window's velocities.
+
+    A weighted mean of the window's channel velocities with non-negative weights lies between the first and
+    last of them (a convex combination); a value outside needs negative, i.e. noise, intensities.
+    """
+    from astropy.wcs import WCS
+    from spectral_cube import Projection
+
+    wcs = WCS(naxis=2)
+    wcs.wcs.ctype = ["RA---SIN", "DEC--SIN"]
+    m1 = Projection(np.array([[-300.0, -250.0, 0.0], [120.0, 250.0, np.nan]]) * u.km / u.s, wcs=wcs)
+    m2 = Projection(np.full((2, 3), 30.0) * u.km / u.s, wcs=wcs)
+    # The window's first and last channel velocities, here in m/s: units are converted.
+    shown_m1, shown_m2 = within_window(m1, m2, [250e3, -250e3] * u.m / u.s)
+    assert_allclose(shown_m1.value, [[np.nan, -250.0, 0.0], [120.0, 250.0, np.nan]], equal_nan=True)
+    assert_allclose(shown_m2.value, [[np.nan, 30.0, 30.0], [30.0, 30.0, np.nan]], equal_nan=True)
+    assert np.isnan(m1.value).sum() == 1  # the inputs are left as they were
+
