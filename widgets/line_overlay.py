@@ -192,7 +192,7 @@ class LineOverlay(w.VBox):
                                                       "pick several); species picked on the left are shown "
                                                       "whatever their family",
                                               style={"description_width": "initial"},
-                                              layout=w.Layout(width="176px"))
+                                              layout=w.Layout(width="222px"))
         self.family_choice.add_class("cubeloupe-families")
         self.family_choice.observe(lambda ch: setattr(self, "families", list(ch.new)), names="value")
         self.hyperfine_toggle = w.Checkbox(value=False, description="Hyperfine components", indent=False,
