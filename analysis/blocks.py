@@ -269,19 +269,37 @@ def _slab_ranges(runs):
             first += c1 - c0
 
 
-def _slabs(array, block, dtype, mask, scaling):
+def _slabs(array, block, dtype, mask, scaling, file_views=False):
     """Yield ``(first, slab)``: the block's selected channels ``first:first + n`` as (n, pixels).
 
-    Each slab is a view of one thread-local buffer, overwritten by the next slab.
+    Each slab is a view of one thread-local buffer, overwritten by the next slab; with
+    ``file_views``, where the file's own values are the block's (no mask, no scaling, the working
+    dtype in either byte order, whole image rows), a view of ``array`` itself (not copied).
     """
     dtype = np.dtype(dtype)
     _, ny, nx = block.shape
     pixels = ny * nx
+    if file_views and _viewable(array, block, dtype, mask, scaling):
+        # No buffer to fit in a cache: a slab per channel run (fewer calls into the kernel). Runs
+        # start on a slab boundary either way, so a kernel that groups channels by a divisor of
+        # `SLAB_CHANNELS` from each slab's start adds them in the same groups.
+        first = 0
+        for start, stop in block.runs:
+            yield first, np.reshape(array[start:stop, block.rows, block.columns], (stop - start, pixels), copy=False)
+            first += stop - start
+        return
     buffer = _slab_buffer(SLAB_CHANNELS * pixels, dtype)
     for first, c0, c1 in _slab_ranges(block.runs):
         out = buffer[:(c1 - c0) * pixels].reshape(c1 - c0, ny, nx)
         _read_run(array, c0, c1, block, out, mask, scaling)
         yield first, out.reshape(c1 - c0, pixels)
+
+
+def _viewable(array, block, dtype, mask, scaling):
+    """True when ``block``'s slabs can be views of ``array``: its values as they are, each channel contiguous."""
+    return (mask is None and scaling is None and isinstance(array, np.ndarray) and array.ndim == 3
+            and array.flags.c_contiguous and array.dtype.newbyteorder("=") == dtype
+            and block.columns.indices(array.shape[2]) == (0, array.shape[2], 1))
 
 
 def streams(cube, client=None):
@@ -399,7 +417,10 @@ def run_blocks(cube, kernel, blocks, consume, *, dtype=np.float64, client=None, 
         has ``stream(slabs, shape, reread)`` is given, in this process, the
         block as ``slabs``: ``(first, slab)`` pairs, ``slab`` of shape
         (n, pixels) holding the block's selected channels ``first:first + n``
-        in a buffer reused for the next slab; ``reread(rows)`` returns the
+        in a buffer reused for the next slab (or, for a kernel whose
+        ``takes_file_views`` is true, a read-only view of the memory-mapped
+        file where no conversion is needed: each channel contiguous, channels
+        a plane apart, in the file's byte order); ``reread(rows)`` returns the
         block's rows ``rows`` (a slice) whole, as ``kernel`` would get them.
         ``stream`` must return what ``kernel`` returns for the block.
     blocks : list of Block
@@ -447,6 +468,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
     ahead = BlockReadAhead(data, blocks) if isinstance(data, np.ndarray) else None
 
     stream = getattr(kernel, "stream", None) if isinstance(data, np.ndarray) else None
+    file_views = bool(getattr(kernel, "takes_file_views", False))
 
     def work(block):
         if ahead is not None:
@@ -459,7 +481,7 @@ def _run_local(cube, kernel, blocks, consume, dtype, progress, cancel, threads):
                          block.columns)
             return _read_block(data, part, dtype, mask, scaling)
 
-        return stream(_slabs(data, block, dtype, mask, scaling), block.shape, reread)
+        return stream(_slabs(data, block, dtype, mask, scaling, file_views), block.shape, reread)
 
     if threads == 1 or total <= 1:
         # BLAS threads beyond the cores allowed fight over them: with the process on one core, an

@@ -128,6 +128,12 @@ class _MomentKernel:
         object.__setattr__(self, "main", self.weights(np.ones(self.velocity.shape, dtype=bool)))
 
     @property
+    def takes_file_views(self):
+        """The compiled sums read slabs straight from the memory map, swapping bytes as they go
+        (`weighted_sums`); the numpy path wants native copies."""
+        return accumulate is not None
+
+    @property
     def n_free_selected(self):
         return 0 if self.line_free is None else int(self.line_free.sum())
 
@@ -183,9 +189,9 @@ class _MomentKernel:
     def stream(self, slabs, shape, reread):
         """The same five maps as calling the kernel, from the block's channels a slab at a time.
 
-        Every slab adds its weighted sums (row-by-row products on the slab, which sits in the
-        L2 cache after its byte-swapping copy) to float64 accumulators, so one read of the file
-        gives every sum. Pixels whose sums are not finite (blank channels), or whose residual is
+        Every slab adds its weighted sums to float64 accumulators (compiled: read from the file's
+        own bytes; numpy: row-by-row products on a native copy that sits in the L2 cache), so one
+        read of the file gives every sum. Pixels whose sums are not finite (blank channels), or whose residual is
         too small a part of ``|y|^2`` to trust, are redone row by row through ``__call__``
         (the block's ``reread``), so results equal the whole-block kernel's.
         """
@@ -224,17 +230,18 @@ class _MomentKernel:
                 for row in range(3):
                     np.matmul(window_rows[row, columns], in_window, out=part)
                     totals[row] += part
-        sums = np.zeros((main.matrix.shape[0], pixels))
-        sums[:3] = totals[:3]
+        # Only the three moment rows are needed (no clipping here); they reach the line-free
+        # channels through the baseline only (see `_products`).
+        sums = totals[:3]
         squares = totals[-1] if squares_wanted else np.zeros(pixels)
         if n_basis:
             projected = totals[3:3 + n_basis]
-            sums += (main.matrix[:, :n_free] @ basis.T) @ projected
+            sums += (main.matrix[:3, :n_free] @ basis.T) @ projected
         out = np.full((5, pixels), np.nan)
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
             redo = ~(np.isfinite(sums).all(axis=0) & np.isfinite(squares))
             if n_basis and squares_wanted:
-                residual = squares - np.sum(projected**2, axis=0)
+                residual = squares - np.einsum("ij,ij->j", projected, projected)
                 # Slab sums are float32 over a few channels, added in float64: the residual is good to
                 # ~1e-6 of |y|^2, so only pixels where it is under 1e-3 of |y|^2 are redone (rms to 0.05 %).
                 redo |= residual < squares * 1e-3
@@ -330,20 +337,23 @@ class _MomentKernel:
 
     def _finish(self, weights, sums, squares, y, out, valid=None):
         """Turn the weighted sums of some pixels into the five output rows."""
+        # In place, into ``out``'s rows: a moment map's fixed cost is these few passes (issue #20).
         m0 = sums[0]
         out[_M0] = m0
         if weights.n_free:
-            rms = np.sqrt(squares / weights.dof)
-            out[_RMS] = rms
-            out[_M0_ERROR] = rms * weights.m0_norm
+            rms = np.divide(squares, weights.dof, out=out[_RMS])
+            np.sqrt(rms, out=rms)
+            np.multiply(rms, weights.m0_norm, out=out[_M0_ERROR])
         if self.clip is None:
             s0, s1, s2 = m0, sums[1], sums[2]
         else:
             s0, s1, s2 = self._clipped_sums(weights, sums, y, out[_RMS], valid)
-        mean = s1 / s0
-        out[_M1] = self.reference + mean
-        variance = s2 / s0 - mean**2
-        out[_M2] = np.sqrt(np.where(variance >= 0, variance, np.nan))
+        mean = np.divide(s1, s0, out=out[_M1])
+        variance = np.divide(s2, s0, out=out[_M2])
+        variance -= mean * mean
+        variance[variance < 0] = np.nan
+        np.sqrt(variance, out=variance)
+        mean += self.reference
 
     def _clipped_sums(self, weights, sums, y, rms, valid):
         """Moment sums over window channels above clip x rms (after the baseline)."""

@@ -123,7 +123,8 @@ def check_rest_frequency(rest_frequency, *, argname="rest_frequency", func=None)
             f"Argument {argname!r}{where} must be a frequency; got {rest_frequency.unit}. "
             f"Pass e.g. {argname}=230.538*u.GHz"
         ) from None
-    if np.any(value <= 0) or not np.all(np.isfinite(value)):
+    number = value.to_value(u.GHz)  # a plain array: Quantity comparisons cost ~0.5 ms each (issue #20)
+    if np.any(number <= 0) or not np.all(np.isfinite(number)):
         raise UnitMismatchError(f"Argument {argname!r}{where} must be positive; got {rest_frequency}")
     return value
 

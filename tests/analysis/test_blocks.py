@@ -312,3 +312,42 @@ def test_streamed_slabs_are_the_block_masked_and_in_order(cube_path, rng, monkey
     blocks = spectra_blocks(cube.shape, channels=channels, itemsize=4, block_shape=(4, 7))
     run_blocks(masked, _SlabCollector(), blocks, consume, dtype=np.float32)
     assert_array_equal(got, expected[channels])
+
+
+class _ViewCollector(_SlabCollector):
+    """A streaming kernel that takes views of the file, and notes whether each slab was one."""
+
+    takes_file_views = True
+
+    def __init__(self):
+        self.views = []
+
+    def stream(self, slabs, shape, reread):
+        def noted():
+            for first, slab in slabs:
+                self.views.append(not slab.flags.writeable and not slab.dtype.isnative)
+                yield first, slab
+        return super().stream(noted(), shape, reread)
+
+
+@pytest.mark.parametrize("masked", [False, True])
+def test_a_kernel_that_takes_file_views_reads_the_file_itself_unless_it_is_masked(cube_path, rng, masked):
+    # Without a mask the slabs are the file's own (big-endian, read-only) values, not a copy; with
+    # one they are native copies with masked voxels NaN. Either way the stacked slabs are the block.
+    data = rng.normal(size=(NCHAN, 8, 7))
+    cube = open_cube(cube_path(data))
+    keep = rng.random(data.shape) > 0.1 if masked else np.ones(data.shape, bool)
+    if masked:
+        cube = cube.with_mask(keep)
+    channels = np.r_[40:50, 0:11, 100:104]
+    expected = np.where(keep, data.astype(np.float32), np.nan)[channels]
+    got = np.full((channels.size, 8, 7), np.inf)
+
+    def consume(block, result):
+        got[:, block.rows, block.columns] = result
+
+    kernel = _ViewCollector()
+    run_blocks(cube, kernel, spectra_blocks(cube.shape, channels=channels, itemsize=4, block_shape=(4, 7)),
+               consume, dtype=np.float32)
+    assert_array_equal(got, expected)
+    assert kernel.views and all(was_view == (not masked) for was_view in kernel.views)

@@ -74,18 +74,22 @@ def test_small_enough_to_ship():
 
 @pytest.mark.slow
 def test_generator_is_deterministic(tmp_path):
-    """Rerunning the generator gives the shipped files byte for byte: same data, headers and sidecars."""
+    """Rerunning the generator gives the shipped files: same headers, sidecars and tables byte for byte,
+    and the same data to the last bit but for the rounding of a few values (at most 1 unit in the last
+    place of float32): the libraries' FFT and exponentials may round differently on another CPU."""
     make_demo_cubes.make_all(tmp_path)
     for name in NAMES:
-        for suffix in (".fits", ".json"):
-            assert (tmp_path / f"{name}{suffix}").read_bytes() == demo_path(name).with_suffix(suffix).read_bytes(), (
-                f"{name}{suffix} differs from a fresh run; rerun demo_cubes/make_demo_cubes.py")
+        assert (tmp_path / f"{name}.json").read_bytes() == demo_path(name).with_suffix(".json").read_bytes(), (
+            f"{name}.json differs from a fresh run; rerun demo_cubes/make_demo_cubes.py")
         with fits.open(demo_path(name)) as shipped, fits.open(tmp_path / f"{name}.fits") as fresh:
             assert len(shipped) == len(fresh)
             for a, b in zip(shipped, fresh):
                 assert a.header == b.header, f"{name}: header differs; rerun demo_cubes/make_demo_cubes.py"
                 if a.data is not None and not isinstance(a, fits.BinTableHDU):
-                    np.testing.assert_array_equal(a.data, b.data, err_msg=f"{name}: data differ")
+                    assert a.data.dtype == b.data.dtype and a.data.shape == b.data.shape
+                    np.testing.assert_array_max_ulp(a.data, b.data, maxulp=1)
+                    rounded = np.flatnonzero((a.data != b.data) & ~(np.isnan(a.data) & np.isnan(b.data)))
+                    assert rounded.size <= max(10, a.data.size // 100_000), f"{name}: {rounded.size} values differ"
                 elif a.data is not None:
                     assert a.data.tobytes() == b.data.tobytes()
         assert json.loads((tmp_path / f"{name}.json").read_text()) == json.loads(
