@@ -96,6 +96,11 @@ class ExcitationPanel(w.VBox):
         self.status = StatusLine()
         self.prediction_status = StatusLine()
         self.export_status = StatusLine()
+        self._boxes, self._box_items, self._syncing = {}, {}, False  # see _show_choices
+        self._box_layout = w.Layout(width="auto")
+        self._no_lines = w.HTML("<span style='color:#7b8794'>No measured lines yet: measure a line (line window "
+                                "on the spectrum, its name under 'Velocity zero'), then tick it here; move the "
+                                "window to the next line and tick that one too.</span>")
         self.choices = w.VBox(layout=w.Layout(max_height="180px", overflow="auto", width="100%"))
         self.choices.add_class("cubeloupe-excitation-lines")
         self.spin_choice = w.ToggleButtons(options=[("one T (joint)", "joint"), ("each its own", "separate")],
@@ -213,19 +218,39 @@ class ExcitationPanel(w.VBox):
         return item
 
     def _show_choices(self):
-        boxes = []
+        # A box per offered line, kept while the line is offered and only updated when its label or
+        # tick changes: new boxes on every measurement made each move of the line window send three
+        # new widget models per line to the browser (#20).
+        boxes, kept = [], {}
         picked = {_key(item) for item in self.picked}
-        for item in self._offered():
-            box = w.Checkbox(value=_key(item) in picked, description=_label(item), indent=False,
-                             layout=w.Layout(width="auto"))
-            box.add_class("cubeloupe-excitation-line")
-            box.observe(lambda change, item=item: self.tick(item, change.new), names=["value"])
-            boxes.append(box)
+        self._syncing = True
+        try:
+            for item in self._offered():
+                key = _key(item)
+                box = self._boxes.pop(key, None)
+                if box is None:
+                    box = w.Checkbox(value=False, indent=False, layout=self._box_layout)
+                    box.add_class("cubeloupe-excitation-line")
+                    box.observe(lambda change, key=key: self._on_box(key, change.new), names=["value"])
+                box.description = _label(item)
+                box.value = key in picked
+                self._box_items[key] = item
+                kept[key] = box
+                boxes.append(box)
+        finally:
+            self._syncing = False
+        for key, box in self._boxes.items():
+            self._box_items.pop(key, None)
+            box.close()
+        self._boxes = kept
         if not boxes:
-            boxes = [w.HTML("<span style='color:#7b8794'>No measured lines yet: measure a line (line window on "
-                            "the spectrum, its name under 'Velocity zero'), then tick it here; move the window "
-                            "to the next line and tick that one too.</span>")]
-        self.choices.children = boxes
+            boxes = [self._no_lines]
+        if list(self.choices.children) != boxes:
+            self.choices.children = boxes
+
+    def _on_box(self, key, on):
+        if not self._syncing and key in self._box_items:
+            self.tick(self._box_items[key], on)
 
     def tick(self, item, on=True):
         """Put a line (a measurement row or a dict like those in `picked`) into the diagram, or take it out."""

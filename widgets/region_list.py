@@ -99,7 +99,8 @@ class RegionList(w.VBox):
         self._drawn = {}
         self._grid_keys = {}
         self._rows = w.Box(layout=w.Layout(flex_flow="row wrap", align_items="center"))
-        self._row_widgets = {}
+        self._pool = []  # the rows, shown ones first in the regions' order (see _render)
+        self._syncing = False
         self._shared_parts = {}  # layouts and styles shared by the rows (see _shared)
         self._outline_cache = {}
         self._empty = w.HTML("<span style='color:#829ab1;font-size:90%'>No regions yet: pick Box, Oval, Outline "
@@ -340,28 +341,37 @@ class RegionList(w.VBox):
     # --------------------------------------------------------------- display
     @observe("regions", "selected")
     def _render(self, change=None):
-        # Rows are kept per (name, colour, kind) and reused: rebuilding every row's
-        # widgets on each change cost ~100 ms with a handful of regions.
-        rows, kept = [], {}
-        for item in self.regions:
-            key = (item["name"], item["color"], item["kind"])
-            row = self._row_widgets.pop(key, None) or self._make_row(item)
-            row.children[0].value = item["name"] == self.selected
-            kept[key] = row
-            rows.append(row)
-        for row in self._row_widgets.values():
-            for child in row.children:
-                child.close()
-            row.close()
-        self._row_widgets = kept
-        self._rows.children = rows
-        self._empty.layout.display = "none" if rows else ""
+        # Rows are widgets waiting in the list (hidden when unused) and are filled with the region they
+        # show: a new region's row is a few value changes for the browser, not seven new widget models
+        # made one after another before its spectrum shows (#20). Spare rows are made a few at a time.
+        wanted = {item["name"] for item in self.regions}
+        kept = {row.name: row for row in self._pool if row.name in wanted}
+        spare = [row for row in self._pool if row.name not in wanted]
+        needed = len(self.regions) - len(kept)
+        if not self._pool or needed > len(spare):  # the first rows, or the spares ran out
+            spare += [self._make_row() for _ in range(max(0, needed - len(spare)) + _SPARE_ROWS)]
+        shown = []
+        self._syncing = True
+        try:
+            for item in self.regions:
+                row = kept.get(item["name"]) or spare.pop(0)
+                row.show(item, item["name"] == self.selected)
+                shown.append(row)
+            for row in spare:
+                row.hide()
+        finally:
+            self._syncing = False
+        self._pool = shown + spare
+        boxes = [row.box for row in self._pool]
+        if list(self._rows.children) != boxes:
+            self._rows.children = boxes
+        self._empty.layout.display = "none" if shown else ""
 
     def _shared(self, key, make, **kwargs):
         """``make(**kwargs)`` whose style (and layout, when not given) are those of the rows made before.
 
         Layouts and styles are widgets of their own, one more model for the browser to make each: shared,
-        a new region's row costs 7 models instead of 17 before its spectrum is drawn (#20).
+        a row costs 7 models instead of 17 (#20).
         """
         for part in ("style", "layout"):
             if (key, part) in self._shared_parts and part not in kwargs:
@@ -371,34 +381,68 @@ class RegionList(w.VBox):
             self._shared_parts.setdefault((key, part), getattr(widget, part))
         return widget
 
-    def _make_row(self, item):
-        name = item["name"]
-        pick = self._shared("pick", w.ToggleButton, value=name == self.selected, icon="hand-pointer-o",
-                            layout=self._shared_parts.get(("pick", "layout")) or w.Layout(width="36px"),
-                            tooltip=f"Select region {name} (its spectrum is used for the table and reshaping)")
-        pick.observe(lambda ch, name=name: ch.new and setattr(self, "selected", name), names="value")
-        color = self._shared("color", w.ColorPicker, value=item["color"], concise=True, layout=pick.layout,
+    def _make_row(self):
+        """A hidden row: select button, colour, name box, kind and remove button, for any region."""
+        pick = self._shared("pick", w.ToggleButton, value=False, icon="hand-pointer-o",
+                            layout=self._shared_parts.get(("pick", "layout")) or w.Layout(width="36px"))
+        color = self._shared("color", w.ColorPicker, value="#ffffff", concise=True, layout=pick.layout,
                              tooltip="Colour of this region's outline and spectrum")
-        color.observe(lambda ch, name=name: self.recolor(name, ch.new), names="value")
-        label = self._shared("label", w.Text, value=name, continuous_update=False,
+        label = self._shared("label", w.Text, value="", continuous_update=False,
                              layout=self._shared_parts.get(("label", "layout")) or w.Layout(width="96px"),
                              tooltip="Name of the region; type a new one and press Enter")
-        label.observe(lambda ch, name=name: self._safe_rename(name, ch.new), names="value")
-        kind = self._shared("kind", w.HTML, value=f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>",
+        kind = self._shared("kind", w.HTML, value="",
                             layout=self._shared_parts.get(("kind", "layout")) or w.Layout(width="48px"))
-        drop = self._shared("drop", w.Button, icon="times", layout=pick.layout,
-                            tooltip=f"Remove region {name} and its spectrum")
-        drop.on_click(lambda _, name=name: self.remove(name))
-        row = w.HBox([pick, color, label, kind, drop],
-                     layout=w.Layout(align_items="center", margin="0 14px 0 0",
-                                     border_left=f"4px solid {item['color']}", padding="0 0 0 4px"))
-        row.add_class("cubeloupe-region-row")
+        drop = self._shared("drop", w.Button, icon="times", layout=pick.layout)
+        box = w.HBox([pick, color, label, kind, drop],
+                     layout=w.Layout(align_items="center", margin="0 14px 0 0", padding="0 0 0 4px",
+                                     border_left="4px solid #ffffff", display="none"))
+        box.add_class("cubeloupe-region-row")
+        row = _RegionRow(box)
+        pick.observe(lambda ch: self._act(ch.new and (lambda: setattr(self, "selected", row.name))), names="value")
+        color.observe(lambda ch: self._act(lambda: self.recolor(row.name, ch.new)), names="value")
+        label.observe(lambda ch: self._act(lambda: self._safe_rename(row, ch.new)), names="value")
+        drop.on_click(lambda _: self._act(lambda: self.remove(row.name)))
         return row
 
-    def _safe_rename(self, old, new):
+    def _act(self, action):
+        """Run a row's ``action`` when the user acted (not while the rows are being filled)."""
+        if action and not self._syncing:
+            action()
+
+    def _safe_rename(self, row, new):
+        old = row.name
+        if old is None or new == old:
+            return
         try:
             self.rename(old, new)
         except RegionError:
-            for (name, _, _), row in self._row_widgets.items():
-                if name == old:
-                    row.children[2].value = old   # put the refused name back in the box
+            row.label.value = old   # put the refused name back in the box
+
+
+_SPARE_ROWS = 3  # rows made ahead of need, hidden, for the next regions
+
+
+class _RegionRow:
+    """One row of the region list and the name of the region it shows (None while it waits)."""
+
+    def __init__(self, box):
+        self.box = box
+        self.pick, self.color, self.label, self.kind, self.drop = box.children
+        self.name = None
+
+    def show(self, item, selected):
+        name = item["name"]
+        self.name = name
+        self.pick.value = selected
+        self.pick.tooltip = f"Select region {name} (its spectrum is used for the table and reshaping)"
+        self.color.value = item["color"]
+        self.label.value = name
+        self.kind.value = f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>"
+        self.drop.tooltip = f"Remove region {name} and its spectrum"
+        self.box.layout.border_left = f"4px solid {item['color']}"
+        self.box.layout.display = None
+
+    def hide(self):
+        self.name = None
+        self.pick.value = False
+        self.box.layout.display = "none"

@@ -111,6 +111,29 @@ def test_ticked_lines_stay_when_the_window_moves_on(suite, panel):
     assert len(boxes) == 10 and all(box.value for box in boxes)
 
 
+def test_the_tick_boxes_are_kept_while_their_lines_are_offered(suite, panel):
+    # Each move of the line window changes the measurements; the boxes of lines still offered are the
+    # same widgets (no new models for the browser, #20), with their labels brought up to date, and a
+    # tick on a kept box still puts its line in and takes it out.
+    loupe, rows = suite
+    before = {box.description.split(" · ")[0]: box for box in panel.choices.children}
+    measured = loupe.measurements[0]["line"]       # still offered when unticked: it is measured now
+    first = next(p for p in panel.picked if p["line"] == measured)
+    panel.picked = [p for p in panel.picked if p is not first]   # untick it: its box stays, unticked
+    after = {box.description.split(" · ")[0]: box for box in panel.choices.children}
+    assert after == before
+    box = after[first["line"]]
+    assert not box.value and not box.description.endswith("(upper limit)")
+    panel.limit_sigma = 1e6                        # the offered measurement is now an upper limit: its label says so
+    assert after[first["line"]].description.endswith("(upper limit)")
+    assert {b.description.split(" · ")[0]: b for b in panel.choices.children} == before
+    panel.limit_sigma = 3.0
+    assert not box.description.endswith("(upper limit)")
+    box.value = True                               # the user ticks it again
+    assert [p["line"] for p in panel.picked].count(first["line"]) == 1
+    assert all(b.value for b in panel.choices.children)
+
+
 @pytest.mark.parametrize("spin", ["joint", "separate"])
 def test_numbers_equal_population_diagram_on_the_same_rows(suite, panel, spin):
     loupe, rows = suite

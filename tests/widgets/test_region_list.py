@@ -69,22 +69,39 @@ def test_regions_are_editable_and_removable(loupe):
     assert len(loupe.sky_view.outlines) == 1
 
 
+def _shown_rows(loupe):
+    return [row for row in loupe.region_list._rows.children if row.layout.display != "none"]
+
+
 def test_region_rows_follow_the_regions_and_refuse_a_taken_name(loupe):
-    rows = loupe.region_list._rows
+    waiting = list(loupe.region_list._rows.children)
     loupe.add_region(CirclePixelRegion(PixCoord(14, 12), radius=3), name="a")
     loupe.add_region(CirclePixelRegion(PixCoord(5, 5), radius=2), name="b")
-    names = [row.children[2].value for row in rows.children]
-    picked = [row.children[0].value for row in rows.children]
+    rows = _shown_rows(loupe)
+    # The rows were waiting, hidden, before the regions came: no new widgets on the way to a spectrum (#20).
+    assert all(row in waiting for row in rows)
+    names = [row.children[2].value for row in rows]
+    picked = [row.children[0].value for row in rows]
+    kinds = [row.children[3].value for row in rows]
     assert names == ["a", "b"] and picked == [False, True]   # the newest region is selected
-    rows.children[0].children[0].value = True                 # click a's select button
+    assert all("circle" in kind for kind in kinds)
+    assert [row.layout.border_left for row in rows] == [f"4px solid {r['color']}" for r in loupe.regions]
+    rows[0].children[0].value = True                         # click a's select button
     assert loupe.region_list.selected == "a"
-    assert [row.children[0].value for row in rows.children] == [True, False]
-    rows.children[1].children[2].value = "a"                  # type a name that is taken
-    assert loupe.region_list.names == ["a", "b"] and rows.children[1].children[2].value == "b"
-    rows.children[1].children[2].value = "rim"
+    assert [row.children[0].value for row in _shown_rows(loupe)] == [True, False]
+    rows[1].children[1].value = "#123456"                    # pick a colour for b
+    assert loupe.regions[1]["color"] == "#123456" and rows[1].layout.border_left == "4px solid #123456"
+    rows[1].children[2].value = "a"                          # type a name that is taken
+    assert loupe.region_list.names == ["a", "b"] and rows[1].children[2].value == "b"
+    rows[1].children[2].value = "rim"
     assert loupe.region_list.names == ["a", "rim"] and set(loupe.spectra) == {"a", "rim"}
-    rows.children[0].children[4].click()                      # remove a
-    assert [row.children[2].value for row in rows.children] == ["rim"] and loupe.regions[0]["name"] == "rim"
+    rows[0].children[4].click()                              # remove a
+    assert [row.children[2].value for row in _shown_rows(loupe)] == ["rim"] and loupe.regions[0]["name"] == "rim"
+    for k in range(5):                                       # more regions than rows waiting: more are made
+        loupe.add_region(CirclePixelRegion(PixCoord(3 + 3 * k, 20), radius=1), name=f"c{k}")
+    assert [row.children[2].value for row in _shown_rows(loupe)] == ["rim"] + [f"c{k}" for k in range(5)]
+    loupe.regions = []
+    assert _shown_rows(loupe) == [] and loupe.region_list._empty.layout.display == ""
 
 
 def test_region_outside_the_cube_is_reported_and_not_kept(loupe):
