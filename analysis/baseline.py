@@ -113,13 +113,15 @@ class CachedAxis:
     """A spectrum's spectral axis computed once.
 
     OneDSpectrum recomputes ``spectral_axis`` from its WCS (parsing the unit)
-    on every access; the range and velocity helpers read it several times.
+    on every access; the range and velocity helpers read it several times,
+    in the same units and frame (`spectral.axis_in` converts it once each).
     """
 
     def __init__(self, spectrum):
         self._spectrum = spectrum
         self.spectral_axis = spectrum.spectral_axis
         self.wcs = getattr(spectrum, "wcs", None)
+        self.conversions = {}  # `spectral.axis_in` keeps each unit and frame's axis here
 
     def with_spectral_unit(self, *args, **kwargs):
         return self._spectrum.with_spectral_unit(*args, **kwargs)

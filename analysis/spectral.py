@@ -266,6 +266,31 @@ def axis_in(obj, unit, *, rest_frequency=None, z=0.0, convention="radio"):
     unit = u.Unit(unit)
     check_convention(convention)
     z = check_redshift(z)
+    # An axis that keeps its conversions (`baseline.CachedAxis`: one spectrum measured with one frame)
+    # is converted once per unit and frame; astropy's unit conversions are most of a line measurement's
+    # time (issue #20). A copy is handed out, so that callers may change what they get.
+    conversions = getattr(obj, "conversions", None)
+    key = _conversion_key(unit, rest_frequency, z, convention) if isinstance(conversions, dict) else None
+    if key is not None and key in conversions:
+        return conversions[key].copy()
+    converted = _axis_in(obj, unit, rest_frequency, z, convention)
+    if key is not None:
+        conversions[key] = converted.copy()
+    return converted
+
+
+def _conversion_key(unit, rest_frequency, z, convention):
+    if rest_frequency is None:
+        return (unit.to_string(), None, z, convention)
+    if not isinstance(rest_frequency, u.Quantity) or rest_frequency.size != 1:
+        return None  # refused in `velocity`, with its message
+    try:
+        return (unit.to_string(), float(rest_frequency.to_value(u.GHz, equivalencies=u.spectral())), z, convention)
+    except u.UnitConversionError:
+        return None
+
+
+def _axis_in(obj, unit, rest_frequency, z, convention):
     native = obj.spectral_axis if hasattr(obj, "spectral_axis") else u.Quantity(obj)
     if unit.is_equivalent(_KMS):
         if rest_frequency is None:

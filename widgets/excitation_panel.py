@@ -131,6 +131,7 @@ class ExcitationPanel(w.VBox):
         self.add_class("cubeloupe-excitation-panel")
         loupe.observe(self._on_measurements, names=["measurements"])
         loupe.observe(self._on_source_traits, names=["z", "magnification", "cosmology"])
+        self._tabs, self._choices_stale = tabs, False
         if tabs is not None:
             tabs.children = (*tabs.children, self)
             self._tab_index = len(tabs.children) - 1
@@ -198,6 +199,13 @@ class ExcitationPanel(w.VBox):
         # Drawn in a hidden tab, bqplot would lay the figure out at zero width (negative sizes, console errors).
         if change.new == self._tab_index and self.figure not in self.body.children:
             self.body.children = [self.figure, self.results]
+        if change.new == self._tab_index and self._choices_stale:
+            self._show_choices()
+
+    @property
+    def shown(self):
+        """True when the panel is on screen: no tabs, or its tab selected."""
+        return self._tabs is None or self._tabs.selected_index == self._tab_index
 
     # ------------------------------------------------------------- the lines
     def _offered(self):
@@ -218,6 +226,7 @@ class ExcitationPanel(w.VBox):
         return item
 
     def _show_choices(self):
+        self._choices_stale = False
         # A box per offered line, kept while the line is offered and only updated when its label or
         # tick changes: new boxes on every measurement made each move of the line window send three
         # new widget models per line to the browser (#20).
@@ -266,7 +275,12 @@ class ExcitationPanel(w.VBox):
         return len(rows)
 
     def _on_measurements(self, change):
-        self._show_choices()
+        # Each move of the line window measures anew: the lines offered here are brought up to date when
+        # the tab is shown, not on the way to the measurement table (#20).
+        if self.shown:
+            self._show_choices()
+        else:
+            self._choices_stale = True
 
     def _on_source_traits(self, change):
         if self.picked:

@@ -9,7 +9,11 @@ message, one redraw, no bytes for what the browser already has.
 
 import numpy as np
 
-__all__ = ["same_value", "update_mark"]
+__all__ = ["SPARE_MARKS", "same_value", "update_mark"]
+
+#: Empty marks a figure keeps waiting for the next regions' spectra and outlines (#20): filling one is
+#: a data update; a new one is a new model and a new mark list for the browser to lay out.
+SPARE_MARKS = 5
 
 
 def same_value(old, new):

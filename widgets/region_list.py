@@ -419,7 +419,9 @@ class RegionList(w.VBox):
             row.label.value = old   # put the refused name back in the box
 
 
-_SPARE_ROWS = 3  # rows made ahead of need, hidden, for the next regions
+# Rows made ahead of need, hidden, for the next regions: enough for a handful of regions (the
+# suite's own first region and four drawn) before more are made on the way to a spectrum.
+_SPARE_ROWS = 5
 
 
 class _RegionRow:

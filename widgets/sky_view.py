@@ -27,6 +27,7 @@ from cubeloupe.analysis import (
 from ._look import DIVERGING_RAMPS, RAMPS, blank_color, row
 from .sky_image import SkyImage
 from .path_tool import PathTool  # the path tool of position–velocity slices (#18)
+from .mark_update import SPARE_MARKS
 from .status import StatusLine
 
 __all__ = ["SkyView", "TOOLS", "MAX_WIDTH"]
@@ -142,7 +143,8 @@ class SkyView(w.VBox):
         self.contour_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=1, opacities=[0.8])
         self.beam_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], fill="inside",
                                fill_colors=["#ffffff"], fill_opacities=[0.35], stroke_width=1.5)
-        self.outline_marks, self._outline_pool = [], []
+        # Outline marks waiting, empty, for the regions to come (see _draw_outlines).
+        self.outline_marks, self._outline_pool = [], [self._outline_mark(scales) for _ in range(SPARE_MARKS)]
         self.draft_mark = Lines(x=[], y=[], scales=scales, colors=["#ffffff"], line_style="dashed")
         self.draft_points = Scatter(x=[], y=[], scales=scales, colors=["#ffffff"], default_size=24)
         # The oval being dragged: the ellipse filling the dragged box, drawn by the kernel.
@@ -154,8 +156,8 @@ class SkyView(w.VBox):
         self.x_axis = Axis(scale=self.x_axis_scale, label="x (pixel)", grid_lines="none", label_offset="32px")
         self.y_axis = Axis(scale=self.y_axis_scale, side="left", label="y (pixel)", grid_lines="none",
                            label_offset="42px")
-        self.figure = Figure(marks=[self.image, self.contour_mark, self.beam_mark, self.draft_mark,
-                                    self.draft_points, self.oval_draft],
+        self.figure = Figure(marks=[self.image, self.contour_mark, *self._outline_pool, self.beam_mark,
+                                    self.draft_mark, self.draft_points, self.oval_draft],
                              axes=[self.x_axis, self.y_axis], padding_x=0, padding_y=0,
                              fig_margin=dict(FIGURE_MARGIN),
                              layout=w.Layout(width="364px", height="364px"))
@@ -578,9 +580,8 @@ class SkyView(w.VBox):
         pool, items, grown = self._outline_pool, list(self.outlines), len(self.outlines) > len(self._outline_pool)
         # Grown a few at a time: a new mark is a new model and a new mark list for the browser, so the
         # next regions' outlines find an empty mark waiting (#20).
-        while len(pool) < len(items) + (2 if grown else 0):  # outline only: a fill would tint the data (#17)
-            pool.append(Lines(x=[], y=[], scales={"x": self.x_scale, "y": self.y_scale}, colors=["#ffffff"],
-                              stroke_width=2.5, display_legend=False, fill="none"))
+        while len(pool) < len(items) + (SPARE_MARKS if grown else 0):
+            pool.append(self._outline_mark({"x": self.x_scale, "y": self.y_scale}))
         with self.figure.hold_sync():
             for k, mark in enumerate(pool):
                 item = items[k] if k < len(items) else {"x": [], "y": [], "color": mark.colors[0], "name": ""}
@@ -591,6 +592,12 @@ class SkyView(w.VBox):
         if grown:
             self.figure.marks = [self.image, self.contour_mark, *pool, self.beam_mark, self.draft_mark,
                                  self.draft_points, self.oval_draft, *self.path_tool.marks]
+
+    @staticmethod
+    def _outline_mark(scales):
+        # An outline only: a fill would tint the data (#17).
+        return Lines(x=[], y=[], scales=scales, colors=["#ffffff"], stroke_width=2.5, display_legend=False,
+                     fill="none")
 
     # ------------------------------------------------------------- gestures
     def on_shape(self, callback, remove=False):

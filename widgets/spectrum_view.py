@@ -20,7 +20,7 @@ from cubeloupe.analysis import (
 )
 
 from ._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL, PEAK_COLOR, row
-from .mark_update import update_mark
+from .mark_update import SPARE_MARKS, update_mark
 from .status import StatusLine
 
 __all__ = ["SpectrumView", "CLICK_MODES", "RANGE_MODES"]
@@ -166,6 +166,7 @@ class SpectrumView(w.VBox):
         self.brush = BrushIntervalSelector(scale=self.x_scale, marks=[], color=LINE_WINDOW_FILL)
         self.brush.observe(self._on_brushing, names=["brushing"])
         self.figure.interaction = self.clicker
+        self._spare_curves = self._make_spare_curves()  # waiting from the start (#20)
         self._set_marks()
 
         self.axis_choice = w.Dropdown(options=list(AXIS_KINDS), description="x axis",
@@ -502,9 +503,12 @@ class SpectrumView(w.VBox):
         shows: they are made a few at a time, ahead of need.
         """
         if not self._spare_curves:
-            self._spare_curves = [Lines(x=[], y=[], labels=[], scales={"x": self.x_scale, "y": self.y_scale},
-                                        stroke_width=1.6) for _ in range(3)]
+            self._spare_curves = self._make_spare_curves()
         return self._spare_curves.pop(0)
+
+    def _make_spare_curves(self):
+        return [Lines(x=[], y=[], labels=[], scales={"x": self.x_scale, "y": self.y_scale}, stroke_width=1.6)
+                for _ in range(SPARE_MARKS)]
 
     def _draw_extras(self, key, x, fit, color, scales):
         """The faint unsmoothed curve and the fitted model with its residuals, for one spectrum (#18)."""

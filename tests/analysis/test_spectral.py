@@ -166,3 +166,24 @@ def test_channel_mask_refusals():
         channel_mask(axis, (1, 2))
     with pytest.raises(SpectralRangeError, match="pair"):
         channel_mask(axis, [1, 2, 3] * u.GHz)
+
+
+def test_an_axis_that_keeps_its_conversions_gives_the_same_axis_every_time():
+    # A measured spectrum's axis is converted once per unit and frame (#20); what a caller does to the
+    # array it got does not reach the next caller, and each frame gets its own velocities.
+    from cubeloupe.analysis.baseline import CachedAxis, as_spectrum
+
+    freq = np.linspace(230.0, 230.2, 50) * u.GHz
+    spectrum = as_spectrum(np.zeros(50) * u.Jy, spectral_axis=freq)
+    kept = CachedAxis(spectrum)
+    rest = 230.538 * u.GHz
+    first = axis_in(kept, u.km / u.s, rest_frequency=rest, z=0.001)
+    first[:] = 0 * u.km / u.s
+    again = axis_in(kept, u.km / u.s, rest_frequency=rest, z=0.001)
+    assert_quantity_allclose(again, axis_in(spectrum, u.km / u.s, rest_frequency=rest, z=0.001), rtol=0)
+    # Radio convention: v = c (1 - f / f0) with f0 = rest / (1 + z) (Mangum & Shirley 2015, Table 1)
+    assert_allclose(again.to_value(u.km / u.s), C_KMS * (1 - freq.to_value(u.GHz) * 1.001 / 230.538), rtol=1e-10)
+    other = axis_in(kept, u.km / u.s, rest_frequency=rest, z=0.002, convention="optical")
+    assert not np.allclose(other.value, again.value)
+    assert_quantity_allclose(axis_in(kept, u.mm), freq.to(u.mm, equivalencies=u.spectral()))
+    assert len(kept.conversions) == 3

@@ -134,6 +134,25 @@ def test_the_tick_boxes_are_kept_while_their_lines_are_offered(suite, panel):
     assert all(b.value for b in panel.choices.children)
 
 
+def test_lines_measured_while_the_tab_is_hidden_are_offered_once_it_is_shown(suite, panel):
+    # Measuring (each move of the line window) does not rebuild a hidden tab's tick boxes; showing the
+    # tab brings them up to date, and while it is shown they follow each measurement at once (#20).
+    loupe, _ = suite
+    tabs = next(c for c in loupe.children if "cubeloupe-actions" in c._dom_classes)
+    index = list(tabs.children).index(panel)
+    measured = loupe.measurements
+    tabs.selected_index = 0 if index else 1
+    panel.picked = []
+    offered = list(panel.choices.children)
+    assert [box.description.split(" · ")[0] for box in offered] == [measured[0]["line"]]
+    loupe.measurements = []
+    assert list(panel.choices.children) == offered           # hidden: not rebuilt yet
+    tabs.selected_index = index
+    assert "No measured lines yet" in panel.choices.children[0].value
+    loupe.measurements = measured
+    assert [box.description.split(" · ")[0] for box in panel.choices.children] == [measured[0]["line"]]
+
+
 @pytest.mark.parametrize("spin", ["joint", "separate"])
 def test_numbers_equal_population_diagram_on_the_same_rows(suite, panel, spin):
     loupe, rows = suite
