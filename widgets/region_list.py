@@ -384,7 +384,8 @@ class RegionList(w.VBox):
     def _make_row(self):
         """A hidden row: select button, colour, name box, kind and remove button, for any region."""
         pick = self._shared("pick", w.ToggleButton, value=False, icon="hand-pointer-o",
-                            layout=self._shared_parts.get(("pick", "layout")) or w.Layout(width="36px"))
+                            layout=self._shared_parts.get(("pick", "layout")) or w.Layout(width="36px"),
+                            tooltip="Select this region (its spectrum is used for the table and reshaping)")
         color = self._shared("color", w.ColorPicker, value="#ffffff", concise=True, layout=pick.layout,
                              tooltip="Colour of this region's outline and spectrum")
         label = self._shared("label", w.Text, value="", continuous_update=False,
@@ -392,7 +393,8 @@ class RegionList(w.VBox):
                              tooltip="Name of the region; type a new one and press Enter")
         kind = self._shared("kind", w.HTML, value="",
                             layout=self._shared_parts.get(("kind", "layout")) or w.Layout(width="48px"))
-        drop = self._shared("drop", w.Button, icon="times", layout=pick.layout)
+        drop = self._shared("drop", w.Button, icon="times", layout=pick.layout,
+                            tooltip="Remove this region and its spectrum")
         box = w.HBox([pick, color, label, kind, drop],
                      layout=w.Layout(align_items="center", margin="0 14px 0 0", padding="0 0 0 4px",
                                      border_left="4px solid #ffffff", display="none"))
@@ -436,13 +438,12 @@ class _RegionRow:
         name = item["name"]
         self.name = name
         self.pick.value = selected
-        self.pick.tooltip = f"Select region {name} (its spectrum is used for the table and reshaping)"
         self.color.value = item["color"]
         self.label.value = name
         self.kind.value = f"<span style='color:#7b8794;font-size:90%'>{item['kind']}</span>"
-        self.drop.tooltip = f"Remove region {name} and its spectrum"
-        self.box.layout.border_left = f"4px solid {item['color']}"
-        self.box.layout.display = None
+        with self.box.layout.hold_sync():  # one message for both
+            self.box.layout.border_left = f"4px solid {item['color']}"
+            self.box.layout.display = None
 
     def hide(self):
         self.name = None
