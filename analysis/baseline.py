@@ -118,13 +118,13 @@ class CachedAxis:
     """
 
     def __init__(self, spectrum):
-        self._spectrum = spectrum
+        self.spectrum = spectrum  # whose axis this is (`spectral.frequency_axis` keys its conversions on it)
         self.spectral_axis = spectrum.spectral_axis
         self.wcs = getattr(spectrum, "wcs", None)
         self.conversions = {}  # `spectral.axis_in` keeps each unit and frame's axis here
 
     def with_spectral_unit(self, *args, **kwargs):
-        return self._spectrum.with_spectral_unit(*args, **kwargs)
+        return self.spectrum.with_spectral_unit(*args, **kwargs)
 
 
 def _same_kind_spectrum(template, values, unit):

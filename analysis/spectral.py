@@ -22,6 +22,7 @@ Examples
 """
 
 import numbers
+import weakref
 
 import astropy.units as u
 import numpy as np
@@ -222,12 +223,34 @@ def frequency_axis(obj):
             "(RESTFRQ/RESTFREQ); give ranges in the cube's own velocities without "
             "rest_frequency, or add RESTFRQ to a copy of the file"
         )
+    owner = getattr(obj, "spectrum", obj)  # a `baseline.CachedAxis` stands for its spectrum
+    known = _converted_axes.get(id(owner))
+    if known is not None and known[0]() is owner:
+        return known[1].copy()
     try:
-        return obj.with_spectral_unit(u.GHz).spectral_axis
+        frequencies = obj.with_spectral_unit(u.GHz).spectral_axis
     except Exception as exc:  # spectral-cube raises several types here
         raise SpectralAxisError(
             f"cannot convert the velocity axis to frequency ({exc}); check CTYPE3 and RESTFRQ"
         ) from None
+    _remember_axis(owner, frequencies)
+    return frequencies
+
+
+# A velocity axis converted to frequency, per cube or spectrum (weakly held): spectral-cube's
+# `with_spectral_unit` builds a whole new object (~20 ms for a spectrum, WCS checks included), and the
+# suite asks for the same spectrum's frequencies some 20 times per move of a range (a velocity-axis
+# cube: 210 ms per line-free drag on the CARMA cube of tests/real; issue #20).
+_converted_axes = {}
+
+
+def _remember_axis(obj, frequencies):
+    key = id(obj)
+    try:
+        ref = weakref.ref(obj, lambda _, key=key: _converted_axes.pop(key, None))
+    except TypeError:
+        return  # not weakly referable: converted each time
+    _converted_axes[key] = (ref, frequencies.copy())
 
 
 def _header_rest_frequency(obj):

@@ -187,3 +187,30 @@ def test_an_axis_that_keeps_its_conversions_gives_the_same_axis_every_time():
     assert not np.allclose(other.value, again.value)
     assert_quantity_allclose(axis_in(kept, u.mm), freq.to(u.mm, equivalencies=u.spectral()))
     assert len(kept.conversions) == 3
+
+
+def test_a_velocity_spectrum_is_converted_to_frequency_once(cube_path):
+    # spectral-cube rebuilds a spectrum to change its axis unit (~20 ms); the suite asks for the same
+    # spectrum's frequencies many times per gesture (#20). Converted once, the same values come back,
+    # for the spectrum and for a CachedAxis of it; what a caller does to its copy stays with it.
+    from unittest import mock
+
+    from cubeloupe.analysis.baseline import CachedAxis
+    from spectral_cube import OneDSpectrum
+
+    data = np.random.default_rng(3).normal(size=(5, 4, 4))
+    spectrum = open_cube(cube_path(data, spectral="VRAD"))[:, 1, 1]   # 0, 1.3, ... km/s, RESTFRQ 230.538 GHz
+    expected = spectrum.with_spectral_unit(u.GHz).spectral_axis
+    with mock.patch.object(OneDSpectrum, "with_spectral_unit", autospec=True,
+                           side_effect=OneDSpectrum.with_spectral_unit) as converted:
+        first = frequency_axis(spectrum)
+        first[:] = 0 * u.GHz
+        assert_quantity_allclose(frequency_axis(spectrum), expected, rtol=0)
+        assert_quantity_allclose(frequency_axis(CachedAxis(spectrum)), expected, rtol=0)
+        assert converted.call_count == 1
+        other = spectrum[:4]                                             # another spectrum: its own
+        assert_quantity_allclose(frequency_axis(other), expected[:4], rtol=0)
+        assert converted.call_count == 2
+    # Radio convention, RESTFRQ 230.538 GHz: f = f0 (1 - v / c) (Mangum & Shirley 2015, Table 1)
+    v = spectrum.spectral_axis.to_value(u.km / u.s)
+    assert_allclose(expected.to_value(u.GHz), 230.538 * (1 - v / C_KMS), rtol=1e-12)
