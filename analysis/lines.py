@@ -158,7 +158,7 @@ def _gaussian_jacobian(v, amplitude, center, sigma):
 
 
 # From the moment-based guess, a Gaussian on a line converges in 6-12 evaluations of the model and
-# its Jacobian (demo disk; the CARMA CO cube of tests/real); on noise alone, or on a profile no single
+# its Jacobian (demo disk; the CARMA CO cube of ../shared/real-cubes); on noise alone, or on a profile no single
 # Gaussian fits, it wanders (its centre leaves the window) and used up 5 000 evaluations, 140 ms, each
 # time the line window moved in the suite, to be rejected in the end all the same (issue #20).
 _MAX_EVALUATIONS = 200

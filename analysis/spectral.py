@@ -240,7 +240,7 @@ def frequency_axis(obj):
 # A velocity axis converted to frequency, per cube or spectrum (weakly held): spectral-cube's
 # `with_spectral_unit` builds a whole new object (~20 ms for a spectrum, WCS checks included), and the
 # suite asks for the same spectrum's frequencies some 20 times per move of a range (a velocity-axis
-# cube: 210 ms per line-free drag on the CARMA cube of tests/real; issue #20).
+# cube: 210 ms per line-free drag on the CARMA cube of ../shared/real-cubes; issue #20).
 _converted_axes = {}
 
 

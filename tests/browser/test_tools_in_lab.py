@@ -34,6 +34,7 @@ import pytest
 
 from cubeloupe.widgets._look import BASELINE_COLOR, CHANNEL_COLOR, LINE_FREE_FILL, LINE_WINDOW_FILL
 from lab import (
+    LOAD_TIMEOUT,
     PROBE_SETUP,
     ask_kernel,
     css_rgb,
@@ -190,7 +191,9 @@ def tools(lab_page, lab_root):
     lab_page.open_notebook(TOOLS_NOTEBOOK)
     lab_page.run_all()
     suite = lab_page.notebook.locator(".cubeloupe-loupe").first
-    suite.wait_for()
+    # The page holds every earlier module's notebooks and kernels by now: give the suite as long as a
+    # notebook gets to load (a full run once took over 30 s here with 12 kernels alive).
+    suite.wait_for(timeout=LOAD_TIMEOUT)
     assert lab_page.error_outputs() == []
     assert lab_page.run_code(PROBE_SETUP) == "Loupe"
     shape = lab_page.run_code(REFERENCE_SETUP)
@@ -209,7 +212,7 @@ def high_z(other_lab_page):
     lab.open_notebook(HIGH_Z_NOTEBOOK)
     lab.run_all()
     suite = lab.notebook.locator(".cubeloupe-loupe").first
-    suite.wait_for()
+    suite.wait_for(timeout=LOAD_TIMEOUT)
     return lab, suite
 
 
