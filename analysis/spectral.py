@@ -246,8 +246,13 @@ _converted_axes = {}
 
 def _remember_axis(obj, frequencies):
     key = id(obj)
+
+    def forget(dead):
+        if _converted_axes.get(key, (None,))[0] is dead:
+            del _converted_axes[key]
+
     try:
-        ref = weakref.ref(obj, lambda _, key=key: _converted_axes.pop(key, None))
+        ref = weakref.ref(obj, forget)
     except TypeError:
         return  # not weakly referable: converted each time
     _converted_axes[key] = (ref, frequencies.copy())

@@ -96,7 +96,7 @@ class ExcitationPanel(w.VBox):
         self.status = StatusLine()
         self.prediction_status = StatusLine()
         self.export_status = StatusLine()
-        self._boxes, self._box_items, self._syncing = {}, {}, False  # see _show_choices
+        self._boxes, self._syncing = {}, False  # line key -> (tick box, offered line); see _show_choices
         self._box_layout = w.Layout(width="auto")
         self._no_lines = w.HTML("<span style='color:#7b8794'>No measured lines yet: measure a line (line window "
                                 "on the spectrum, its name under 'Velocity zero'), then tick it here; move the "
@@ -236,20 +236,18 @@ class ExcitationPanel(w.VBox):
         try:
             for item in self._offered():
                 key = _key(item)
-                box = self._boxes.pop(key, None)
+                box, _ = self._boxes.pop(key, (None, None))
                 if box is None:
                     box = w.Checkbox(value=False, indent=False, layout=self._box_layout)
                     box.add_class("cubeloupe-excitation-line")
                     box.observe(lambda change, key=key: self._on_box(key, change.new), names=["value"])
                 box.description = _label(item)
                 box.value = key in picked
-                self._box_items[key] = item
-                kept[key] = box
+                kept[key] = (box, item)
                 boxes.append(box)
         finally:
             self._syncing = False
-        for key, box in self._boxes.items():
-            self._box_items.pop(key, None)
+        for box, _ in self._boxes.values():
             box.close()
         self._boxes = kept
         if not boxes:
@@ -258,8 +256,8 @@ class ExcitationPanel(w.VBox):
             self.choices.children = boxes
 
     def _on_box(self, key, on):
-        if not self._syncing and key in self._box_items:
-            self.tick(self._box_items[key], on)
+        if not self._syncing and key in self._boxes:
+            self.tick(self._boxes[key][1], on)
 
     def tick(self, item, on=True):
         """Put a line (a measurement row or a dict like those in `picked`) into the diagram, or take it out."""

@@ -181,7 +181,8 @@ def test_an_axis_that_keeps_its_conversions_gives_the_same_axis_every_time():
     first[:] = 0 * u.km / u.s
     again = axis_in(kept, u.km / u.s, rest_frequency=rest, z=0.001)
     assert_quantity_allclose(again, axis_in(spectrum, u.km / u.s, rest_frequency=rest, z=0.001), rtol=0)
-    # Radio convention: v = c (1 - f / f0) with f0 = rest / (1 + z) (Mangum & Shirley 2015, Table 1)
+    # Radio convention: v = c (1 - f / f0) (Greisen et al. 2006), with f0 = rest / (1 + z) for a line at z
+    # (rest-frame offsets, common practice)
     assert_allclose(again.to_value(u.km / u.s), C_KMS * (1 - freq.to_value(u.GHz) * 1.001 / 230.538), rtol=1e-10)
     other = axis_in(kept, u.km / u.s, rest_frequency=rest, z=0.002, convention="optical")
     assert not np.allclose(other.value, again.value)
@@ -211,6 +212,6 @@ def test_a_velocity_spectrum_is_converted_to_frequency_once(cube_path):
         other = spectrum[:4]                                             # another spectrum: its own
         assert_quantity_allclose(frequency_axis(other), expected[:4], rtol=0)
         assert converted.call_count == 2
-    # Radio convention, RESTFRQ 230.538 GHz: f = f0 (1 - v / c) (Mangum & Shirley 2015, Table 1)
+    # Radio convention, RESTFRQ 230.538 GHz: f = f0 (1 - v / c) (Greisen et al. 2006)
     v = spectrum.spectral_axis.to_value(u.km / u.s)
     assert_allclose(expected.to_value(u.GHz), 230.538 * (1 - v / C_KMS), rtol=1e-12)

@@ -34,7 +34,7 @@ def test_sums_equal_numpy_float64_products(n_basis, first, n):
 @pytest.mark.parametrize("byte_order", [">", "<"])
 @pytest.mark.parametrize("n_basis", [0, 2, 3])
 def test_a_view_of_the_file_gives_the_same_sums_as_a_native_copy(byte_order, n_basis):
-    # A FITS file holds big-endian values (FITS Standard 4.0, section 5.3): a slab read straight
+    # A FITS file holds big-endian values (FITS Standard 4.0, section 5; section from memory): a slab read straight
     # from the memory map, channels a whole plane apart, must give bit for bit the sums of its
     # native-order copy, blanks (NaN, inf) included.
     rng = np.random.default_rng(n_basis)
